@@ -1,0 +1,54 @@
+//! Command line and environment: one struct, read once. Every flag has an environment
+//! fallback, named in `--help`.
+
+use clap::{Parser, Subcommand};
+use std::net::SocketAddr;
+use std::path::PathBuf;
+
+/// The default database: a file under ./data/ (created on first run).
+pub const DEFAULT_DATABASE_URL: &str = "sqlite://data/pilot-ledger.db";
+
+/// pilot-ledger: business cases, an append-only benefit ledger and a ranked portfolio for
+/// instrumenting production zones.
+#[derive(Debug, Parser)]
+#[command(name = "pilot-ledger", version, about)]
+pub struct Config {
+    /// SQLite database URL.
+    #[arg(long, env = "DATABASE_URL", default_value = DEFAULT_DATABASE_URL, global = true)]
+    pub database_url: String,
+
+    /// What to do; `serve` when omitted.
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Run the web server (the default). On an empty database it migrates and loads the demo plant.
+    Serve(ServeArgs),
+    /// Apply pending migrations and exit.
+    Migrate,
+    /// Load a scenario file (zones, cases) in one transaction; nothing is stored if any part is invalid.
+    Load {
+        /// The scenario JSON file (format in DEVELOPERS.md).
+        file: PathBuf,
+    },
+}
+
+/// Flags of `serve`.
+#[derive(Debug, Clone, clap::Args)]
+pub struct ServeArgs {
+    /// Address to listen on; port 0 picks a free port (the chosen address is logged).
+    #[arg(long, env = "PILOT_LEDGER_ADDR", default_value = "127.0.0.1:8080")]
+    pub addr: SocketAddr,
+    /// Do not load the demo plant into an empty database.
+    #[arg(long, env = "PILOT_LEDGER_NO_DEMO")]
+    pub no_demo: bool,
+}
+
+impl Default for ServeArgs {
+    fn default() -> Self {
+        Self { addr: SocketAddr::from(([127, 0, 0, 1], 8080)), no_demo: false }
+    }
+}

@@ -1,0 +1,110 @@
+//! The only place with SQL: small named async functions per aggregate, returning domain types.
+//!
+//! Queries are runtime-checked (`sqlx::query` with static SQL and binds), each covered by the
+//! integration tests; we do not commit `.sqlx/` offline data. Money and rates are stored as
+//! canonical decimal TEXT and parsed back into `Decimal` here, so nothing sums money in SQL.
+//! Every write opens `BEGIN IMMEDIATE`, taking SQLite's write lock up front so that two
+//! writers never deadlock upgrading a read transaction.
+
+mod cases;
+mod scenario;
+mod site;
+mod zones;
+
+pub use cases::{CaseFull, CaseVersion};
+
+use rust_decimal::Decimal;
+use sqlx::sqlite::{SqliteConnectOptions, SqliteJournalMode, SqlitePool, SqlitePoolOptions, SqliteSynchronous};
+use sqlx::{Sqlite, Transaction};
+use std::str::FromStr;
+use std::time::Duration;
+
+/// A database failure, classified where the query was made.
+#[derive(Debug, thiserror::Error)]
+pub enum DbError {
+    /// The row asked for does not exist.
+    #[error("{0} not found")]
+    NotFound(&'static str),
+    /// A uniqueness or state rule refused the write; the message is for the user.
+    #[error("{0}")]
+    Conflict(String),
+    /// A stored value could not be read back (a bug or a hand-edited database).
+    #[error("stored value in {column} is not valid: {value:?}")]
+    Corrupt {
+        /// Column name.
+        column: &'static str,
+        /// The stored text.
+        value: String,
+    },
+    /// Anything else from SQLite or the pool.
+    #[error(transparent)]
+    Sqlx(#[from] sqlx::Error),
+    /// A migration failed.
+    #[error(transparent)]
+    Migrate(#[from] sqlx::migrate::MigrateError),
+}
+
+/// Result alias for this layer.
+pub type DbResult<T> = Result<T, DbError>;
+
+/// Who wrote, for the `*_by` columns.
+pub type Actor<'a> = &'a str;
+
+/// Open (creating if missing) the SQLite database at `url` with WAL journal, foreign keys,
+/// a busy timeout and `synchronous = FULL` (an acknowledged write is on disk).
+pub async fn connect(url: &str) -> DbResult<SqlitePool> {
+    let options = SqliteConnectOptions::from_str(url)?
+        .create_if_missing(true)
+        .journal_mode(SqliteJournalMode::Wal)
+        .synchronous(SqliteSynchronous::Full)
+        .foreign_keys(true)
+        .busy_timeout(Duration::from_secs(5));
+    let pool = SqlitePoolOptions::new().max_connections(8).connect_with(options).await?;
+    Ok(pool)
+}
+
+/// Apply the embedded migrations in `migrations/` (append-only).
+pub async fn migrate(pool: &SqlitePool) -> DbResult<()> {
+    sqlx::migrate!("./migrations").run(pool).await?;
+    Ok(())
+}
+
+/// Start a write transaction holding the write lock.
+pub async fn begin_write(pool: &SqlitePool) -> DbResult<Transaction<'static, Sqlite>> {
+    Ok(pool.begin_with("BEGIN IMMEDIATE").await?)
+}
+
+/// The current time as RFC 3339 UTC text, the one timestamp format of the database.
+pub fn now() -> String {
+    time::OffsetDateTime::now_utc().format(&time::format_description::well_known::Rfc3339).unwrap_or_default()
+}
+
+/// Parse a stored decimal column.
+fn decimal(column: &'static str, text: String) -> DbResult<Decimal> {
+    Decimal::from_str(&text).map_err(|_| DbError::Corrupt { column, value: text })
+}
+
+/// Parse a stored non-negative count column.
+fn count(column: &'static str, value: i64) -> DbResult<u32> {
+    u32::try_from(value).map_err(|_| DbError::Corrupt { column, value: value.to_string() })
+}
+
+/// Parse a stored enum column with its domain parser.
+fn parsed<T>(column: &'static str, text: String, parse: impl Fn(&str) -> Result<T, String>) -> DbResult<T> {
+    parse(&text).map_err(|_| DbError::Corrupt { column, value: text })
+}
+
+/// Map a UNIQUE violation to a user-facing conflict.
+fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
+    match &err {
+        sqlx::Error::Database(db) if db.is_unique_violation() => DbError::Conflict(message.into()),
+        _ => DbError::Sqlx(err),
+    }
+}
+
+pub use cases::{
+    add_cost, add_driver, case_full, copy_case, delete_cost, delete_driver, insert_case, list_cases, update_header,
+};
+pub use scenario::{LoadSummary, database_is_empty, load_scenario};
+pub use site::{get_site, put_site};
+pub use zones::{get_zone, insert_zone, list_zones, update_zone};

@@ -1,0 +1,88 @@
+//! Zones.
+
+use super::{DbError, DbResult, now, parsed, unique_as};
+use crate::domain::{NewZone, Zone, ZoneStatus};
+use sqlx::sqlite::SqliteRow;
+use sqlx::{Row, SqliteConnection, SqlitePool};
+
+/// `SELECT <zone columns> <rest>` as one static string.
+macro_rules! select_zone {
+    ($rest:literal) => {
+        concat!(
+            "SELECT id, code, name, description, owner, status, created_at, created_by, updated_at, updated_by ",
+            $rest
+        )
+    };
+}
+
+fn zone_from(row: &SqliteRow) -> DbResult<Zone> {
+    Ok(Zone {
+        id: row.try_get("id")?,
+        code: row.try_get("code")?,
+        name: row.try_get("name")?,
+        description: row.try_get("description")?,
+        owner: row.try_get("owner")?,
+        status: parsed("status", row.try_get("status")?, ZoneStatus::parse)?,
+        created_at: row.try_get("created_at")?,
+        created_by: row.try_get("created_by")?,
+        updated_at: row.try_get("updated_at")?,
+        updated_by: row.try_get("updated_by")?,
+    })
+}
+
+/// Every zone, by code.
+pub async fn list_zones(pool: &SqlitePool) -> DbResult<Vec<Zone>> {
+    let rows = sqlx::query(select_zone!("FROM zones ORDER BY code")).fetch_all(pool).await?;
+    rows.iter().map(zone_from).collect()
+}
+
+/// One zone.
+pub async fn get_zone(pool: &SqlitePool, id: i64) -> DbResult<Zone> {
+    let row = sqlx::query(select_zone!("FROM zones WHERE id = ?")).bind(id).fetch_optional(pool).await?;
+    row.as_ref().map(zone_from).transpose()?.ok_or(DbError::NotFound("zone"))
+}
+
+/// Insert a zone; a taken code is a conflict the user can fix.
+pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &str) -> DbResult<i64> {
+    let ts = now();
+    let id = sqlx::query_scalar(
+        "INSERT INTO zones (code, name, description, owner, status, created_at, created_by, updated_at, updated_by)
+         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
+    )
+    .bind(&zone.code)
+    .bind(&zone.name)
+    .bind(&zone.description)
+    .bind(&zone.owner)
+    .bind(zone.status.as_str())
+    .bind(&ts)
+    .bind(actor)
+    .bind(&ts)
+    .bind(actor)
+    .fetch_one(conn)
+    .await
+    .map_err(|e| unique_as(e, format!("a zone with code {} already exists", zone.code)))?;
+    Ok(id)
+}
+
+/// Replace a zone's fields.
+pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, actor: &str) -> DbResult<()> {
+    let done = sqlx::query(
+        "UPDATE zones SET code = ?, name = ?, description = ?, owner = ?, status = ?, updated_at = ?, updated_by = ?
+         WHERE id = ?",
+    )
+    .bind(&zone.code)
+    .bind(&zone.name)
+    .bind(&zone.description)
+    .bind(&zone.owner)
+    .bind(zone.status.as_str())
+    .bind(now())
+    .bind(actor)
+    .bind(id)
+    .execute(conn)
+    .await
+    .map_err(|e| unique_as(e, format!("a zone with code {} already exists", zone.code)))?;
+    if done.rows_affected() == 0 {
+        return Err(DbError::NotFound("zone"));
+    }
+    Ok(())
+}

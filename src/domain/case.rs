@@ -1,0 +1,673 @@
+//! Business cases: a scenario version's header, its cost items and its benefit drivers, and
+//! the translation into the finance engine's pure input.
+
+use super::de::{flexible_bool, string_or_number};
+use super::{FieldErrors, parse_count, parse_decimal, parse_percent, required_text};
+use crate::finance::schedule::{CaseInput, CostInput as FinCost, CostTiming, DriverInput as FinDriver, TaxInput};
+use rust_decimal::Decimal;
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+/// How a rate field was typed: forms take percentages (`2.5`), JSON and scenario files take
+/// fractions (`0.025`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RateStyle {
+    /// `2.5` means 2.5 %.
+    Percent,
+    /// `0.025` means 2.5 %.
+    Fraction,
+}
+
+impl RateStyle {
+    fn parse(self, value: &str) -> Result<Decimal, String> {
+        let v = match self {
+            Self::Percent => parse_percent(value)?,
+            Self::Fraction => parse_decimal(value)?,
+        };
+        if v <= Decimal::NEGATIVE_ONE {
+            return Err("greater than -100 %".into());
+        }
+        Ok(v)
+    }
+}
+
+/// A calendar month, `YYYY-MM`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct Month {
+    /// Year, 2000 to 2100.
+    pub year: i32,
+    /// Month 1 to 12.
+    pub month: u8,
+}
+
+impl Month {
+    /// Parse `YYYY-MM`.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        let bad = || "a month as YYYY-MM, e.g. 2026-03".to_string();
+        let (y, m) = value.trim().split_once('-').ok_or_else(bad)?;
+        let year: i32 = y.parse().map_err(|_| bad())?;
+        let month: u8 = m.parse().map_err(|_| bad())?;
+        if y.len() != 4 || m.len() != 2 || !(2000..=2100).contains(&year) || !(1..=12).contains(&month) {
+            return Err(bad());
+        }
+        Ok(Self { year, month })
+    }
+
+    /// The month `n` months later.
+    pub fn plus(self, n: u32) -> Self {
+        let index = self.year * 12 + i32::from(self.month) - 1 + n as i32;
+        Self { year: index.div_euclid(12), month: (index.rem_euclid(12) + 1) as u8 }
+    }
+}
+
+impl fmt::Display for Month {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{:04}-{:02}", self.year, self.month)
+    }
+}
+
+/// Review state of a case version (used by the approval flow of a later issue).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CaseState {
+    /// Being written.
+    Draft,
+    /// Waiting for approval.
+    Submitted,
+    /// Frozen baseline.
+    Approved,
+    /// An older approved version replaced by a newer one.
+    Superseded,
+}
+
+impl CaseState {
+    /// Stored spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Draft => "draft",
+            Self::Submitted => "submitted",
+            Self::Approved => "approved",
+            Self::Superseded => "superseded",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        match value.trim() {
+            "" | "draft" => Ok(Self::Draft),
+            "submitted" => Ok(Self::Submitted),
+            "approved" => Ok(Self::Approved),
+            "superseded" => Ok(Self::Superseded),
+            _ => Err("one of draft, submitted, approved, superseded".into()),
+        }
+    }
+}
+
+impl fmt::Display for CaseState {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Raw header fields of a case version.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(default)]
+pub struct CaseHeaderInput {
+    /// Scenario name, e.g. "Base" or "Two shifts".
+    pub label: String,
+    /// Horizon in months.
+    #[serde(deserialize_with = "string_or_number")]
+    pub horizon_months: String,
+    /// First month, `YYYY-MM`.
+    pub start_month: String,
+    /// Months from the start until go-live.
+    #[serde(deserialize_with = "string_or_number")]
+    pub go_live_offset: String,
+    /// Months of linear ramp-up after go-live.
+    #[serde(deserialize_with = "string_or_number")]
+    pub ramp_up_months: String,
+    /// Probability of technical success (fraction in JSON, percent in forms).
+    #[serde(deserialize_with = "string_or_number")]
+    pub success_probability: String,
+}
+
+/// A valid case header.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CaseHeader {
+    /// Scenario name.
+    pub label: String,
+    /// Horizon in months (1 to 240).
+    pub horizon_months: u32,
+    /// First month of the schedule (month offset 0).
+    #[serde(serialize_with = "ser_display")]
+    pub start_month: Month,
+    /// Go-live month offset; benefits start there.
+    pub go_live_offset: u32,
+    /// Ramp-up months.
+    pub ramp_up_months: u32,
+    /// Probability of technical success, 0 to 1.
+    pub success_probability: Decimal,
+}
+
+fn ser_display<S: serde::Serializer, T: fmt::Display>(v: &T, s: S) -> Result<S::Ok, S::Error> {
+    s.collect_str(v)
+}
+
+impl CaseHeader {
+    /// Validate a scenario label on its own (for copies).
+    pub fn parse_label(value: &str) -> Result<String, String> {
+        required_text(value, 80)
+    }
+
+    /// Validate the header; rates typed in `style`.
+    pub fn parse(input: &CaseHeaderInput, style: RateStyle) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let label = e.take("label", required_text(&input.label, 80));
+        let horizon = e.take("horizon_months", parse_count(&input.horizon_months, 1, 240));
+        let start = e.take("start_month", Month::parse(&input.start_month));
+        let go_live = e.take("go_live_offset", parse_count(&input.go_live_offset, 0, 239));
+        let ramp = e.take("ramp_up_months", parse_count(&input.ramp_up_months, 0, 120));
+        let p = e.take(
+            "success_probability",
+            style.parse(&input.success_probability).and_then(|p| {
+                if (Decimal::ZERO..=Decimal::ONE).contains(&p) { Ok(p) } else { Err("from 0 to 100 %".into()) }
+            }),
+        );
+        if let (Some(h), Some(g)) = (horizon, go_live)
+            && g >= h
+        {
+            e.push("go_live_offset", format!("must fall inside the horizon: 0 to {}", h - 1));
+        }
+        match (label, horizon, start, go_live, ramp, p) {
+            (
+                Some(label),
+                Some(horizon_months),
+                Some(start_month),
+                Some(go_live_offset),
+                Some(ramp_up_months),
+                Some(success_probability),
+            ) if e.is_empty() => {
+                Ok(Self { label, horizon_months, start_month, go_live_offset, ramp_up_months, success_probability })
+            }
+            _ => Err(e),
+        }
+    }
+}
+
+/// Spending category of a cost item.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CostCategory {
+    /// Sensors, edge devices, networking.
+    Hardware,
+    /// Integration engineering.
+    Integration,
+    /// Licences and subscriptions.
+    Software,
+    /// Data-engineering and upkeep time.
+    People,
+    /// Training.
+    Training,
+    /// Anything else.
+    Other,
+}
+
+impl CostCategory {
+    /// Every category (for select boxes).
+    pub const ALL: [CostCategory; 6] =
+        [Self::Hardware, Self::Integration, Self::Software, Self::People, Self::Training, Self::Other];
+
+    /// Stored spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Hardware => "hardware",
+            Self::Integration => "integration",
+            Self::Software => "software",
+            Self::People => "people",
+            Self::Training => "training",
+            Self::Other => "other",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        Self::ALL
+            .into_iter()
+            .find(|c| c.as_str() == value.trim())
+            .ok_or_else(|| "one of hardware, integration, software, people, training, other".into())
+    }
+}
+
+/// Whether a cost is paid once or every year.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CostKind {
+    /// Paid once, in its month.
+    OneOff,
+    /// Paid every year from its month, spread evenly over the months.
+    Recurring,
+}
+
+impl CostKind {
+    /// Stored spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::OneOff => "one_off",
+            Self::Recurring => "recurring",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        match value.trim() {
+            "one_off" => Ok(Self::OneOff),
+            "recurring" => Ok(Self::Recurring),
+            _ => Err("one_off or recurring".into()),
+        }
+    }
+}
+
+/// Raw cost item fields.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(default)]
+pub struct CostInput {
+    /// What is bought.
+    pub label: String,
+    /// Category.
+    pub category: String,
+    /// `one_off` or `recurring`.
+    pub kind: String,
+    /// Amount (one-off) or amount per year (recurring), positive.
+    #[serde(deserialize_with = "string_or_number")]
+    pub amount: String,
+    /// Month offset of a one-off, or first month of a recurring cost.
+    #[serde(deserialize_with = "string_or_number")]
+    pub month_offset: String,
+    /// Yearly escalation of a recurring cost.
+    #[serde(deserialize_with = "string_or_number")]
+    pub escalation: String,
+    /// Capital expenditure (depreciated in the after-tax view) rather than operating expense.
+    #[serde(deserialize_with = "flexible_bool")]
+    pub capex: bool,
+}
+
+/// A valid cost item, not yet stored.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NewCostItem {
+    /// What is bought.
+    pub label: String,
+    /// Category.
+    pub category: CostCategory,
+    /// One-off or recurring.
+    pub kind: CostKind,
+    /// Positive amount, or amount per year.
+    pub amount: Decimal,
+    /// Month offset.
+    pub month_offset: u32,
+    /// Yearly escalation fraction (recurring only; zero for one-offs).
+    pub escalation: Decimal,
+    /// Capex or opex.
+    pub capex: bool,
+}
+
+impl NewCostItem {
+    /// Validate a cost item of a case with `horizon` months.
+    pub fn parse(input: &CostInput, horizon: u32, style: RateStyle) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let label = e.take("label", required_text(&input.label, 120));
+        let category = e.take("category", CostCategory::parse(&input.category));
+        let kind = e.take("kind", CostKind::parse(&input.kind));
+        let amount = e.take("amount", parse_decimal(&input.amount).and_then(positive_money));
+        let month = e.take(
+            "month_offset",
+            parse_count(
+                if input.month_offset.trim().is_empty() { "0" } else { &input.month_offset },
+                0,
+                horizon.saturating_sub(1),
+            )
+            .map_err(|_| format!("a month offset inside the horizon: 0 to {}", horizon.saturating_sub(1))),
+        );
+        let escalation = e.take("escalation", optional_rate(&input.escalation, style));
+        match (label, category, kind, amount, month, escalation) {
+            (Some(label), Some(category), Some(kind), Some(amount), Some(month_offset), Some(escalation))
+                if e.is_empty() =>
+            {
+                Ok(Self { label, category, kind, amount, month_offset, escalation, capex: input.capex })
+            }
+            _ => Err(e),
+        }
+    }
+}
+
+/// A stored cost item.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CostItem {
+    /// Row id.
+    pub id: i64,
+    /// The validated fields.
+    #[serde(flatten)]
+    pub item: NewCostItem,
+}
+
+/// What a benefit driver saves.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DriverKind {
+    /// Scrap parts avoided.
+    Scrap,
+    /// Energy saved (kWh).
+    Energy,
+    /// Minutes of line downtime avoided.
+    Downtime,
+    /// Expert hours freed.
+    ExpertTime,
+    /// Anything else with a unit of its own.
+    Other,
+}
+
+impl DriverKind {
+    /// Every kind (for select boxes). Adding a kind: see DEVELOPERS.md.
+    pub const ALL: [DriverKind; 5] = [Self::Scrap, Self::Energy, Self::Downtime, Self::ExpertTime, Self::Other];
+
+    /// Stored spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Scrap => "scrap",
+            Self::Energy => "energy",
+            Self::Downtime => "downtime",
+            Self::ExpertTime => "expert_time",
+            Self::Other => "other",
+        }
+    }
+
+    /// Words for people.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Scrap => "Scrap avoided",
+            Self::Energy => "Energy saved",
+            Self::Downtime => "Downtime avoided",
+            Self::ExpertTime => "Expert time freed",
+            Self::Other => "Other",
+        }
+    }
+
+    /// The unit proposed for a new driver of this kind.
+    pub fn default_unit(self) -> &'static str {
+        match self {
+            Self::Scrap => "pcs",
+            Self::Energy => "kWh",
+            Self::Downtime => "min",
+            Self::ExpertTime => "h",
+            Self::Other => "unit",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        Self::ALL
+            .into_iter()
+            .find(|k| k.as_str() == value.trim())
+            .ok_or_else(|| "one of scrap, energy, downtime, expert_time, other".into())
+    }
+}
+
+/// Raw benefit driver fields.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(default)]
+pub struct DriverInput {
+    /// What is saved, in words.
+    pub label: String,
+    /// Kind.
+    pub kind: String,
+    /// Unit; empty takes the kind's default.
+    pub unit: String,
+    /// Low yearly quantity.
+    #[serde(deserialize_with = "string_or_number")]
+    pub qty_low: String,
+    /// Likely yearly quantity.
+    #[serde(deserialize_with = "string_or_number")]
+    pub qty_likely: String,
+    /// High yearly quantity.
+    #[serde(deserialize_with = "string_or_number")]
+    pub qty_high: String,
+    /// Money per unit.
+    #[serde(deserialize_with = "string_or_number")]
+    pub unit_value: String,
+    /// Yearly escalation of the unit value.
+    #[serde(deserialize_with = "string_or_number")]
+    pub escalation: String,
+}
+
+/// A valid benefit driver, not yet stored.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NewBenefitDriver {
+    /// What is saved.
+    pub label: String,
+    /// Kind.
+    pub kind: DriverKind,
+    /// Unit (pcs, kWh, min, h or a custom word).
+    pub unit: String,
+    /// Low yearly quantity.
+    pub qty_low: Decimal,
+    /// Likely yearly quantity.
+    pub qty_likely: Decimal,
+    /// High yearly quantity.
+    pub qty_high: Decimal,
+    /// Money per unit.
+    pub unit_value: Decimal,
+    /// Yearly escalation fraction.
+    pub escalation: Decimal,
+}
+
+impl NewBenefitDriver {
+    /// Validate a driver; quantities must satisfy 0 <= low <= likely <= high.
+    pub fn parse(input: &DriverInput, style: RateStyle) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let label = e.take("label", required_text(&input.label, 120));
+        let kind = e.take("kind", DriverKind::parse(&input.kind));
+        let unit = if input.unit.trim().is_empty() {
+            kind.map(|k| k.default_unit().to_string())
+        } else {
+            e.take("unit", required_text(&input.unit, 20))
+        };
+        let low = e.take("qty_low", parse_decimal(&input.qty_low).and_then(non_negative));
+        let likely = e.take("qty_likely", parse_decimal(&input.qty_likely).and_then(non_negative));
+        let high = e.take("qty_high", parse_decimal(&input.qty_high).and_then(non_negative));
+        if let (Some(l), Some(m)) = (low, likely)
+            && l > m
+        {
+            e.push("qty_low", "must not exceed the likely quantity");
+        }
+        if let (Some(m), Some(h)) = (likely, high)
+            && m > h
+        {
+            e.push("qty_high", "must be at least the likely quantity");
+        }
+        let unit_value = e.take("unit_value", parse_decimal(&input.unit_value).and_then(non_negative));
+        let escalation = e.take("escalation", optional_rate(&input.escalation, style));
+        match (label, kind, unit, low, likely, high, unit_value, escalation) {
+            (
+                Some(label),
+                Some(kind),
+                Some(unit),
+                Some(qty_low),
+                Some(qty_likely),
+                Some(qty_high),
+                Some(unit_value),
+                Some(escalation),
+            ) if e.is_empty() => Ok(Self { label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation }),
+            _ => Err(e),
+        }
+    }
+}
+
+/// A stored benefit driver.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BenefitDriver {
+    /// Row id.
+    pub id: i64,
+    /// The validated fields.
+    #[serde(flatten)]
+    pub driver: NewBenefitDriver,
+}
+
+/// A whole case as JSON bodies and scenario files give it.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(default)]
+pub struct CaseSpecInput {
+    /// Header fields.
+    #[serde(flatten)]
+    pub header: CaseHeaderInput,
+    /// Review state (scenario files only; the API always creates drafts).
+    pub state: String,
+    /// Cost items.
+    pub costs: Vec<CostInput>,
+    /// Benefit drivers.
+    pub drivers: Vec<DriverInput>,
+}
+
+/// A valid whole case.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CaseSpec {
+    /// Header.
+    #[serde(flatten)]
+    pub header: CaseHeader,
+    /// Review state.
+    pub state: CaseState,
+    /// Cost items.
+    pub costs: Vec<NewCostItem>,
+    /// Benefit drivers.
+    pub drivers: Vec<NewBenefitDriver>,
+}
+
+impl CaseSpec {
+    /// Validate header, every cost and every driver; field names carry their list position
+    /// (`costs[1].amount`).
+    pub fn parse(input: &CaseSpecInput, style: RateStyle) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let header = CaseHeader::parse(&input.header, style).map_err(|err| e.extend_prefixed("", err)).ok();
+        let state = e.take("state", CaseState::parse(&input.state));
+        let horizon = header.as_ref().map_or(240, |h| h.horizon_months);
+        let mut costs = Vec::with_capacity(input.costs.len());
+        for (i, c) in input.costs.iter().enumerate() {
+            match NewCostItem::parse(c, horizon, style) {
+                Ok(c) => costs.push(c),
+                Err(err) => e.extend_prefixed(&format!("costs[{i}]."), err),
+            }
+        }
+        let mut drivers = Vec::with_capacity(input.drivers.len());
+        for (i, d) in input.drivers.iter().enumerate() {
+            match NewBenefitDriver::parse(d, style) {
+                Ok(d) => drivers.push(d),
+                Err(err) => e.extend_prefixed(&format!("drivers[{i}]."), err),
+            }
+        }
+        match (header, state) {
+            (Some(header), Some(state)) if e.is_empty() => Ok(Self { header, state, costs, drivers }),
+            _ => Err(e),
+        }
+    }
+}
+
+/// Build the finance engine's input from a case's parts, at likely quantities.
+pub fn finance_input<'a>(
+    header: &CaseHeader,
+    costs: impl IntoIterator<Item = &'a NewCostItem>,
+    drivers: impl IntoIterator<Item = &'a NewBenefitDriver>,
+    tax: Option<TaxInput>,
+) -> CaseInput {
+    CaseInput {
+        horizon_months: header.horizon_months,
+        go_live_month: header.go_live_offset,
+        ramp_up_months: header.ramp_up_months,
+        costs: costs
+            .into_iter()
+            .map(|c| FinCost {
+                label: c.label.clone(),
+                amount: c.amount,
+                timing: match c.kind {
+                    CostKind::OneOff => CostTiming::OneOff { month: c.month_offset },
+                    CostKind::Recurring => {
+                        CostTiming::Recurring { from_month: c.month_offset, escalation: c.escalation }
+                    }
+                },
+                capex: c.capex,
+            })
+            .collect(),
+        drivers: drivers
+            .into_iter()
+            .map(|d| FinDriver {
+                label: d.label.clone(),
+                quantity_per_year: d.qty_likely,
+                unit_value: d.unit_value,
+                escalation: d.escalation,
+            })
+            .collect(),
+        tax,
+    }
+}
+
+fn positive_money(d: Decimal) -> Result<Decimal, String> {
+    if d > Decimal::ZERO { Ok(d) } else { Err("a positive amount, e.g. 12500".into()) }
+}
+
+fn non_negative(d: Decimal) -> Result<Decimal, String> {
+    if d >= Decimal::ZERO { Ok(d) } else { Err("zero or more".into()) }
+}
+
+fn optional_rate(value: &str, style: RateStyle) -> Result<Decimal, String> {
+    if value.trim().is_empty() { Ok(Decimal::ZERO) } else { style.parse(value) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn months_add_across_years() {
+        let m = Month::parse("2026-11").map(|m| m.plus(14).to_string());
+        assert_eq!(m, Ok("2028-01".to_string()));
+        assert!(Month::parse("2026-13").is_err());
+        assert!(Month::parse("26-01").is_err());
+    }
+
+    #[test]
+    fn driver_quantities_must_be_ordered() {
+        let input = DriverInput {
+            label: "Scrap".into(),
+            kind: "scrap".into(),
+            qty_low: "10".into(),
+            qty_likely: "5".into(),
+            qty_high: "20".into(),
+            unit_value: "3".into(),
+            ..Default::default()
+        };
+        let err = NewBenefitDriver::parse(&input, RateStyle::Percent).err().unwrap_or_default();
+        assert_eq!(err.get("qty_low"), Some("must not exceed the likely quantity"));
+    }
+
+    #[test]
+    fn spec_errors_carry_positions() {
+        let input = CaseSpecInput {
+            header: CaseHeaderInput {
+                label: "Base".into(),
+                horizon_months: "36".into(),
+                start_month: "2026-01".into(),
+                go_live_offset: "3".into(),
+                ramp_up_months: "2".into(),
+                success_probability: "0.8".into(),
+            },
+            costs: vec![CostInput {
+                label: "Sensors".into(),
+                category: "hardware".into(),
+                kind: "one_off".into(),
+                amount: "-5".into(),
+                ..Default::default()
+            }],
+            ..Default::default()
+        };
+        let err = CaseSpec::parse(&input, RateStyle::Fraction).err().unwrap_or_default();
+        assert_eq!(err.0.len(), 1);
+        assert_eq!(err.0[0].field, "costs[0].amount");
+    }
+}

@@ -1,0 +1,152 @@
+//! Domain types: parsed, valid values built from raw input through constructors that can fail.
+//!
+//! Raw input (form fields, JSON bodies, scenario files) is held in `*Input` structs of plain
+//! strings; `parse` turns them into domain values or a list of [`FieldError`]s naming each
+//! field. Nothing in here knows about HTTP or SQL.
+
+mod case;
+mod figures;
+mod money;
+mod scenario;
+mod site;
+mod zone;
+
+pub use case::{
+    BenefitDriver, CaseHeader, CaseHeaderInput, CaseSpec, CaseSpecInput, CaseState, CostCategory, CostInput, CostItem,
+    CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
+};
+pub use figures::{CaseFigures, View, case_figures};
+pub use money::{Money, Percent, money, parse_decimal, parse_percent, pct};
+pub use scenario::{Scenario, ZoneScenario};
+pub use site::{SiteSettings, SiteSettingsInput};
+pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
+
+use serde::Serialize;
+use std::fmt;
+
+/// One rejected input field, with a message that says what would be accepted.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct FieldError {
+    /// The field's name as the form or JSON body spells it (`costs[2].amount`).
+    pub field: String,
+    /// What is wrong and what would be accepted.
+    pub message: String,
+}
+
+/// All the field errors of one input; empty means valid.
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+#[serde(transparent)]
+pub struct FieldErrors(pub Vec<FieldError>);
+
+impl FieldErrors {
+    /// Record one error.
+    pub fn push(&mut self, field: impl Into<String>, message: impl Into<String>) {
+        self.0.push(FieldError { field: field.into(), message: message.into() });
+    }
+
+    /// The message for `field`, if it was rejected (templates show it beside the input).
+    pub fn get(&self, field: &str) -> Option<&str> {
+        self.0.iter().find(|e| e.field == field).map(|e| e.message.as_str())
+    }
+
+    /// Whether no error was recorded.
+    pub fn is_empty(&self) -> bool {
+        self.0.is_empty()
+    }
+
+    /// `Ok(value)` when nothing was recorded, else the errors.
+    pub fn into_result<T>(self, value: impl FnOnce() -> T) -> Result<T, FieldErrors> {
+        if self.is_empty() { Ok(value()) } else { Err(self) }
+    }
+
+    /// Keep `result`'s value, or record its message under `field` and return `None`.
+    pub fn take<T>(&mut self, field: &str, result: Result<T, String>) -> Option<T> {
+        match result {
+            Ok(v) => Some(v),
+            Err(message) => {
+                self.push(field, message);
+                None
+            }
+        }
+    }
+
+    /// Append another input's errors with their fields prefixed (`costs[1].` + `amount`).
+    pub fn extend_prefixed(&mut self, prefix: &str, other: FieldErrors) {
+        for e in other.0 {
+            self.push(format!("{prefix}{}", e.field), e.message);
+        }
+    }
+}
+
+impl fmt::Display for FieldErrors {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let parts: Vec<String> = self.0.iter().map(|e| format!("{}: {}", e.field, e.message)).collect();
+        f.write_str(&parts.join("; "))
+    }
+}
+
+impl std::error::Error for FieldErrors {}
+
+/// Trim a required text field, rejecting it when empty or longer than `max` characters.
+pub(crate) fn required_text(value: &str, max: usize) -> Result<String, String> {
+    let v = value.trim();
+    if v.is_empty() {
+        Err("required: enter some text".into())
+    } else if v.chars().count() > max {
+        Err(format!("at most {max} characters"))
+    } else {
+        Ok(v.to_string())
+    }
+}
+
+/// Trim an optional text field, rejecting it only when longer than `max` characters.
+pub(crate) fn optional_text(value: &str, max: usize) -> Result<String, String> {
+    let v = value.trim();
+    if v.chars().count() > max { Err(format!("at most {max} characters")) } else { Ok(v.to_string()) }
+}
+
+/// Parse a whole number within `min..=max`.
+pub(crate) fn parse_count(value: &str, min: u32, max: u32) -> Result<u32, String> {
+    match value.trim().parse::<u32>() {
+        Ok(n) if (min..=max).contains(&n) => Ok(n),
+        _ => Err(format!("a whole number from {min} to {max}")),
+    }
+}
+
+/// Lenient deserializers: JSON bodies may give numbers as strings or numbers, and flags as
+/// booleans or form-style strings.
+pub(crate) mod de {
+    use serde::{Deserialize, Deserializer};
+
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Raw {
+        Text(String),
+        Int(i64),
+        Float(f64),
+        Bool(bool),
+    }
+
+    /// Accept `"1.5"`, `1.5`, `2` or null (empty string) and keep the text as given.
+    pub fn string_or_number<'de, D: Deserializer<'de>>(d: D) -> Result<String, D::Error> {
+        Ok(match Option::<Raw>::deserialize(d)? {
+            None => String::new(),
+            Some(Raw::Text(s)) => s,
+            Some(Raw::Int(i)) => i.to_string(),
+            // Shortest round-trip text of the double, which is what the sender typed.
+            Some(Raw::Float(f)) => f.to_string(),
+            Some(Raw::Bool(b)) => b.to_string(),
+        })
+    }
+
+    /// Accept `true`/`false`, or the strings a checkbox or CSV may send (`on`, `1`, `yes`).
+    pub fn flexible_bool<'de, D: Deserializer<'de>>(d: D) -> Result<bool, D::Error> {
+        Ok(match Option::<Raw>::deserialize(d)? {
+            None => false,
+            Some(Raw::Bool(b)) => b,
+            Some(Raw::Int(i)) => i != 0,
+            Some(Raw::Float(f)) => f != 0.0,
+            Some(Raw::Text(s)) => matches!(s.trim().to_ascii_lowercase().as_str(), "on" | "true" | "1" | "yes"),
+        })
+    }
+}

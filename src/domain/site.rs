@@ -1,0 +1,133 @@
+//! Site settings: currency, hurdle rate, tax view and defaults.
+
+use super::de::string_or_number;
+use super::{FieldErrors, parse_count, parse_decimal, required_text};
+use rust_decimal::Decimal;
+use serde::{Deserialize, Serialize};
+
+/// The plant's settings, one row per database.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SiteSettings {
+    /// Display name of the (fictional) plant.
+    pub plant_name: String,
+    /// ISO 4217 currency code, shown once per table.
+    pub currency: String,
+    /// Annual hurdle rate as a fraction (0.1 = 10 %).
+    pub hurdle_rate: Decimal,
+    /// Tax rate as a fraction; `None` shows only the pre-tax view.
+    pub tax_rate: Option<Decimal>,
+    /// Straight-line depreciation years for capex in the after-tax view.
+    pub depreciation_years: Option<u32>,
+    /// Horizon proposed for a new case.
+    pub default_horizon_months: u32,
+    /// Multiplier from analytics usage hours to saved expert hours (rule of thumb, see DESIGN).
+    pub expert_multiplier: Decimal,
+}
+
+/// Raw settings as a scenario file gives them (rates as fractions).
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(default)]
+pub struct SiteSettingsInput {
+    /// Plant name.
+    pub plant_name: String,
+    /// Currency code.
+    pub currency: String,
+    /// Annual hurdle rate, fraction.
+    #[serde(deserialize_with = "string_or_number")]
+    pub hurdle_rate: String,
+    /// Tax rate, fraction; empty for none.
+    #[serde(deserialize_with = "string_or_number")]
+    pub tax_rate: String,
+    /// Depreciation years; empty for none.
+    #[serde(deserialize_with = "string_or_number")]
+    pub depreciation_years: String,
+    /// Default horizon in months; empty for 60.
+    #[serde(deserialize_with = "string_or_number")]
+    pub default_horizon_months: String,
+    /// Expert-time multiplier; empty for 3.
+    #[serde(deserialize_with = "string_or_number")]
+    pub expert_multiplier: String,
+}
+
+impl SiteSettings {
+    /// Validate every field.
+    pub fn parse(input: &SiteSettingsInput) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let plant_name = e.take("plant_name", required_text(&input.plant_name, 120));
+        let currency = e.take("currency", parse_currency(&input.currency));
+        let hurdle_rate = e.take("hurdle_rate", parse_rate(&input.hurdle_rate));
+        let tax_rate = if input.tax_rate.trim().is_empty() {
+            Some(None)
+        } else {
+            e.take("tax_rate", parse_decimal(&input.tax_rate).and_then(fraction_0_1).map(Some))
+        };
+        let depreciation_years = if input.depreciation_years.trim().is_empty() {
+            Some(None)
+        } else {
+            e.take("depreciation_years", parse_count(&input.depreciation_years, 1, 50).map(Some))
+        };
+        let default_horizon_months = if input.default_horizon_months.trim().is_empty() {
+            Some(60)
+        } else {
+            e.take("default_horizon_months", parse_count(&input.default_horizon_months, 1, 240))
+        };
+        let expert_multiplier = if input.expert_multiplier.trim().is_empty() {
+            Some(Decimal::from(3))
+        } else {
+            e.take("expert_multiplier", parse_decimal(&input.expert_multiplier))
+        };
+        match (
+            plant_name,
+            currency,
+            hurdle_rate,
+            tax_rate,
+            depreciation_years,
+            default_horizon_months,
+            expert_multiplier,
+        ) {
+            (
+                Some(plant_name),
+                Some(currency),
+                Some(hurdle_rate),
+                Some(tax_rate),
+                Some(depreciation_years),
+                Some(default_horizon_months),
+                Some(expert_multiplier),
+            ) if e.is_empty() => Ok(Self {
+                plant_name,
+                currency,
+                hurdle_rate,
+                tax_rate,
+                depreciation_years,
+                default_horizon_months,
+                expert_multiplier,
+            }),
+            _ => Err(e),
+        }
+    }
+
+    /// The annual hurdle rate as the finance engine takes it.
+    pub fn hurdle_f64(&self) -> f64 {
+        use rust_decimal::prelude::ToPrimitive;
+        self.hurdle_rate.to_f64().unwrap_or(0.0)
+    }
+}
+
+fn parse_currency(value: &str) -> Result<String, String> {
+    let c = value.trim().to_uppercase();
+    if c.len() == 3 && c.chars().all(|ch| ch.is_ascii_uppercase()) {
+        Ok(c)
+    } else {
+        Err("a three-letter ISO 4217 code such as EUR".into())
+    }
+}
+
+/// A rate fraction greater than -1 (so that 1 + r stays positive).
+fn parse_rate(value: &str) -> Result<Decimal, String> {
+    let r = parse_decimal(value)?;
+    if r > Decimal::NEGATIVE_ONE { Ok(r) } else { Err("a fraction greater than -1, e.g. 0.08 for 8 %".into()) }
+}
+
+fn fraction_0_1(d: Decimal) -> Result<Decimal, String> {
+    if (Decimal::ZERO..=Decimal::ONE).contains(&d) { Ok(d) } else { Err("a fraction from 0 to 1, e.g. 0.25".into()) }
+}

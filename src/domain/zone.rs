@@ -1,0 +1,160 @@
+//! Production zones: the places a pilot instruments, and their lifecycle.
+
+use super::{FieldErrors, optional_text, required_text};
+use serde::{Deserialize, Serialize};
+
+/// Where a zone stands in the programme. Words of our own, in lifecycle order.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ZoneStatus {
+    /// Scored, not yet chosen.
+    Candidate,
+    /// Business case approved, pilot not started.
+    Approved,
+    /// Sensors and analytics being installed.
+    Piloting,
+    /// Live; the controller books measured savings.
+    Measuring,
+    /// Measurement finished.
+    Closed,
+    /// Set aside; never selected.
+    Shelved,
+}
+
+impl ZoneStatus {
+    /// Every status, in lifecycle order (for select boxes).
+    pub const ALL: [ZoneStatus; 6] =
+        [Self::Candidate, Self::Approved, Self::Piloting, Self::Measuring, Self::Closed, Self::Shelved];
+
+    /// The stored and serialized spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Candidate => "candidate",
+            Self::Approved => "approved",
+            Self::Piloting => "piloting",
+            Self::Measuring => "measuring",
+            Self::Closed => "closed",
+            Self::Shelved => "shelved",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        Self::ALL
+            .into_iter()
+            .find(|s| s.as_str() == value.trim())
+            .ok_or_else(|| "one of candidate, approved, piloting, measuring, closed, shelved".to_string())
+    }
+}
+
+impl std::fmt::Display for ZoneStatus {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Raw zone fields as a form or JSON body sends them.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(default)]
+pub struct ZoneInput {
+    /// Short unique code, e.g. `PRESS-2`.
+    pub code: String,
+    /// Display name.
+    pub name: String,
+    /// Free text.
+    pub description: String,
+    /// Who answers for the zone (a role or team, not personal data about operators).
+    pub owner: String,
+    /// Lifecycle status; empty means candidate.
+    pub status: String,
+}
+
+/// A valid zone, ready to store.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct NewZone {
+    /// Upper-case code of letters, digits and dashes.
+    pub code: String,
+    /// Display name.
+    pub name: String,
+    /// Free text.
+    pub description: String,
+    /// Owner.
+    pub owner: String,
+    /// Lifecycle status.
+    pub status: ZoneStatus,
+}
+
+impl NewZone {
+    /// Validate every field, collecting all errors.
+    pub fn parse(input: &ZoneInput) -> Result<Self, FieldErrors> {
+        let mut errors = FieldErrors::default();
+        let code = errors.take("code", parse_code(&input.code));
+        let name = errors.take("name", required_text(&input.name, 120));
+        let description = errors.take("description", optional_text(&input.description, 2000));
+        let owner = errors.take("owner", optional_text(&input.owner, 120));
+        let status = if input.status.trim().is_empty() {
+            Some(ZoneStatus::Candidate)
+        } else {
+            errors.take("status", ZoneStatus::parse(&input.status))
+        };
+        match (code, name, description, owner, status) {
+            (Some(code), Some(name), Some(description), Some(owner), Some(status)) if errors.is_empty() => {
+                Ok(Self { code, name, description, owner, status })
+            }
+            _ => Err(errors),
+        }
+    }
+}
+
+fn parse_code(value: &str) -> Result<String, String> {
+    let code = value.trim().to_uppercase();
+    let ok = (1..=16).contains(&code.len())
+        && code.chars().all(|c| c.is_ascii_uppercase() || c.is_ascii_digit() || c == '-');
+    if ok { Ok(code) } else { Err("1 to 16 letters, digits or dashes, e.g. PRESS-2".into()) }
+}
+
+/// A stored zone.
+#[derive(Debug, Clone, Serialize)]
+pub struct Zone {
+    /// Row id.
+    pub id: i64,
+    /// Unique code.
+    pub code: String,
+    /// Display name.
+    pub name: String,
+    /// Free text.
+    pub description: String,
+    /// Owner.
+    pub owner: String,
+    /// Lifecycle status.
+    pub status: ZoneStatus,
+    /// RFC 3339 creation time.
+    pub created_at: String,
+    /// Who created it.
+    pub created_by: String,
+    /// RFC 3339 time of the last change.
+    pub updated_at: String,
+    /// Who changed it last.
+    pub updated_by: String,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_bad_field_is_named() {
+        let input =
+            ZoneInput { code: "no spaces!".into(), name: " ".into(), status: "busy".into(), ..Default::default() };
+        let errors = NewZone::parse(&input).err().unwrap_or_default();
+        let fields: Vec<&str> = errors.0.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(fields, ["code", "name", "status"]);
+    }
+
+    #[test]
+    fn code_is_upper_cased() {
+        let input = ZoneInput { code: "weld-1".into(), name: "Weld cell".into(), ..Default::default() };
+        let zone = NewZone::parse(&input).map(|z| z.code);
+        assert_eq!(zone, Ok("WELD-1".to_string()));
+    }
+}

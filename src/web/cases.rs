@@ -1,0 +1,469 @@
+//! Business-case pages: figures with the chart, the monthly table, the editor, scenario copies
+//! and the side-by-side comparison.
+
+use super::chart::LineChart;
+use super::{ACTOR, AppError, AppState, FormBody};
+use crate::db::{self, CaseFull};
+use crate::domain::{
+    CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DriverInput, DriverKind, FieldErrors, Money,
+    NewBenefitDriver, NewCostItem, Percent, RateStyle, SiteSettings, Zone, case_figures,
+};
+use crate::finance::schedule::CaseMetrics;
+use crate::finance::{FinanceError, Payback};
+use askama::Template;
+use axum::extract::{Path, Query, State};
+use axum::http::StatusCode;
+use axum::response::{Html, IntoResponse, Redirect, Response};
+use rust_decimal::Decimal;
+use serde::Deserialize;
+
+/// Metrics formatted as the pages show them.
+pub struct MetricsView {
+    /// NPV at the hurdle rate.
+    pub npv: Money,
+    /// Whether NPV is below zero (a text cue goes beside it).
+    pub npv_negative: bool,
+    /// Annualized IRR, or why there is none.
+    pub irr: String,
+    /// Annualized MIRR, or a dash.
+    pub mirr: String,
+    /// Simple payback in months, or "not reached".
+    pub payback: String,
+    /// Discounted payback in months, or "not reached".
+    pub discounted_payback: String,
+    /// Profitability index, or a dash.
+    pub pi: String,
+    /// PV of benefits.
+    pub pv_benefits: Money,
+    /// PV of costs (negative).
+    pub pv_costs: Money,
+    /// Sum of one-off outlays.
+    pub total_one_off: Money,
+    /// Cautions about the figures (ambiguous IRR, payback reversing).
+    pub warnings: Vec<String>,
+}
+
+fn payback_text(p: &Option<Payback>, what: &str, warnings: &mut Vec<String>) -> String {
+    match p {
+        Some(p) => {
+            if p.turns_negative_again {
+                warnings.push(format!("The {what} turns negative again after the payback month."));
+            }
+            format!("{} months", p.periods.round_dp(1))
+        }
+        None => "not reached".into(),
+    }
+}
+
+impl From<&CaseMetrics> for MetricsView {
+    fn from(m: &CaseMetrics) -> Self {
+        let mut warnings = Vec::new();
+        let irr = match (&m.irr, m.irr_annual) {
+            (Ok(outcome), Some(annual)) => {
+                if outcome.ambiguous {
+                    let roots: Vec<String> = outcome.roots.iter().map(|r| Percent(annual_of(*r)).to_string()).collect();
+                    warnings.push(format!(
+                        "The cash flow changes sign more than once: IRR is ambiguous (roots {}); let NPV and MIRR decide.",
+                        roots.join(", ")
+                    ));
+                }
+                Percent(annual).to_string()
+            }
+            (Ok(_), None) => "none".into(),
+            (Err(FinanceError::NoSignChange), _) => "none: the flows never change sign".into(),
+            (Err(e), _) => format!("none: {e}"),
+        };
+        let payback = payback_text(&m.payback_months, "cumulative cash flow", &mut warnings);
+        let discounted_payback =
+            payback_text(&m.discounted_payback_months, "cumulative discounted cash flow", &mut warnings);
+        Self {
+            npv: Money(m.npv),
+            npv_negative: m.npv < Decimal::ZERO,
+            irr,
+            mirr: m.mirr_annual.map_or_else(|| "–".into(), |r| Percent(r).to_string()),
+            payback,
+            discounted_payback,
+            pi: m.profitability_index.map_or_else(|| "–".into(), |p| p.round_dp(2).to_string()),
+            pv_benefits: Money(m.pv_benefits),
+            pv_costs: Money(m.pv_costs),
+            total_one_off: Money(m.total_one_off),
+            warnings,
+        }
+    }
+}
+
+/// Annualize a monthly rate for display.
+fn annual_of(monthly: f64) -> f64 {
+    (1.0 + monthly).powi(12) - 1.0
+}
+
+/// Load a case and compute its figures at the site's settings.
+pub async fn load_figures(state: &AppState, id: i64, site: &SiteSettings) -> Result<(CaseFull, CaseFigures), AppError> {
+    let full = db::case_full(&state.pool, id).await?;
+    let figures = figures_of(&full, site)?;
+    Ok((full, figures))
+}
+
+fn figures_of(full: &CaseFull, site: &SiteSettings) -> Result<CaseFigures, AppError> {
+    case_figures(&full.case.header, full.costs.iter().map(|c| &c.item), full.drivers.iter().map(|d| &d.driver), site)
+        .map_err(|e| AppError::Conflict(format!("the case cannot be computed: {e}")))
+}
+
+#[derive(Template)]
+#[template(path = "cases/view.html")]
+struct ViewPage {
+    site: SiteSettings,
+    zone: Zone,
+    full: CaseFull,
+    m: MetricsView,
+    after_tax: Option<MetricsView>,
+    chart: LineChart,
+    editable: bool,
+}
+
+/// GET /cases/{id}: the figures and the cumulative discounted cash-flow chart.
+pub async fn view(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Html<String>, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let (full, figures) = load_figures(&state, id, &site).await?;
+    let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
+    let pre = &figures.pre_tax;
+    let cumulative: Vec<Decimal> = pre.schedule.rows.iter().map(|r| r.cumulative_discounted).collect();
+    let chart = LineChart::cumulative(
+        &cumulative,
+        pre.metrics.discounted_payback_months.as_ref().map(|p| p.periods),
+        "The cumulative discounted cash flow",
+    );
+    let page = ViewPage {
+        m: MetricsView::from(&pre.metrics),
+        after_tax: figures.after_tax.as_ref().map(|v| MetricsView::from(&v.metrics)),
+        site,
+        zone,
+        full,
+        chart,
+        editable: false,
+    };
+    Ok(Html(page.render()?))
+}
+
+/// One row of the monthly table, formatted.
+pub struct FlowRow {
+    month: u32,
+    calendar: String,
+    one_off: Money,
+    recurring: Money,
+    benefits: Money,
+    tax: Money,
+    net: Money,
+    discounted: Money,
+    cumulative: Money,
+    cumulative_discounted: Money,
+}
+
+#[derive(Template)]
+#[template(path = "cases/flows.html")]
+struct FlowsPage {
+    site: SiteSettings,
+    zone: Zone,
+    full: CaseFull,
+    rows: Vec<FlowRow>,
+    after_tax: bool,
+    monthly_rate: Percent,
+}
+
+#[derive(Deserialize)]
+pub struct FlowsQuery {
+    #[serde(default)]
+    view: String,
+}
+
+/// GET /cases/{id}/flows: the monthly cash-flow table behind the NPV (`?view=after_tax`).
+pub async fn flows(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    Query(q): Query<FlowsQuery>,
+) -> Result<Html<String>, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let (full, figures) = load_figures(&state, id, &site).await?;
+    let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
+    let (view, after_tax) = match (&figures.after_tax, q.view.as_str()) {
+        (Some(v), "after_tax") => (v, true),
+        _ => (&figures.pre_tax, false),
+    };
+    let start = full.case.header.start_month;
+    let rows = view
+        .schedule
+        .rows
+        .iter()
+        .map(|r| FlowRow {
+            month: r.month,
+            calendar: start.plus(r.month).to_string(),
+            one_off: Money(r.one_off),
+            recurring: Money(r.recurring),
+            benefits: Money(r.benefits),
+            tax: Money(r.tax),
+            net: Money(r.net),
+            discounted: Money(r.discounted),
+            cumulative: Money(r.cumulative),
+            cumulative_discounted: Money(r.cumulative_discounted),
+        })
+        .collect();
+    let monthly_rate = Percent(view.schedule.monthly_rate);
+    Ok(Html(FlowsPage { site, zone, full, rows, after_tax, monthly_rate }.render()?))
+}
+
+#[derive(Template)]
+#[template(path = "cases/edit.html")]
+struct EditPage {
+    site: SiteSettings,
+    zone: Zone,
+    full: CaseFull,
+    header: CaseHeaderInput,
+    header_errors: FieldErrors,
+    cost: CostInput,
+    cost_errors: FieldErrors,
+    driver: DriverInput,
+    driver_errors: FieldErrors,
+    categories: [CostCategory; 6],
+    kinds: [DriverKind; 5],
+    editable: bool,
+    notice: Option<String>,
+    value_unit: String,
+}
+
+/// Which form of the editor failed, with its raw input and errors.
+enum Failed {
+    Nothing,
+    Header(CaseHeaderInput, FieldErrors),
+    Cost(CostInput, FieldErrors),
+    Driver(DriverInput, FieldErrors),
+    Notice(String),
+}
+
+fn header_input(h: &CaseHeader) -> CaseHeaderInput {
+    CaseHeaderInput {
+        label: h.label.clone(),
+        horizon_months: h.horizon_months.to_string(),
+        start_month: h.start_month.to_string(),
+        go_live_offset: h.go_live_offset.to_string(),
+        ramp_up_months: h.ramp_up_months.to_string(),
+        success_probability: (h.success_probability * Decimal::ONE_HUNDRED).normalize().to_string(),
+    }
+}
+
+async fn edit_page(state: &AppState, id: i64, failed: Failed) -> Result<Response, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let full = db::case_full(&state.pool, id).await?;
+    let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
+    let mut page = EditPage {
+        header: header_input(&full.case.header),
+        header_errors: FieldErrors::default(),
+        cost: CostInput { kind: "one_off".into(), category: "hardware".into(), capex: true, ..Default::default() },
+        cost_errors: FieldErrors::default(),
+        driver: DriverInput { kind: "scrap".into(), ..Default::default() },
+        driver_errors: FieldErrors::default(),
+        categories: CostCategory::ALL,
+        kinds: DriverKind::ALL,
+        editable: full.case.state == crate::domain::CaseState::Draft,
+        notice: None,
+        value_unit: format!("{} / unit", site.currency),
+        site,
+        zone,
+        full,
+    };
+    let status = match failed {
+        Failed::Nothing => StatusCode::OK,
+        Failed::Header(input, e) => {
+            (page.header, page.header_errors) = (input, e);
+            StatusCode::UNPROCESSABLE_ENTITY
+        }
+        Failed::Cost(input, e) => {
+            (page.cost, page.cost_errors) = (input, e);
+            StatusCode::UNPROCESSABLE_ENTITY
+        }
+        Failed::Driver(input, e) => {
+            (page.driver, page.driver_errors) = (input, e);
+            StatusCode::UNPROCESSABLE_ENTITY
+        }
+        Failed::Notice(msg) => {
+            page.notice = Some(msg);
+            StatusCode::CONFLICT
+        }
+    };
+    Ok((status, Html(page.render()?)).into_response())
+}
+
+/// GET /cases/{id}/edit
+pub async fn edit(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Response, AppError> {
+    edit_page(&state, id, Failed::Nothing).await
+}
+
+/// Commit a write and go back to the editor, or show the editor with the refusal.
+async fn write_then_edit<F>(state: &AppState, id: i64, write: F) -> Result<Response, AppError>
+where
+    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<(), db::DbError>,
+{
+    let mut tx = db::begin_write(&state.pool).await?;
+    match write(&mut tx).await {
+        Ok(()) => {
+            tx.commit().await?;
+            Ok(Redirect::to(&format!("/cases/{id}/edit")).into_response())
+        }
+        Err(db::DbError::Conflict(msg)) => edit_page(state, id, Failed::Notice(msg)).await,
+        Err(other) => Err(other.into()),
+    }
+}
+
+/// POST /cases/{id}/edit: change the header of a draft.
+pub async fn update_header(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    FormBody(input): FormBody<CaseHeaderInput>,
+) -> Result<Response, AppError> {
+    match CaseHeader::parse(&input, RateStyle::Percent) {
+        Ok(header) => write_then_edit(&state, id, async |conn| db::update_header(conn, id, &header, ACTOR).await).await,
+        Err(e) => edit_page(&state, id, Failed::Header(input, e)).await,
+    }
+}
+
+/// POST /cases/{id}/costs: add a cost item to a draft.
+pub async fn add_cost(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    FormBody(input): FormBody<CostInput>,
+) -> Result<Response, AppError> {
+    let full = db::case_full(&state.pool, id).await?;
+    match NewCostItem::parse(&input, full.case.header.horizon_months, RateStyle::Percent) {
+        Ok(item) => {
+            write_then_edit(&state, id, async |conn| db::add_cost(conn, id, &item, ACTOR).await.map(drop)).await
+        }
+        Err(e) => edit_page(&state, id, Failed::Cost(input, e)).await,
+    }
+}
+
+/// POST /cases/{id}/drivers: add a benefit driver to a draft.
+pub async fn add_driver(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    FormBody(input): FormBody<DriverInput>,
+) -> Result<Response, AppError> {
+    match NewBenefitDriver::parse(&input, RateStyle::Percent) {
+        Ok(d) => write_then_edit(&state, id, async |conn| db::add_driver(conn, id, &d, ACTOR).await.map(drop)).await,
+        Err(e) => edit_page(&state, id, Failed::Driver(input, e)).await,
+    }
+}
+
+/// POST /cases/{id}/costs/{item}/delete
+pub async fn delete_cost(
+    State(state): State<AppState>,
+    Path((id, item)): Path<(i64, i64)>,
+) -> Result<Response, AppError> {
+    write_then_edit(&state, id, async |conn| db::delete_cost(conn, id, item, ACTOR).await).await
+}
+
+/// POST /cases/{id}/drivers/{item}/delete
+pub async fn delete_driver(
+    State(state): State<AppState>,
+    Path((id, item)): Path<(i64, i64)>,
+) -> Result<Response, AppError> {
+    write_then_edit(&state, id, async |conn| db::delete_driver(conn, id, item, ACTOR).await).await
+}
+
+#[derive(Deserialize)]
+pub struct CopyForm {
+    #[serde(default)]
+    label: String,
+}
+
+/// POST /cases/{id}/copy: save this version as the zone's next scenario version.
+pub async fn copy(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    FormBody(form): FormBody<CopyForm>,
+) -> Result<Response, AppError> {
+    let label = match crate::domain::CaseHeader::parse_label(&form.label) {
+        Ok(l) => l,
+        Err(msg) => {
+            let mut e = FieldErrors::default();
+            e.push("label", msg);
+            return Err(AppError::Invalid(e));
+        }
+    };
+    let mut tx = db::begin_write(&state.pool).await?;
+    let new_id = db::copy_case(&mut tx, id, &label, ACTOR).await?;
+    tx.commit().await?;
+    Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
+}
+
+/// One compared metric: name, both values, and which is better in words.
+pub struct CompareRow {
+    name: &'static str,
+    a: String,
+    b: String,
+}
+
+#[derive(Template)]
+#[template(path = "cases/compare.html")]
+struct ComparePage {
+    site: SiteSettings,
+    zone: Zone,
+    versions: Vec<db::CaseVersion>,
+    a: Option<CaseFull>,
+    b: Option<CaseFull>,
+    rows: Vec<CompareRow>,
+    npv_difference: Option<Money>,
+}
+
+#[derive(Deserialize)]
+pub struct CompareQuery {
+    a: Option<i64>,
+    b: Option<i64>,
+}
+
+/// GET /zones/{id}/compare?a=&b=: two scenario versions side by side.
+pub async fn compare(
+    State(state): State<AppState>,
+    Path(zone_id): Path<i64>,
+    Query(q): Query<CompareQuery>,
+) -> Result<Html<String>, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let zone = db::get_zone(&state.pool, zone_id).await?;
+    let versions = db::list_cases(&state.pool, zone_id).await?;
+    let pick =
+        |id: Option<i64>, fallback: Option<i64>| id.or(fallback).filter(|id| versions.iter().any(|v| v.id == *id));
+    let n = versions.len();
+    let a_id = pick(q.a, versions.get(n.saturating_sub(2)).map(|v| v.id));
+    let b_id = pick(q.b, versions.last().map(|v| v.id));
+    let (mut a, mut b, mut rows, mut npv_difference) = (None, None, Vec::new(), None);
+    if let (Some(a_id), Some(b_id)) = (a_id, b_id) {
+        let (fa, xa) = load_figures(&state, a_id, &site).await?;
+        let (fb, xb) = load_figures(&state, b_id, &site).await?;
+        let (ma, mb) = (MetricsView::from(&xa.pre_tax.metrics), MetricsView::from(&xb.pre_tax.metrics));
+        npv_difference = Some(Money(xb.pre_tax.metrics.npv - xa.pre_tax.metrics.npv));
+        rows = vec![
+            CompareRow { name: "NPV", a: ma.npv.to_string(), b: mb.npv.to_string() },
+            CompareRow { name: "IRR (annual)", a: ma.irr, b: mb.irr },
+            CompareRow { name: "MIRR (annual)", a: ma.mirr, b: mb.mirr },
+            CompareRow { name: "Payback", a: ma.payback, b: mb.payback },
+            CompareRow { name: "Discounted payback", a: ma.discounted_payback, b: mb.discounted_payback },
+            CompareRow { name: "Profitability index", a: ma.pi, b: mb.pi },
+            CompareRow { name: "One-off outlays", a: ma.total_one_off.to_string(), b: mb.total_one_off.to_string() },
+            CompareRow { name: "PV of benefits", a: ma.pv_benefits.to_string(), b: mb.pv_benefits.to_string() },
+            CompareRow { name: "PV of costs", a: ma.pv_costs.to_string(), b: mb.pv_costs.to_string() },
+            CompareRow {
+                name: "Horizon (months)",
+                a: fa.case.header.horizon_months.to_string(),
+                b: fb.case.header.horizon_months.to_string(),
+            },
+            CompareRow {
+                name: "Go-live month",
+                a: fa.case.header.go_live_offset.to_string(),
+                b: fb.case.header.go_live_offset.to_string(),
+            },
+            CompareRow { name: "Cost items", a: fa.costs.len().to_string(), b: fb.costs.len().to_string() },
+            CompareRow { name: "Benefit drivers", a: fa.drivers.len().to_string(), b: fb.drivers.len().to_string() },
+        ];
+        a = Some(fa);
+        b = Some(fb);
+    }
+    Ok(Html(ComparePage { site, zone, versions, a, b, rows, npv_difference }.render()?))
+}

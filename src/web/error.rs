@@ -1,0 +1,148 @@
+//! The web layer's one error type, mapped to HTTP in one place. Pages get the error template;
+//! `/api/v1` gets JSON (the [`ApiError`] wrapper). Details are logged, never shown.
+
+use crate::db::DbError;
+use crate::domain::FieldErrors;
+use askama::Template;
+use axum::Json;
+use axum::http::StatusCode;
+use axum::response::{Html, IntoResponse, Response};
+use serde_json::json;
+
+/// Everything a handler can fail with.
+#[derive(Debug, thiserror::Error)]
+pub enum AppError {
+    /// Input fields were rejected (422); each names its field.
+    #[error("some fields are not valid: {0}")]
+    Invalid(FieldErrors),
+    /// The body could not be read as the expected format (400 or 415).
+    #[error("{message}")]
+    BadRequest {
+        /// Status to answer with.
+        status: StatusCode,
+        /// What was wrong.
+        message: String,
+    },
+    /// No such thing (404).
+    #[error("{0} not found")]
+    NotFound(&'static str),
+    /// The request conflicts with stored state (409), e.g. a taken zone code.
+    #[error("{0}")]
+    Conflict(String),
+    /// A failure that is ours, not the user's (500; logged with detail).
+    #[error("internal error")]
+    Internal(#[source] anyhow::Error),
+}
+
+impl AppError {
+    /// The HTTP status for this error.
+    pub fn status(&self) -> StatusCode {
+        match self {
+            Self::Invalid(_) => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::BadRequest { status, .. } => *status,
+            Self::NotFound(_) => StatusCode::NOT_FOUND,
+            Self::Conflict(_) => StatusCode::CONFLICT,
+            Self::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
+        }
+    }
+
+    /// What the user is told.
+    pub fn public_message(&self) -> String {
+        match self {
+            Self::Internal(_) => {
+                "Something went wrong on our side; nothing was changed. The details are in the server log.".into()
+            }
+            other => other.to_string(),
+        }
+    }
+
+    fn log(&self) {
+        if let Self::Internal(e) = self {
+            tracing::error!(error = ?e, "request failed");
+        }
+    }
+}
+
+impl From<DbError> for AppError {
+    fn from(e: DbError) -> Self {
+        match e {
+            DbError::NotFound(what) => Self::NotFound(what),
+            DbError::Conflict(msg) => Self::Conflict(msg),
+            other => Self::Internal(other.into()),
+        }
+    }
+}
+
+impl From<FieldErrors> for AppError {
+    fn from(e: FieldErrors) -> Self {
+        Self::Invalid(e)
+    }
+}
+
+impl From<askama::Error> for AppError {
+    fn from(e: askama::Error) -> Self {
+        Self::Internal(e.into())
+    }
+}
+
+impl From<sqlx::Error> for AppError {
+    fn from(e: sqlx::Error) -> Self {
+        DbError::from(e).into()
+    }
+}
+
+/// The error page.
+#[derive(Template)]
+#[template(path = "error.html")]
+struct ErrorPage {
+    status: u16,
+    reason: &'static str,
+    message: String,
+    fields: FieldErrors,
+}
+
+impl IntoResponse for AppError {
+    fn into_response(self) -> Response {
+        self.log();
+        let status = self.status();
+        let fields = match &self {
+            Self::Invalid(f) => f.clone(),
+            _ => FieldErrors::default(),
+        };
+        let page = ErrorPage {
+            status: status.as_u16(),
+            reason: status.canonical_reason().unwrap_or("Error"),
+            message: self.public_message(),
+            fields,
+        };
+        match page.render() {
+            Ok(html) => (status, Html(html)).into_response(),
+            Err(e) => {
+                tracing::error!(error = ?e, "error page failed to render");
+                (status, self.public_message()).into_response()
+            }
+        }
+    }
+}
+
+/// [`AppError`] answered as JSON: `{"error": "...", "fields": [{"field", "message"}]}`.
+#[derive(Debug)]
+pub struct ApiError(pub AppError);
+
+impl<E: Into<AppError>> From<E> for ApiError {
+    fn from(e: E) -> Self {
+        Self(e.into())
+    }
+}
+
+impl IntoResponse for ApiError {
+    fn into_response(self) -> Response {
+        self.0.log();
+        let fields = match &self.0 {
+            AppError::Invalid(f) => f.clone(),
+            _ => FieldErrors::default(),
+        };
+        let body = json!({ "error": self.0.public_message(), "fields": fields });
+        (self.0.status(), Json(body)).into_response()
+    }
+}

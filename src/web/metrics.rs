@@ -1,0 +1,184 @@
+//! `POST /api/v1/metrics`: the stateless metrics endpoint (contract in the OpenAPI document).
+//!
+//! Body `{"rate", "flows", optional "dates", "finance_rate", "reinvest_rate"}`; numbers may be
+//! JSON strings or numbers; rates are fractions per period. Answers NPV, IRR (with every root
+//! when ambiguous), MIRR, payback, discounted payback, PI, and XNPV / XIRR when dates are given.
+//! Values are decimal strings, or null where undefined.
+
+use super::{ApiError, AppError, JsonBody};
+use crate::domain::FieldErrors;
+use crate::finance::{self, FinanceError};
+use axum::Json;
+use rust_decimal::Decimal;
+use serde::Deserialize;
+use serde_json::{Value, json};
+use std::str::FromStr;
+
+/// Decimal places of rates in answers (IRR tolerance is far below this).
+const RATE_DP: u32 = 12;
+/// Decimal places of money in answers.
+const MONEY_DP: u32 = 10;
+
+/// A rate as a decimal string.
+pub fn rate_text(r: f64) -> String {
+    Decimal::from_f64_retain(r).map_or_else(|| r.to_string(), |d| d.round_dp(RATE_DP).normalize().to_string())
+}
+
+/// Money (or a ratio) as a decimal string.
+pub fn money_text(d: Decimal) -> String {
+    d.round_dp(MONEY_DP).normalize().to_string()
+}
+
+/// The raw body: every field kept as JSON so that each can be rejected by name.
+#[derive(Deserialize)]
+pub struct MetricsRequest {
+    rate: Option<Value>,
+    flows: Option<Value>,
+    dates: Option<Value>,
+    finance_rate: Option<Value>,
+    reinvest_rate: Option<Value>,
+}
+
+fn number(v: &Value) -> Result<Decimal, String> {
+    let text = match v {
+        Value::String(s) => s.trim().to_string(),
+        Value::Number(n) => n.to_string(),
+        _ => return Err("a number, as a JSON number or a decimal string such as \"-1000.50\"".into()),
+    };
+    Decimal::from_str(&text)
+        .or_else(|_| Decimal::from_scientific(&text))
+        .map_err(|_| format!("not a decimal number: {text:?}"))
+}
+
+fn rate(v: &Value) -> Result<f64, String> {
+    use rust_decimal::prelude::ToPrimitive;
+    let d = number(v)?;
+    if d <= Decimal::NEGATIVE_ONE {
+        return Err("a rate greater than -1 (rates are fractions: 0.1 = 10 %)".into());
+    }
+    d.to_f64().ok_or_else(|| "a rate within range".into())
+}
+
+struct Parsed {
+    rate: f64,
+    flows: Vec<Decimal>,
+    dates: Option<Vec<time::Date>>,
+    finance_rate: f64,
+    reinvest_rate: f64,
+}
+
+fn parse(req: &MetricsRequest) -> Result<Parsed, FieldErrors> {
+    let mut e = FieldErrors::default();
+    let rate_v = match &req.rate {
+        Some(v) => e.take("rate", rate(v)),
+        None => e.take("rate", Err("required: the discount rate per period, e.g. \"0.1\"".into())),
+    };
+    let mut flows = Vec::new();
+    match &req.flows {
+        Some(Value::Array(items)) if !items.is_empty() => {
+            for (i, v) in items.iter().enumerate() {
+                if let Some(d) = e.take(&format!("flows[{i}]"), number(v)) {
+                    flows.push(d);
+                }
+            }
+        }
+        Some(Value::Array(_)) => e.push("flows", "at least one cash flow is needed"),
+        _ => e.push("flows", "required: an array of cash flows, first at time 0, e.g. [\"-1000\", \"300\"]"),
+    }
+    let dates = match &req.dates {
+        None | Some(Value::Null) => None,
+        Some(Value::Array(items)) => {
+            if let Some(Value::Array(f)) = &req.flows
+                && f.len() != items.len()
+            {
+                e.push("dates", format!("one date per flow: {} dates for {} flows", items.len(), f.len()));
+            }
+            let format = time::macros::format_description!("[year]-[month]-[day]");
+            let mut out = Vec::with_capacity(items.len());
+            for (i, v) in items.iter().enumerate() {
+                let parsed =
+                    v.as_str().ok_or_else(|| "an ISO date string such as \"2026-03-31\"".to_string()).and_then(|s| {
+                        time::Date::parse(s, &format).map_err(|_| format!("not an ISO date (YYYY-MM-DD): {s:?}"))
+                    });
+                if let Some(d) = e.take(&format!("dates[{i}]"), parsed) {
+                    out.push(d);
+                }
+            }
+            Some(out)
+        }
+        Some(_) => {
+            e.push("dates", "an array of ISO dates, one per flow");
+            None
+        }
+    };
+    let optional_rate = |e: &mut FieldErrors, name: &str, v: &Option<Value>| match v {
+        None | Some(Value::Null) => rate_v,
+        Some(v) => e.take(name, rate(v)),
+    };
+    let finance_rate = optional_rate(&mut e, "finance_rate", &req.finance_rate);
+    let reinvest_rate = optional_rate(&mut e, "reinvest_rate", &req.reinvest_rate);
+    match (rate_v, finance_rate, reinvest_rate) {
+        (Some(rate), Some(finance_rate), Some(reinvest_rate)) if e.is_empty() => {
+            Ok(Parsed { rate, flows, dates, finance_rate, reinvest_rate })
+        }
+        _ => Err(e),
+    }
+}
+
+/// A finance failure that the caller's input caused (numbers too large, for instance).
+fn input_error(e: FinanceError) -> ApiError {
+    let mut f = FieldErrors::default();
+    f.push("flows", e.to_string());
+    ApiError(AppError::Invalid(f))
+}
+
+/// POST /api/v1/metrics
+pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
+    let p = parse(&req)?;
+    let mut warnings: Vec<String> = Vec::new();
+    let npv = finance::npv(p.rate, &p.flows).map_err(input_error)?;
+    let (irr, irr_roots) = match finance::irr(&p.flows) {
+        Ok(outcome) => {
+            if outcome.ambiguous {
+                warnings.push("the flows change sign more than once: IRR is ambiguous; let NPV or MIRR decide".into());
+            }
+            (outcome.chosen.map(rate_text), outcome.roots.iter().map(|r| rate_text(*r)).collect::<Vec<_>>())
+        }
+        Err(e) => {
+            warnings.push(format!("no IRR: {e}"));
+            (None, Vec::new())
+        }
+    };
+    let mirr = match finance::mirr(&p.flows, p.finance_rate, p.reinvest_rate) {
+        Ok(m) => Some(rate_text(m)),
+        Err(e) => {
+            warnings.push(format!("no MIRR: {e}"));
+            None
+        }
+    };
+    let payback = finance::payback(&p.flows);
+    let discounted = finance::discounted_payback(p.rate, &p.flows).map_err(input_error)?;
+    for (what, pb) in [("payback", &payback), ("discounted payback", &discounted)] {
+        if pb.as_ref().is_some_and(|p| p.turns_negative_again) {
+            warnings.push(format!("the cumulative flow turns negative again after the {what} period"));
+        }
+    }
+    let pi = finance::profitability_index(p.rate, &p.flows).map_err(input_error)?;
+    let mut body = json!({
+        "npv": money_text(npv),
+        "irr": irr,
+        "irr_roots": irr_roots,
+        "mirr": mirr,
+        "payback": payback.map(|p| p.periods.normalize().to_string()),
+        "discounted_payback": discounted.map(|p| p.periods.normalize().to_string()),
+        "profitability_index": pi.map(money_text),
+        "warnings": warnings,
+    });
+    if let Some(dates) = &p.dates {
+        let xnpv = finance::xnpv(p.rate, &p.flows, dates).map_err(input_error)?;
+        let xirr = finance::xirr(&p.flows, dates).ok().map(rate_text);
+        body["xnpv"] = json!(money_text(xnpv));
+        body["xirr"] = json!(xirr);
+    }
+    Ok(Json(body))
+}

@@ -1,0 +1,166 @@
+//! Zone pages: the list with its create form, the detail page with its versions.
+
+use super::cases::{MetricsView, load_figures};
+use super::{ACTOR, AppError, AppState, FormBody};
+use crate::db::{self, CaseVersion};
+use crate::domain::{
+    CaseHeader, CaseSpec, CaseState, FieldErrors, Month, NewZone, SiteSettings, Zone, ZoneInput, ZoneStatus,
+};
+use askama::Template;
+use axum::extract::{Path, State};
+use axum::http::StatusCode;
+use axum::response::{Html, IntoResponse, Redirect, Response};
+use rust_decimal::Decimal;
+
+/// One row of the zone list: the zone and the figures of its newest version.
+pub struct ZoneRow {
+    zone: Zone,
+    latest: Option<(CaseVersion, MetricsView)>,
+}
+
+#[derive(Template)]
+#[template(path = "zones/list.html")]
+struct ListPage {
+    site: SiteSettings,
+    rows: Vec<ZoneRow>,
+    form: ZoneInput,
+    errors: FieldErrors,
+    statuses: [ZoneStatus; 6],
+}
+
+async fn list_page(state: &AppState, form: ZoneInput, errors: FieldErrors) -> Result<ListPage, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let mut rows = Vec::new();
+    for zone in db::list_zones(&state.pool).await? {
+        let latest = match db::list_cases(&state.pool, zone.id).await?.pop() {
+            Some(case) => {
+                let (_, figures) = load_figures(state, case.id, &site).await?;
+                Some((case, MetricsView::from(&figures.pre_tax.metrics)))
+            }
+            None => None,
+        };
+        rows.push(ZoneRow { zone, latest });
+    }
+    Ok(ListPage { site, rows, form, errors, statuses: ZoneStatus::ALL })
+}
+
+/// GET /zones
+pub async fn list(State(state): State<AppState>) -> Result<Html<String>, AppError> {
+    Ok(Html(list_page(&state, ZoneInput::default(), FieldErrors::default()).await?.render()?))
+}
+
+/// POST /zones: create a zone, or show the list again with the form's errors.
+pub async fn create(State(state): State<AppState>, FormBody(input): FormBody<ZoneInput>) -> Result<Response, AppError> {
+    let result = match NewZone::parse(&input) {
+        Ok(zone) => {
+            let mut tx = db::begin_write(&state.pool).await?;
+            match db::insert_zone(&mut tx, &zone, ACTOR).await {
+                Ok(id) => {
+                    tx.commit().await?;
+                    return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
+                }
+                Err(db::DbError::Conflict(msg)) => {
+                    let mut e = FieldErrors::default();
+                    e.push("code", msg);
+                    e
+                }
+                Err(other) => return Err(other.into()),
+            }
+        }
+        Err(errors) => errors,
+    };
+    let page = list_page(&state, input, result).await?;
+    Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response())
+}
+
+#[derive(Template)]
+#[template(path = "zones/detail.html")]
+struct DetailPage {
+    site: SiteSettings,
+    zone: Zone,
+    versions: Vec<(CaseVersion, MetricsView)>,
+    form: ZoneInput,
+    errors: FieldErrors,
+    statuses: [ZoneStatus; 6],
+}
+
+async fn detail_page(
+    state: &AppState,
+    id: i64,
+    form: Option<ZoneInput>,
+    errors: FieldErrors,
+) -> Result<DetailPage, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let zone = db::get_zone(&state.pool, id).await?;
+    let mut versions = Vec::new();
+    for case in db::list_cases(&state.pool, id).await? {
+        let (_, figures) = load_figures(state, case.id, &site).await?;
+        versions.push((case, MetricsView::from(&figures.pre_tax.metrics)));
+    }
+    let form = form.unwrap_or_else(|| ZoneInput {
+        code: zone.code.clone(),
+        name: zone.name.clone(),
+        description: zone.description.clone(),
+        owner: zone.owner.clone(),
+        status: zone.status.as_str().to_string(),
+    });
+    Ok(DetailPage { site, zone, versions, form, errors, statuses: ZoneStatus::ALL })
+}
+
+/// GET /zones/{id}
+pub async fn detail(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Html<String>, AppError> {
+    Ok(Html(detail_page(&state, id, None, FieldErrors::default()).await?.render()?))
+}
+
+/// POST /zones/{id}: change the zone's fields.
+pub async fn update(
+    State(state): State<AppState>,
+    Path(id): Path<i64>,
+    FormBody(input): FormBody<ZoneInput>,
+) -> Result<Response, AppError> {
+    let errors = match NewZone::parse(&input) {
+        Ok(zone) => {
+            let mut tx = db::begin_write(&state.pool).await?;
+            match db::update_zone(&mut tx, id, &zone, ACTOR).await {
+                Ok(()) => {
+                    tx.commit().await?;
+                    return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
+                }
+                Err(db::DbError::Conflict(msg)) => {
+                    let mut e = FieldErrors::default();
+                    e.push("code", msg);
+                    e
+                }
+                Err(other) => return Err(other.into()),
+            }
+        }
+        Err(errors) => errors,
+    };
+    let page = detail_page(&state, id, Some(input), errors).await?;
+    Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response())
+}
+
+/// POST /zones/{id}/cases: start a new, empty draft business case and open its editor.
+pub async fn new_case(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Redirect, AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let today = time::OffsetDateTime::now_utc().date();
+    let start = Month { year: today.year(), month: u8::from(today.month()) }.plus(1);
+    let horizon = site.default_horizon_months;
+    let spec = CaseSpec {
+        header: CaseHeader {
+            label: "Base".into(),
+            horizon_months: horizon,
+            start_month: start,
+            go_live_offset: 3.min(horizon - 1),
+            ramp_up_months: 3,
+            success_probability: Decimal::new(8, 1),
+        },
+        state: CaseState::Draft,
+        costs: Vec::new(),
+        drivers: Vec::new(),
+    };
+    let mut tx = db::begin_write(&state.pool).await?;
+    let case_id = db::insert_case(&mut tx, id, &spec, ACTOR).await?;
+    tx.commit().await?;
+    Ok(Redirect::to(&format!("/cases/{case_id}/edit")))
+}

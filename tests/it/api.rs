@@ -1,0 +1,178 @@
+//! JSON API on a real SQLite file: zones and cases round-trip, the metrics contract, and
+//! every bad input answered 422 (or 4xx) with nothing written.
+
+use crate::helpers::test_app;
+use axum::http::StatusCode;
+use serde_json::{Value, json};
+
+fn num(v: &Value) -> f64 {
+    v.as_str().unwrap_or_else(|| panic!("expected a decimal string, got {v}")).parse().unwrap()
+}
+
+fn close(actual: f64, expected: f64, rel: f64) {
+    assert!((actual - expected).abs() <= rel * expected.abs().max(1.0), "{actual} vs {expected}");
+}
+
+/// A 36-month case: 12,000 one-off in month 0 and 1,200 pcs/year at 10 EUR from month 0,
+/// i.e. flows [-11000, 1000 x 35] at the monthly equivalent of 10 % a year.
+pub fn simple_case() -> Value {
+    json!({
+        "label": "Base", "horizon_months": 36, "start_month": "2027-01", "go_live_offset": 0,
+        "ramp_up_months": 0, "success_probability": "0.9",
+        "costs": [{"label": "Sensors", "category": "hardware", "kind": "one_off", "amount": "12000", "month_offset": 0, "capex": true}],
+        "drivers": [{"label": "Scrap avoided", "kind": "scrap", "qty_low": 800, "qty_likely": 1200, "qty_high": "1500", "unit_value": "10"}]
+    })
+}
+
+#[tokio::test]
+async fn zone_and_case_round_trip_with_metrics() {
+    let t = test_app(false).await;
+    let created = t.post_json("/api/v1/zones", r#"{"code":"weld-9","name":"Weld cell 9","status":"candidate"}"#).await;
+    assert_eq!(created.status, StatusCode::CREATED, "{}", created.text);
+    let zone_id = created.json()["zone"]["id"].as_i64().unwrap();
+    assert_eq!(created.json()["zone"]["code"], "WELD-9");
+
+    let case = t.post_json(&format!("/api/v1/zones/{zone_id}/cases"), &simple_case().to_string()).await;
+    assert_eq!(case.status, StatusCode::CREATED, "{}", case.text);
+    let case_id = case.json()["case"]["id"].as_i64().unwrap();
+
+    let read = t.get(&format!("/api/v1/cases/{case_id}")).await.json();
+    assert_eq!(read["case"]["version"], 1);
+    assert_eq!(read["case"]["costs"][0]["amount"], "12000");
+    assert_eq!(read["case"]["drivers"][0]["qty_likely"], "1200");
+    let flows = read["monthly_net_flows"].as_array().unwrap();
+    assert_eq!(flows.len(), 36);
+    assert_eq!(flows[0], "-11000");
+    assert_eq!(flows[35], "1000");
+    // numpy-financial 1.0.0: npf.npv(1.1 ** (1 / 12) - 1, [-11000] + [1000] * 35) = 19435.143641317074
+    close(num(&read["metrics"]["npv"]), 19_435.143_641_317_074, 1e-9);
+    // Simple payback: cumulative -11000 + 1000 t reaches 0 exactly at month 11 (hand count).
+    assert_eq!(read["metrics"]["payback_months"], "11");
+
+    let zone = t.get(&format!("/api/v1/zones/{zone_id}")).await.json();
+    assert_eq!(zone["cases"].as_array().unwrap().len(), 1);
+}
+
+#[tokio::test]
+async fn metrics_contract_example() {
+    let t = test_app(false).await;
+    let a = t.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["-1000", "300", "420", "680"]}"#).await;
+    assert_eq!(a.status, StatusCode::OK, "{}", a.text);
+    let v = a.json();
+    // numpy-financial 1.0.0: npv(0.1, f) = 130.72877535687434, irr(f) = 0.16340560068898902,
+    // mirr(f, 0.1, 0.1) = 0.14598473665110645.
+    close(num(&v["npv"]), 130.728_775_356_874_34, 1e-9);
+    close(num(&v["irr"]), 0.163_405_600_688_989, 1e-7);
+    close(num(&v["mirr"]), 0.145_984_736_651_106, 1e-7);
+    assert_eq!(v["irr_roots"].as_array().unwrap().len(), 1);
+    // Hand count: cumulative -1000, -700, -280, +400, so 2 + 280 / 680 periods.
+    close(num(&v["payback"]), 2.0 + 280.0 / 680.0, 1e-12);
+    // PI = PV(flows after the first) / 1000 = (130.7287... + 1000) / 1000.
+    close(num(&v["profitability_index"]), 1.130_728_775_356_874, 1e-9);
+    assert!(v.get("xnpv").is_none());
+
+    // Numbers as JSON numbers give the same answer.
+    let b = t.post_json("/api/v1/metrics", r#"{"rate": 0.1, "flows": [-1000, 300, 420, 680]}"#).await.json();
+    assert_eq!(b["npv"], v["npv"]);
+}
+
+#[tokio::test]
+async fn metrics_with_dates_and_several_roots() {
+    let t = test_app(false).await;
+    // -100 + 230 x - 132 x^2 = 0 with x = 1 / (1 + r) has roots x = 1/1.1 and 1/1.2: IRR 10 % and
+    // 20 % (hand algebra), so the answer must list both and flag the ambiguity.
+    let v = t.post_json("/api/v1/metrics", r#"{"rate": "0.05", "flows": ["-100", "230", "-132"]}"#).await.json();
+    let roots: Vec<f64> = v["irr_roots"].as_array().unwrap().iter().map(num).collect();
+    assert_eq!(roots.len(), 2, "{v}");
+    close(roots[0], 0.1, 1e-7);
+    close(roots[1], 0.2, 1e-7);
+    assert!(v["warnings"].as_array().unwrap().iter().any(|w| w.as_str().unwrap().contains("ambiguous")));
+
+    let body = r#"{"rate": "0.1", "flows": ["-1000", "1100"], "dates": ["2025-01-01", "2026-01-01"]}"#;
+    let v = t.post_json("/api/v1/metrics", body).await.json();
+    // 365 days = exactly one year in actual/365, so XNPV = -1000 + 1100 / 1.1 = 0 and XIRR = 10 %.
+    close(num(&v["xnpv"]), 0.0, 1e-9);
+    close(num(&v["xirr"]), 0.1, 1e-9);
+    // Exact boundary: discounted payback lands on the end of period 1.
+    assert_eq!(v["discounted_payback"], "1");
+
+    let none = t.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["100", "200"]}"#).await.json();
+    assert_eq!(none["irr"], Value::Null);
+    assert_eq!(none["profitability_index"], Value::Null);
+    assert!(none["warnings"][0].as_str().unwrap().starts_with("no IRR"));
+}
+
+#[tokio::test]
+async fn metrics_bad_input_names_the_field() {
+    let t = test_app(false).await;
+    let cases = [
+        (r#"{"rate": "0.1", "flows": []}"#, "flows"),
+        (r#"{"rate": "0.1"}"#, "flows"),
+        (r#"{"rate": "0.1", "flows": ["-1000", "abc"]}"#, "flows[1]"),
+        (r#"{"rate": "ten", "flows": ["-1000", "100"]}"#, "rate"),
+        (r#"{"rate": "-1", "flows": ["-1000", "1100"]}"#, "rate"),
+        (r#"{"rate": "-1.5", "flows": ["-1000", "1100"]}"#, "rate"),
+        (r#"{"flows": ["-1000", "1100"]}"#, "rate"),
+        (r#"{"rate": "0.1", "flows": ["-1000", "1100"], "dates": ["2025-01-01"]}"#, "dates"),
+        (r#"{"rate": "0.1", "flows": ["-1000", "1100"], "dates": ["2025-01-01", "soon"]}"#, "dates[1]"),
+        (r#"{"rate": "0.1", "flows": ["-1000", "1100"], "finance_rate": "-2"}"#, "finance_rate"),
+        (r#"{"rate": "0.1", "flows": ["-1000", "1100"], "reinvest_rate": true}"#, "reinvest_rate"),
+        (r#"{"rate": "0.1", "flows": "-1000"}"#, "flows"),
+    ];
+    for (body, field) in cases {
+        let a = t.post_json("/api/v1/metrics", body).await;
+        assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{body}: {}", a.text);
+        let fields: Vec<String> =
+            a.json()["fields"].as_array().unwrap().iter().map(|f| f["field"].as_str().unwrap().to_string()).collect();
+        assert!(fields.contains(&field.to_string()), "{body}: expected {field} in {fields:?}");
+    }
+    let syntax = t.post_json("/api/v1/metrics", "{not json").await;
+    assert_eq!(syntax.status, StatusCode::BAD_REQUEST);
+    assert!(syntax.json()["error"].is_string());
+}
+
+#[tokio::test]
+async fn rejected_writes_change_nothing() {
+    let t = test_app(false).await;
+    let zone = t.post_json("/api/v1/zones", r#"{"code":"PAINT-7","name":"Paint booth 7"}"#).await.json();
+    let zone_id = zone["zone"]["id"].as_i64().unwrap();
+    let before = t.counts().await;
+
+    let bad_zone = t.post_json("/api/v1/zones", r#"{"code":"bad code!","name":""}"#).await;
+    assert_eq!(bad_zone.status, StatusCode::UNPROCESSABLE_ENTITY);
+    let dup = t.post_json("/api/v1/zones", r#"{"code":"paint-7","name":"Again"}"#).await;
+    assert_eq!(dup.status, StatusCode::CONFLICT);
+    assert!(dup.json()["error"].as_str().unwrap().contains("already exists"));
+
+    // The second cost item is bad: the whole case is refused, not half of it.
+    let mut case = crate::api::simple_case();
+    case["costs"]
+        .as_array_mut()
+        .unwrap()
+        .push(json!({"label": "Licence", "category": "software", "kind": "recurring", "amount": "lots"}));
+    let bad_case = t.post_json(&format!("/api/v1/zones/{zone_id}/cases"), &case.to_string()).await;
+    assert_eq!(bad_case.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(bad_case.json()["fields"][0]["field"], "costs[1].amount");
+
+    let mut late = crate::api::simple_case();
+    late["costs"][0]["month_offset"] = json!(36);
+    let a = t.post_json(&format!("/api/v1/zones/{zone_id}/cases"), &late.to_string()).await;
+    assert_eq!(a.json()["fields"][0]["field"], "costs[0].month_offset");
+
+    let missing = t.post_json("/api/v1/zones/9999/cases", &crate::api::simple_case().to_string()).await;
+    assert_eq!(missing.status, StatusCode::NOT_FOUND);
+
+    assert_eq!(t.counts().await, before, "a rejected request wrote something");
+}
+
+#[tokio::test]
+async fn openapi_document_lists_the_routes() {
+    let t = test_app(false).await;
+    let doc = t.get("/api/v1/openapi.json").await.json();
+    assert_eq!(doc["openapi"], "3.1.0");
+    for path in
+        ["/api/v1/metrics", "/api/v1/zones", "/api/v1/zones/{id}", "/api/v1/zones/{id}/cases", "/api/v1/cases/{id}"]
+    {
+        assert!(doc["paths"].get(path).is_some(), "{path} missing");
+    }
+}

@@ -1,0 +1,7 @@
+//! The integration test binary: one binary, one module per area, shared helpers.
+#![expect(clippy::unwrap_used, clippy::expect_used, reason = "tests fail loudly by design")]
+
+mod api;
+mod browser;
+mod helpers;
+mod pages;
