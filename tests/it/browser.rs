@@ -11,18 +11,21 @@ use std::time::Duration;
 const CHROMIUM: &str = "/usr/bin/chromium";
 const CHROMEDRIVER: &str = "/usr/bin/chromedriver";
 
-/// chromedriver plus a WebDriver session; the driver process dies with it.
-struct Browser {
-    client: Client,
-    driver: Child,
-    _profile: tempfile::TempDir,
+/// The chromedriver process, killed and reaped when dropped (also on a failing test).
+struct Driver(Child);
+
+impl Drop for Driver {
+    fn drop(&mut self) {
+        let _ = self.0.kill();
+        let _ = self.0.wait();
+    }
 }
 
-impl Drop for Browser {
-    fn drop(&mut self) {
-        let _ = self.driver.kill();
-        let _ = self.driver.wait();
-    }
+/// chromedriver plus a WebDriver session.
+struct Browser {
+    client: Client,
+    _driver: Driver,
+    _profile: tempfile::TempDir,
 }
 
 /// Start chromium, or `None` (after saying so loudly) when it is not installed here.
@@ -41,13 +44,15 @@ async fn browser() -> Option<Browser> {
     }
     // A free loopback port for chromedriver: bind port 0, read it, release it.
     let port = std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
-    let driver = Command::new(CHROMEDRIVER)
-        .arg(format!("--port={port}"))
-        .arg("--allowed-ips=127.0.0.1")
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("chromedriver starts");
+    let driver = Driver(
+        Command::new(CHROMEDRIVER)
+            .arg(format!("--port={port}"))
+            .arg("--allowed-ips=127.0.0.1")
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .expect("chromedriver starts"),
+    );
     let profile = tempfile::tempdir().unwrap();
     let args = [
         "--headless",
@@ -74,7 +79,7 @@ async fn browser() -> Option<Browser> {
     // chromedriver takes a moment to listen.
     for _ in 0..100 {
         if let Ok(client) = ClientBuilder::new(connector.clone()).capabilities(caps.clone()).connect(&url).await {
-            return Some(Browser { client, driver, _profile: profile });
+            return Some(Browser { client, _driver: driver, _profile: profile });
         }
         tokio::time::sleep(Duration::from_millis(100)).await;
     }

@@ -3,5 +3,6 @@
 
 mod api;
 mod browser;
+mod finance;
 mod helpers;
 mod pages;
