@@ -134,7 +134,7 @@ pub fn xnpv(annual_rate: f64, flows: &[Decimal], dates: &[Date]) -> Result<Decim
 ///
 /// # Reference
 /// The spreadsheet XIRR function; root isolation by Descartes' rule of signs for generalized
-/// polynomials (Laguerre) and Rolle's theorem, as described in the `irr` module notes.
+/// polynomials (Laguerre) and Rolle's theorem, as described in [`crate::finance::irr`].
 pub fn xirr_outcome(flows: &[Decimal], dates: &[Date]) -> Result<IrrOutcome, FinanceError> {
     let days = day_offsets(flows, dates)?;
     // Merge flows on the same day exactly, in Decimal, ordered by day.
@@ -351,5 +351,16 @@ mod tests {
         // No real root.
         let none = [d(-100), d(250), d(-200)];
         assert_eq!(xirr(&none, &dates), Err(FinanceError::NoRealRoot));
+        // Roots 10 %, 20 %, 30 % with two investment-like ones: no defensible single rate.
+        let three = [d(-1000), d(3600), d(-4310), d(1716)];
+        let mut yearly = dates.to_vec();
+        yearly.push(date!(2024 - 01 - 01));
+        match xirr(&three, &yearly) {
+            Err(FinanceError::AmbiguousRate { roots }) => {
+                assert_eq!(roots.len(), 3);
+                assert!((roots[1] - 0.2).abs() < 1e-12);
+            }
+            other => panic!("{other:?}"),
+        }
     }
 }

@@ -1,27 +1,6 @@
 //! Internal rate of return: every real root of NPV(r) = 0 in (-1, +inf), found robustly.
 //!
-//! # Method
-//! With `x = 1 / (1 + r)`, NPV is the polynomial `P(x) = sum_t CF_t x^t`, and rates in
-//! (-1, +inf) are exactly the positive `x`. To evaluate without overflow over the whole range we
-//! solve in a variable `s` in [0, 2]:
-//! - `s` in (0, 1] is `x` itself (rates r >= 0, `r = 1/s - 1`), and `g(s) = P(s)`;
-//! - `s` in [1, 2) stands for `1 + r = 2 - s` (rates in (-1, 0], `r = 1 - s`), and
-//!   `g(s) = (1 + r)^N P(x)`, the future value, which has the sign and the roots of NPV.
-//!
-//! Both forms only raise numbers in [0, 1] to powers, `g` is continuous on [0, 2], and
-//! `g(0) = CF_0` (the first non-zero flow) and `g(2) = CF_N` (the last non-zero flow).
-//!
-//! - **One sign change** in the flows: by Descartes' rule of signs there is exactly one positive
-//!   root, and `g(0)`, `g(2)` have opposite signs. It is solved by Newton's method safeguarded
-//!   by bisection ("rtsafe", Numerical Recipes 3rd ed., section 9.4), starting from 10 % a period:
-//!   a few Horner evaluations, linear in the number of flows, one allocation.
-//! - **Several sign changes**: the roots are isolated by Rolle's theorem: the real roots of the
-//!   derivative split (0, +inf) into intervals on which the NPV polynomial is monotone, so each
-//!   interval whose ends differ in sign holds exactly one root (solved as above), and a
-//!   derivative root where the value is zero within rounding is a root that touches zero
-//!   (even multiplicity). The derivative's roots are found the same way, recursively, down to
-//!   a derivative with at most one sign change. This finds every root except pairs closer than
-//!   the rounding of f64 evaluation can separate.
+//! The method is described in the documentation of [`irr`].
 
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
@@ -35,7 +14,7 @@ use super::FinanceError;
 /// non-finite input, reported as [`FinanceError::NoConvergence`].
 pub const IRR_MAX_ITERATIONS: u32 = 300;
 
-/// Relative step (in the solver variable `s` described in the module notes) at which a root
+/// Relative step (in the solver variable `s` described in [`irr`], Method) at which a root
 /// search stops. The returned rate is then accurate to about `1e-14 * max(2, 1 + r)`, unless the
 /// root is multiple or the flows are badly conditioned.
 pub const IRR_TOLERANCE: f64 = 1e-14;
@@ -61,7 +40,9 @@ pub const IRR_TOUCH_TOLERANCE: f64 = 1e-12;
 /// 4. otherwise `None`: there is no defensible single IRR.
 ///
 /// numpy-financial 1.0.0 instead returns the real root closest to zero; that root is always in
-/// `roots`, but it can differ from `chosen`.
+/// `roots`, but it can differ from `chosen`. Where numpy-financial returns NaN, we return
+/// [`FinanceError::NoSignChange`] (flows of one sign) or, when the flows do change sign but no
+/// real root exists, `Ok` with empty `roots`, `chosen = None` and `ambiguous = true`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct IrrOutcome {
     /// Every root found, ascending, per period.
@@ -78,7 +59,31 @@ pub struct IrrOutcome {
 /// [`crate::finance::npv`]`(r, flows) = 0`, with its timing and sign convention: `flows[0]` now,
 /// undiscounted; outflows negative. The rates are per period of the flows (annualize monthly ones
 /// with [`crate::finance::annual_from_periodic`]). See [`IrrOutcome`] for the roots returned,
-/// the `chosen` rule and the `ambiguous` flag, and the module notes for the method.
+/// the `chosen` rule and the `ambiguous` flag.
+///
+/// # Method
+/// With `x = 1 / (1 + r)`, NPV is the polynomial `P(x) = sum_t CF_t x^t`, and rates in
+/// (-1, +inf) are exactly the positive `x`. To evaluate without overflow over the whole range we
+/// solve in a variable `s` in [0, 2]:
+/// - `s` in (0, 1] is `x` itself (rates r >= 0, `r = 1/s - 1`), and `g(s) = P(s)`;
+/// - `s` in [1, 2) stands for `1 + r = 2 - s` (rates in (-1, 0], `r = 1 - s`), and
+///   `g(s) = (1 + r)^N P(x)`, the future value, which has the sign and the roots of NPV.
+///
+/// Both forms only raise numbers in [0, 1] to powers, `g` is continuous on [0, 2], and
+/// `g(0) = CF_0` (the first non-zero flow) and `g(2) = CF_N` (the last non-zero flow).
+///
+/// - **One sign change** in the flows: by Descartes' rule of signs there is exactly one positive
+///   root, and `g(0)`, `g(2)` have opposite signs. It is solved by Newton's method safeguarded
+///   by bisection ("rtsafe", Numerical Recipes 3rd ed., section 9.4), starting from 10 % a period:
+///   a few Horner evaluations, each linear in the number of flows; no scan, and no allocation
+///   beyond the f64 copy of the flows and the one-element result.
+/// - **Several sign changes**: the roots are isolated by Rolle's theorem: the real roots of the
+///   derivative split (0, +inf) into intervals on which the NPV polynomial is monotone, so each
+///   interval whose ends differ in sign holds exactly one root (solved as above), and a
+///   derivative root where the value is zero within rounding is a root that touches zero
+///   (even multiplicity). The derivative's roots are found the same way, recursively, down to
+///   a derivative with at most one sign change. This finds every root except pairs closer than
+///   the rounding of f64 evaluation can separate.
 ///
 /// # Errors
 /// - [`FinanceError::EmptyFlows`] if `flows` is empty;
@@ -114,7 +119,8 @@ pub struct IrrOutcome {
 /// # Reference
 /// numpy-financial 1.0.0, `numpy_financial.irr` (same equation, which cites L. J. Gitman,
 /// *Principles of Managerial Finance, Brief*, 3rd ed., 2003, p. 348); Descartes' rule of signs
-/// and multiple IRRs: Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter 5;
+/// and multiple IRRs: Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter "Net
+/// Present Value and Other Investment Criteria";
 /// J. H. Lorie and L. J. Savage, "Three Problems in Rationing Capital", *Journal of Business*,
 /// 1955.
 pub fn irr(flows: &[Decimal]) -> Result<IrrOutcome, FinanceError> {
@@ -160,7 +166,7 @@ pub(crate) fn outcome_from_roots(found: Vec<FoundRoot>) -> IrrOutcome {
     IrrOutcome { roots, chosen, ambiguous: true }
 }
 
-/// Rate per period for a solver variable `s` in (0, 2) (see the module notes).
+/// Rate per period for a solver variable `s` in (0, 2) (see [`irr`], Method).
 pub(crate) fn rate_from_s(s: f64) -> f64 {
     if s <= 1.0 { 1.0 / s - 1.0 } else { 1.0 - s }
 }
@@ -297,7 +303,7 @@ pub(crate) struct FoundRoot {
     pub(crate) rising: Option<bool>,
 }
 
-/// Every root of `series` in (0, 2), ascending in `s`, by Rolle isolation (see module notes).
+/// Every root of `series` in (0, 2), ascending in `s`, by Rolle isolation (see [`irr`]).
 pub(crate) fn all_roots<S: Series>(series: &S) -> Result<Vec<FoundRoot>, FinanceError> {
     let (g0, g2) = series.ends();
     match series.sign_changes() {

@@ -150,8 +150,9 @@ pub fn npv(rate: f64, flows: &[Decimal]) -> Result<Decimal, FinanceError> {
 /// ```
 ///
 /// # Reference
-/// Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter 5 ("profitability
-/// index"): PV of future flows divided by the initial investment.
+/// Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter "Net Present Value and
+/// Other Investment Criteria" (profitability index): PV of future flows divided by the
+/// initial investment.
 pub fn profitability_index(rate: f64, flows: &[Decimal]) -> Result<Option<Decimal>, FinanceError> {
     let (&first, rest) = flows.split_first().ok_or(FinanceError::EmptyFlows)?;
     check_rate(rate)?;

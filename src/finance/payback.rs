@@ -102,7 +102,8 @@ pub fn payback(flows: &[Decimal]) -> Option<Payback> {
 /// ```
 ///
 /// # Reference
-/// Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter 5 ("discounted payback").
+/// Brealey, Myers and Allen, *Principles of Corporate Finance*, chapter "Net Present Value and
+/// Other Investment Criteria" (discounted payback).
 pub fn discounted_payback(rate: f64, flows: &[Decimal]) -> Result<Option<Payback>, FinanceError> {
     if flows.is_empty() {
         return Err(FinanceError::EmptyFlows);

@@ -49,8 +49,8 @@ pub(crate) fn growth_factor(rate: f64) -> Result<Decimal, FinanceError> {
 /// ```
 ///
 /// # Reference
-/// Effective-rate conversion, e.g. Brealey, Myers and Allen, *Principles of Corporate Finance*,
-/// chapter 2 ("effective annual rates").
+/// Effective-rate conversion (compound interest), e.g. Brealey, Myers and Allen, *Principles of
+/// Corporate Finance*, chapter "How to Calculate Present Values" (effective annual rates).
 pub fn monthly_from_annual(annual: f64) -> Result<f64, FinanceError> {
     check_rate(annual)?;
     Ok((annual.ln_1p() / 12.0).exp_m1())

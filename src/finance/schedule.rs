@@ -33,6 +33,10 @@ use super::{FinanceError, IrrOutcome, Payback, annual_from_periodic, irr, mirr, 
 /// Decimal places kept for the monthly money columns of a [`Schedule`].
 pub const MONEY_DP: u32 = 4;
 
+/// Longest horizon accepted by [`build_schedule`]: 100 years of months. Far beyond any business
+/// case; it keeps a mistyped horizon from allocating billions of rows.
+pub const MAX_HORIZON_MONTHS: u32 = 1200;
+
 /// A business case, as the inputs of [`build_schedule`].
 #[derive(Debug, Clone, PartialEq)]
 pub struct CaseInput {
@@ -160,15 +164,19 @@ fn overflow<T>(v: Option<T>) -> Result<T, FinanceError> {
 /// `(1 + escalation)^floor(months_since / 12)`.
 fn escalated(escalation: Decimal, months_since: u32) -> Result<Decimal, FinanceError> {
     let years = u64::from(months_since / 12);
-    overflow((Decimal::ONE + escalation).checked_powu(years))
+    // Whole years only: escalation steps on each anniversary, it does not accrue monthly.
+    overflow(Decimal::ONE.checked_add(escalation).and_then(|g| g.checked_powu(years)))
 }
 
 /// Checks every input and names the first bad one.
 fn validate(case: &CaseInput) -> Result<(), FinanceError> {
-    if case.horizon_months == 0 {
-        return Err(invalid("horizon (months)".into(), "must be at least 1 month"));
+    if case.horizon_months == 0 || case.horizon_months > MAX_HORIZON_MONTHS {
+        return Err(invalid("horizon (months)".into(), "must be between 1 and 1200 months"));
     }
+    // Escalation of -100 % or less would make a growth factor of zero or below.
     let growth = |e: Decimal| e > Decimal::NEGATIVE_ONE;
+    // Costs and benefits are entered as magnitudes; the schedule gives them their signs, so a
+    // negative entry is a mistake, not a refund.
     for c in &case.costs {
         if c.amount.is_sign_negative() && !c.amount.is_zero() {
             return Err(invalid(
@@ -180,6 +188,7 @@ fn validate(case: &CaseInput) -> Result<(), FinanceError> {
             CostTiming::OneOff { month } => (month, Decimal::ZERO),
             CostTiming::Recurring { from_month, escalation } => (from_month, escalation),
         };
+        // A cost that never falls inside the schedule would silently drop out of every figure.
         if month >= case.horizon_months {
             return Err(FinanceError::CostOutsideHorizon {
                 label: c.label.clone(),
@@ -229,6 +238,7 @@ struct MonthParts {
     depreciation: Decimal,
 }
 
+/// The unrounded money of month `t`; rounding happens once, on the month's totals.
 fn month_parts(case: &CaseInput, t: u32) -> Result<MonthParts, FinanceError> {
     let twelve = Decimal::from(12);
     let mut p = MonthParts::default();
@@ -258,8 +268,9 @@ fn month_parts(case: &CaseInput, t: u32) -> Result<MonthParts, FinanceError> {
     }
     if t >= case.go_live_month {
         let k = t - case.go_live_month;
+        // Linear ramp (k + 1) / (R + 1): never 0 in the first month, reaching 1 at k = R.
         let ramp = if k < case.ramp_up_months {
-            Decimal::from(k + 1) / Decimal::from(case.ramp_up_months + 1)
+            Decimal::from(k + 1) / Decimal::from(u64::from(case.ramp_up_months) + 1)
         } else {
             Decimal::ONE
         };
@@ -281,7 +292,8 @@ fn month_parts(case: &CaseInput, t: u32) -> Result<MonthParts, FinanceError> {
 /// - [`FinanceError::RateOutOfRange`] if `annual_hurdle` is not finite or is `<= -1`;
 /// - [`FinanceError::CostOutsideHorizon`] if a one-off month or a recurring start month is not
 ///   inside `0 .. horizon_months` (naming the cost);
-/// - [`FinanceError::InvalidInput`] naming the field for a zero horizon, a negative amount,
+/// - [`FinanceError::InvalidInput`] naming the field for a horizon of 0 or more than
+///   [`MAX_HORIZON_MONTHS`], a negative amount,
 ///   quantity or unit value, an escalation `<= -1`, a tax rate outside [0, 1] or zero
 ///   depreciation years;
 /// - [`FinanceError::NotRepresentable`] if a value exceeds `Decimal`'s range.
@@ -318,8 +330,8 @@ fn month_parts(case: &CaseInput, t: u32) -> Result<MonthParts, FinanceError> {
 ///
 /// # Reference
 /// Monthly discounted cash-flow model of a capital project, e.g. Brealey, Myers and Allen,
-/// *Principles of Corporate Finance*, chapter 6 ("making investment decisions with the NPV
-/// rule": incremental flows, depreciation tax shield).
+/// *Principles of Corporate Finance*, chapter "Making Investment Decisions with the NPV Rule"
+/// (incremental flows, depreciation tax shield).
 pub fn build_schedule(case: &CaseInput, annual_hurdle: f64) -> Result<Schedule, FinanceError> {
     let monthly_rate = monthly_from_annual(annual_hurdle)?;
     validate(case)?;
@@ -332,6 +344,7 @@ pub fn build_schedule(case: &CaseInput, annual_hurdle: f64) -> Result<Schedule, 
         let expensed = round(p.expensed_one_off);
         let recurring = round(p.recurring);
         let benefits = round(p.benefits);
+        // Taxable profit uses the rounded columns, so the printed table explains the tax.
         let tax = match &case.tax {
             Some(tax) => {
                 let taxable = overflow(
@@ -344,11 +357,12 @@ pub fn build_schedule(case: &CaseInput, annual_hurdle: f64) -> Result<Schedule, 
             }
             None => Decimal::ZERO,
         };
-        let one_off = round(-(capex + expensed));
+        let one_off = round(-overflow(capex.checked_add(expensed))?);
         let recurring = round(-recurring);
         let net = overflow(
             one_off.checked_add(recurring).and_then(|v| v.checked_add(benefits)).and_then(|v| v.checked_add(tax)),
         )?;
+        // Discounted exactly as npv() does, so the last cumulative discounted flow is the NPV.
         let discounted = discounter.next(net)?;
         cumulative = overflow(cumulative.checked_add(net))?;
         cumulative_discounted = overflow(cumulative_discounted.checked_add(discounted))?;
@@ -402,6 +416,7 @@ fn pv_column(rate: f64, column: impl Iterator<Item = Decimal>) -> Decimal {
         let discounted = values.iter().map(|&v| d.next(v)).collect::<Result<Vec<_>, _>>()?;
         checked_sum(discounted)
     });
+    // Only reachable for rates near -100 % a month, where the NPV itself already overflowed.
     exact.unwrap_or_else(|_| {
         let x = 1.0 / (1.0 + rate);
         let v: f64 = values.iter().rev().fold(0.0, |acc, d| acc * x + d.to_f64().unwrap_or(0.0));
@@ -462,6 +477,7 @@ pub fn case_metrics(schedule: &Schedule) -> CaseMetrics {
     let discounted: Vec<Decimal> = schedule.rows.iter().map(|r| r.discounted).collect();
     let pv_benefits = pv_column(rate, schedule.rows.iter().map(|r| r.benefits));
     let pv_one_off = pv_column(rate, schedule.rows.iter().map(|r| -r.one_off));
+    // PV(benefits + recurring + tax) is NPV + PV(one-off outlays): no third discounting pass.
     let profitability_index = if pv_one_off > Decimal::ZERO {
         npv.checked_add(pv_one_off).and_then(|v| v.checked_div(pv_one_off))
     } else {
@@ -476,6 +492,7 @@ pub fn case_metrics(schedule: &Schedule) -> CaseMetrics {
         discounted_payback_months: payback_of(&discounted),
         profitability_index,
         pv_benefits,
+        // Defined by the identity npv = pv_benefits - pv_costs, so tax is inside the costs.
         pv_costs: pv_benefits.saturating_sub(npv),
         total_one_off: schedule.rows.iter().fold(Decimal::ZERO, |acc, r| acc.saturating_sub(r.one_off)),
     }
@@ -511,6 +528,8 @@ mod tests {
             Err(FinanceError::CostOutsideHorizon { label: "late".into(), month: 12, horizon: 12 })
         );
         assert!(matches!(build_schedule(&case(0), 0.1), Err(FinanceError::InvalidInput { .. })));
+        assert!(matches!(build_schedule(&case(MAX_HORIZON_MONTHS + 1), 0.1), Err(FinanceError::InvalidInput { .. })));
+        assert_eq!(build_schedule(&case(MAX_HORIZON_MONTHS), 0.1).map(|s| s.rows.len()), Ok(1200));
         assert!(matches!(build_schedule(&case(1), -1.0), Err(FinanceError::RateOutOfRange { .. })));
         let mut c = case(12);
         c.tax = Some(TaxInput { rate: Decimal::new(25, 2), depreciation_years: 0 });

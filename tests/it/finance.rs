@@ -333,8 +333,9 @@ fn textbook_bennett_company_npv_irr_payback() {
 fn textbook_multiple_irr_examples() {
     let fx = fixture();
     // Lorie and Savage's pump problem (J. Business, 1955), reproduced in Brealey, Myers and
-    // Allen, Principles of Corporate Finance, chapter 5, "multiple rates of return" (from
-    // memory; exact by hand: -1600 + 10000/1.25 - 10000/1.25^2 = 0, and at 5x likewise):
+    // Allen, Principles of Corporate Finance, chapter "Net Present Value and Other Investment
+    // Criteria", multiple rates of return (from memory; exact by hand: -1600 + 10000/1.25 -
+    // 10000/1.25^2 = 0, and with 1 + r = 5 likewise):
     // IRR = 25 % and 400 %.
     let pump = irr(&ints(&[-1_600, 10_000, -10_000])).unwrap();
     assert!(pump.ambiguous);
