@@ -470,9 +470,9 @@ impl NewBenefitDriver {
         } else {
             e.take("unit", required_text(&input.unit, 20))
         };
-        let low = e.take("qty_low", parse_decimal(&input.qty_low).and_then(non_negative));
-        let likely = e.take("qty_likely", parse_decimal(&input.qty_likely).and_then(non_negative));
-        let high = e.take("qty_high", parse_decimal(&input.qty_high).and_then(non_negative));
+        let low = e.take("qty_low", parse_decimal(&input.qty_low).and_then(bounded(MAX_QUANTITY)));
+        let likely = e.take("qty_likely", parse_decimal(&input.qty_likely).and_then(bounded(MAX_QUANTITY)));
+        let high = e.take("qty_high", parse_decimal(&input.qty_high).and_then(bounded(MAX_QUANTITY)));
         if let (Some(l), Some(m)) = (low, likely)
             && l > m
         {
@@ -483,7 +483,7 @@ impl NewBenefitDriver {
         {
             e.push("qty_high", "must be at least the likely quantity");
         }
-        let unit_value = e.take("unit_value", parse_decimal(&input.unit_value).and_then(non_negative));
+        let unit_value = e.take("unit_value", parse_decimal(&input.unit_value).and_then(bounded(MAX_UNIT_VALUE)));
         let escalation = e.take("escalation", optional_rate(&input.escalation, style));
         match (label, kind, unit, low, likely, high, unit_value, escalation) {
             (
@@ -607,16 +607,42 @@ pub fn finance_input<'a>(
     }
 }
 
+/// Upper bounds that keep every schedule sum far inside `Decimal`'s range (about 7.9e28), so a
+/// stored case can always be computed: 240 months x many drivers x 1e9 units x 1e6 per unit x
+/// (1 + 100 %)^20 years of escalation stays below 1e28.
+const MAX_AMOUNT: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
+const MAX_QUANTITY: Decimal = Decimal::from_parts(1_000_000_000, 0, 0, false, 0);
+const MAX_UNIT_VALUE: Decimal = Decimal::from_parts(1_000_000, 0, 0, false, 0);
+
 fn positive_money(d: Decimal) -> Result<Decimal, String> {
-    if d > Decimal::ZERO { Ok(d) } else { Err("a positive amount, e.g. 12500".into()) }
+    if d <= Decimal::ZERO {
+        Err("a positive amount, e.g. 12500".into())
+    } else if d > MAX_AMOUNT {
+        Err("at most 1,000,000,000,000".into())
+    } else {
+        Ok(d)
+    }
 }
 
-fn non_negative(d: Decimal) -> Result<Decimal, String> {
-    if d >= Decimal::ZERO { Ok(d) } else { Err("zero or more".into()) }
+fn bounded(max: Decimal) -> impl Fn(Decimal) -> Result<Decimal, String> {
+    move |d| {
+        if d < Decimal::ZERO {
+            Err("zero or more".into())
+        } else if d > max {
+            Err(format!("at most {}", super::Money(max)).replace(".00", ""))
+        } else {
+            Ok(d)
+        }
+    }
 }
 
+/// An escalation rate: empty means none; from -100 % (exclusive) to +100 % a year.
 fn optional_rate(value: &str, style: RateStyle) -> Result<Decimal, String> {
-    if value.trim().is_empty() { Ok(Decimal::ZERO) } else { style.parse(value) }
+    if value.trim().is_empty() {
+        return Ok(Decimal::ZERO);
+    }
+    let r = style.parse(value)?;
+    if r > Decimal::ONE { Err("at most 100 % a year".into()) } else { Ok(r) }
 }
 
 #[cfg(test)]
@@ -644,6 +670,14 @@ mod tests {
         };
         let err = NewBenefitDriver::parse(&input, RateStyle::Percent).err().unwrap_or_default();
         assert_eq!(err.get("qty_low"), Some("must not exceed the likely quantity"));
+    }
+
+    #[test]
+    fn bounds_keep_cases_computable() {
+        assert_eq!(MAX_AMOUNT, Decimal::from(1_000_000_000_000_i64));
+        assert_eq!(positive_money(Decimal::from(2_000_000_000_000_i64)), Err("at most 1,000,000,000,000".into()));
+        assert_eq!(bounded(MAX_UNIT_VALUE)(Decimal::from(2_000_000)), Err("at most 1,000,000".into()));
+        assert_eq!(optional_rate("150", RateStyle::Percent), Err("at most 100 % a year".into()));
     }
 
     #[test]

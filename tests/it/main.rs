@@ -3,6 +3,7 @@
 
 mod api;
 mod browser;
+mod cli;
 mod finance;
 mod helpers;
 mod pages;
