@@ -169,8 +169,8 @@ pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Val
         "irr": irr,
         "irr_roots": irr_roots,
         "mirr": mirr,
-        "payback": payback.map(|p| p.periods.normalize().to_string()),
-        "discounted_payback": discounted.map(|p| p.periods.normalize().to_string()),
+        "payback": payback.map(|p| money_text(p.periods)),
+        "discounted_payback": discounted.map(|p| money_text(p.periods)),
         "profitability_index": pi.map(money_text),
         "warnings": warnings,
     });
