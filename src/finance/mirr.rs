@@ -79,9 +79,7 @@ mod tests {
     #![expect(clippy::unwrap_used)]
     use super::*;
 
-    fn flows(v: &[i64]) -> Vec<Decimal> {
-        v.iter().map(|&x| Decimal::from(x)).collect()
-    }
+    use crate::finance::test_flows as flows;
 
     #[test]
     fn equals_irr_when_flows_are_a_single_investment_and_return() {

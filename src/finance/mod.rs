@@ -56,3 +56,9 @@ pub use schedule::{
     CaseInput, CaseMetrics, CostInput, CostTiming, DriverInput, MonthFlow, Schedule, TaxInput, build_schedule,
     case_metrics,
 };
+
+/// Whole-number flows for unit tests.
+#[cfg(test)]
+pub(crate) fn test_flows(v: &[i64]) -> Vec<rust_decimal::Decimal> {
+    v.iter().map(|&x| rust_decimal::Decimal::from(x)).collect()
+}

@@ -116,9 +116,7 @@ mod tests {
     #![expect(clippy::unwrap_used)]
     use super::*;
 
-    fn flows(v: &[i64]) -> Vec<Decimal> {
-        v.iter().map(|&x| Decimal::from(x)).collect()
-    }
+    use crate::finance::test_flows as flows;
 
     #[test]
     fn boundaries_and_flags() {

@@ -44,6 +44,18 @@ async fn list_page(state: &AppState, form: ZoneInput, errors: FieldErrors) -> Re
     Ok(ListPage { site, rows, form, errors, statuses: ZoneStatus::ALL })
 }
 
+/// A taken zone code is the user's to fix beside the code field; anything else is an error.
+fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
+    match err {
+        db::DbError::Conflict(msg) => {
+            let mut e = FieldErrors::default();
+            e.push("code", msg);
+            Ok(e)
+        }
+        other => Err(other.into()),
+    }
+}
+
 /// GET /zones
 pub async fn list(State(state): State<AppState>) -> Result<Html<String>, AppError> {
     Ok(Html(list_page(&state, ZoneInput::default(), FieldErrors::default()).await?.render()?))
@@ -59,12 +71,7 @@ pub async fn create(State(state): State<AppState>, FormBody(input): FormBody<Zon
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
-                Err(db::DbError::Conflict(msg)) => {
-                    let mut e = FieldErrors::default();
-                    e.push("code", msg);
-                    e
-                }
-                Err(other) => return Err(other.into()),
+                Err(err) => code_conflict(err)?,
             }
         }
         Err(errors) => errors,
@@ -126,12 +133,7 @@ pub async fn update(
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
-                Err(db::DbError::Conflict(msg)) => {
-                    let mut e = FieldErrors::default();
-                    e.push("code", msg);
-                    e
-                }
-                Err(other) => return Err(other.into()),
+                Err(err) => code_conflict(err)?,
             }
         }
         Err(errors) => errors,
