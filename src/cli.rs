@@ -1,15 +1,24 @@
 //! The subcommands' work. `main` only parses the configuration and calls [`run`].
 
-use crate::config::{Command, Config, ServeArgs};
+use crate::auth::SystemClock;
+use crate::auth::{Role, new_secret, parse_new_password};
+use crate::config::{Command, Config, ServeArgs, TokenCommand, UserCommand};
 use crate::db;
 use crate::domain::Scenario;
+use crate::web::admin;
 use crate::web::{AppState, app};
 use anyhow::{Context, bail};
 use sqlx::SqlitePool;
+use std::net::SocketAddr;
+use std::sync::Arc;
 use tokio::net::TcpListener;
 
 /// The demo plant, embedded so that the binary works from any folder.
 pub const DEMO_SCENARIO: &str = include_str!("../seed/demo-plant.json");
+
+/// Site settings for a database started without the demo plant.
+const EMPTY_SITE: &str = r#"{"format": "pilot-ledger-scenario", "version": 1,
+    "site": {"plant_name": "Our plant", "currency": "EUR", "hurdle_rate": "0.08"}, "zones": []}"#;
 
 /// Run the chosen subcommand.
 pub async fn run(config: Config) -> anyhow::Result<()> {
@@ -18,7 +27,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let pool = prepare(&config.database_url, !args.no_demo).await?;
             let listener =
                 TcpListener::bind(args.addr).await.with_context(|| format!("cannot listen on {}", args.addr))?;
-            serve(listener, pool).await
+            serve(listener, pool, args.secure_cookies).await
         }
         Command::Migrate => {
             open(&config.database_url).await?;
@@ -33,7 +42,82 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             println!("loaded {}: {} zones, {} case versions", file.display(), summary.zones, summary.cases);
             Ok(())
         }
+        Command::User(cmd) => {
+            let pool = open(&config.database_url).await?;
+            match cmd {
+                UserCommand::Add { name, role } => {
+                    let role = Role::parse(&role).map_err(|e| anyhow::anyhow!("--role: {e}"))?;
+                    let password = read_password()?;
+                    let id = admin::create_user(&pool, &name, role, &password, CLI_ACTOR).await?;
+                    println!("user {name} created (id {id}, role {role})");
+                }
+                UserCommand::Passwd { name } => {
+                    let password = read_password()?;
+                    let hash = crate::auth::hash_password(&password)?;
+                    let mut tx = db::begin_write(&pool).await?;
+                    let at = db::now();
+                    let id = db::set_password(&mut tx, &name, &hash, &at, CLI_ACTOR).await?;
+                    db::audit::record(&mut tx, &at, CLI_ACTOR, "user.password", &format!("user {id}"), &name).await?;
+                    tx.commit().await?;
+                    println!("password of {name} changed; their sessions were ended");
+                }
+            }
+            Ok(())
+        }
+        Command::Token(cmd) => {
+            let pool = open(&config.database_url).await?;
+            match cmd {
+                TokenCommand::Create { name, label } => {
+                    let (id, token) = admin::issue_token(&pool, &name, &label, CLI_ACTOR).await?;
+                    eprintln!("token {id} for {name} (shown once; only its hash is stored):");
+                    println!("{token}");
+                }
+                TokenCommand::Revoke { id } => {
+                    admin::withdraw_token(&pool, id, CLI_ACTOR).await?;
+                    println!("token {id} revoked");
+                }
+            }
+            Ok(())
+        }
     }
+}
+
+/// Who the audit trail names for command-line changes.
+const CLI_ACTOR: &str = "command-line";
+
+/// A new password from the terminal (asked twice, not echoed) or one line of standard input.
+fn read_password() -> anyhow::Result<String> {
+    use std::io::IsTerminal;
+    let password = if std::io::stdin().is_terminal() {
+        let first = rpassword::prompt_password("New password (12 to 128 characters): ")?;
+        let second = rpassword::prompt_password("Again: ")?;
+        if first != second {
+            bail!("the two passwords differ; nothing was changed");
+        }
+        first
+    } else {
+        let mut line = String::new();
+        std::io::stdin().read_line(&mut line)?;
+        line.trim_end_matches(['\r', '\n']).to_string()
+    };
+    parse_new_password(&password).map_err(|e| anyhow::anyhow!("password: {e}"))
+}
+
+/// The demo accounts made on the first run: one per role, random passwords printed once.
+async fn create_demo_accounts(pool: &SqlitePool) -> anyhow::Result<()> {
+    let mut lines = Vec::new();
+    for role in Role::ALL {
+        let password = new_secret("");
+        let password = &password.expose()[..20];
+        admin::create_user(pool, role.as_str(), role, password, "first-run").await?;
+        lines.push(format!("  {:<11} {password}", role.as_str()));
+    }
+    // Printed, not logged: the passwords appear here once and are stored only as hashes.
+    println!(
+        "\nDemo accounts (user name and password; shown once, change them on the Admin page):\n{}\n",
+        lines.join("\n")
+    );
+    Ok(())
 }
 
 /// Open the database (creating its folder and file) and apply migrations.
@@ -56,6 +140,15 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
     if demo && db::database_is_empty(&pool).await? {
         let summary = load_text(&pool, DEMO_SCENARIO).await.context("loading the demo plant failed")?;
         tracing::info!(zones = summary.zones, cases = summary.cases, "empty database: demo plant loaded");
+        if db::count_users(&pool).await? == 0 {
+            create_demo_accounts(&pool).await?;
+        }
+    } else if db::database_is_empty(&pool).await? {
+        load_text(&pool, EMPTY_SITE).await.context("writing default site settings failed")?;
+        tracing::warn!("empty database without the demo: default site settings written; change them on the Admin page");
+    }
+    if !demo && db::count_users(&pool).await? == 0 {
+        tracing::warn!("no user accounts yet: create one with `pilot-ledger user add NAME --role admin`");
     }
     Ok(pool)
 }
@@ -73,13 +166,17 @@ pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::Load
 }
 
 /// Serve on `listener` until Ctrl-C; logs the bound address (port 0 picks a free one).
-pub async fn serve(listener: TcpListener, pool: SqlitePool) -> anyhow::Result<()> {
+pub async fn serve(listener: TcpListener, pool: SqlitePool, secure_cookies: bool) -> anyhow::Result<()> {
     let addr = listener.local_addr()?;
     tracing::info!(%addr, "listening on http://{addr}");
-    axum::serve(listener, app(AppState { pool }))
-        .with_graceful_shutdown(async {
-            let _ = tokio::signal::ctrl_c().await;
-        })
-        .await?;
+    axum::serve(
+        listener,
+        app(AppState::new(pool, Arc::new(SystemClock), secure_cookies))
+            .into_make_service_with_connect_info::<SocketAddr>(),
+    )
+    .with_graceful_shutdown(async {
+        let _ = tokio::signal::ctrl_c().await;
+    })
+    .await?;
     Ok(())
 }

@@ -34,6 +34,48 @@ pub enum Command {
         /// The scenario JSON file (format in DEVELOPERS.md).
         file: PathBuf,
     },
+    /// Manage user accounts. Passwords are read from the terminal or standard input, never from arguments.
+    #[command(subcommand)]
+    User(UserCommand),
+    /// Manage API tokens for scripts.
+    #[command(subcommand)]
+    Token(TokenCommand),
+}
+
+/// `user` subcommands.
+#[derive(Debug, Subcommand)]
+pub enum UserCommand {
+    /// Create a user; the password is prompted for (or read as one line from standard input).
+    Add {
+        /// Sign-in name.
+        name: String,
+        /// One of lead, controller, viewer, admin.
+        #[arg(long)]
+        role: String,
+    },
+    /// Set a new password (prompted, or one line of standard input); ends the user's sessions.
+    Passwd {
+        /// Sign-in name.
+        name: String,
+    },
+}
+
+/// `token` subcommands.
+#[derive(Debug, Subcommand)]
+pub enum TokenCommand {
+    /// Create a token acting with the user's role; it is printed once, only its hash is kept.
+    Create {
+        /// The owner's sign-in name.
+        name: String,
+        /// What the token is for.
+        #[arg(long, default_value = "script")]
+        label: String,
+    },
+    /// Revoke a token by its id (as listed on the admin page).
+    Revoke {
+        /// Token id.
+        id: i64,
+    },
 }
 
 /// Flags of `serve`.
@@ -42,13 +84,16 @@ pub struct ServeArgs {
     /// Address to listen on; port 0 picks a free port (the chosen address is logged).
     #[arg(long, env = "PILOT_LEDGER_ADDR", default_value = "127.0.0.1:8080")]
     pub addr: SocketAddr,
-    /// Do not load the demo plant into an empty database.
+    /// Do not load the demo plant and demo accounts into an empty database.
     #[arg(long, env = "PILOT_LEDGER_NO_DEMO")]
     pub no_demo: bool,
+    /// Mark cookies Secure: set this when the server is reached over TLS (behind a proxy).
+    #[arg(long, env = "PILOT_LEDGER_SECURE_COOKIES")]
+    pub secure_cookies: bool,
 }
 
 impl Default for ServeArgs {
     fn default() -> Self {
-        Self { addr: SocketAddr::from(([127, 0, 0, 1], 8080)), no_demo: false }
+        Self { addr: SocketAddr::from(([127, 0, 0, 1], 8080)), no_demo: false, secure_cookies: false }
     }
 }

@@ -4,6 +4,7 @@
 //! Dependencies point one way: `web` -> `db` -> `domain` -> `finance`. `finance` is pure
 //! maths with no web or database types; `db` is the only place with SQL; `web` is thin.
 
+pub mod auth;
 pub mod cli;
 pub mod config;
 pub mod db;

@@ -6,9 +6,11 @@
 //! Every write opens `BEGIN IMMEDIATE`, taking SQLite's write lock up front so that two
 //! writers never deadlock upgrading a read transaction.
 
+pub mod audit;
 mod cases;
 mod scenario;
 mod site;
+mod users;
 mod zones;
 
 pub use cases::{CaseFull, CaseVersion};
@@ -107,4 +109,9 @@ pub use cases::{
 };
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};
+pub use users::{
+    SessionRow, TokenRow, User, count_users, delete_session, get_session, get_user, insert_session, insert_token,
+    insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,
+    user_for_token,
+};
 pub use zones::{get_zone, insert_zone, list_zones, update_zone};

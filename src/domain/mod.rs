@@ -115,7 +115,7 @@ pub(crate) fn parse_count(value: &str, min: u32, max: u32) -> Result<u32, String
 
 /// Lenient deserializers: JSON bodies may give numbers as strings or numbers, and flags as
 /// booleans or form-style strings.
-pub(crate) mod de {
+pub mod de {
     use serde::{Deserialize, Deserializer};
 
     #[derive(Deserialize)]

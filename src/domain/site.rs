@@ -106,6 +106,21 @@ impl SiteSettings {
         }
     }
 
+    /// The hurdle rate as a percentage for the settings form.
+    pub fn hurdle_pct(&self) -> String {
+        (self.hurdle_rate * Decimal::ONE_HUNDRED).normalize().to_string()
+    }
+
+    /// The tax rate as a percentage for the settings form; empty when unset.
+    pub fn tax_pct(&self) -> String {
+        self.tax_rate.map(|t| (t * Decimal::ONE_HUNDRED).normalize().to_string()).unwrap_or_default()
+    }
+
+    /// Depreciation years for the settings form; empty when unset.
+    pub fn depreciation_text(&self) -> String {
+        self.depreciation_years.map(|y| y.to_string()).unwrap_or_default()
+    }
+
     /// The annual hurdle rate as the finance engine takes it.
     pub fn hurdle_f64(&self) -> f64 {
         use rust_decimal::prelude::ToPrimitive;

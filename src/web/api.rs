@@ -1,52 +1,46 @@
 //! JSON API under `/api/v1`: zones, cases with their figures, the stateless metrics endpoint
 //! and the OpenAPI document.
 
+use super::auth::CurrentUser;
 use super::metrics;
-use super::{ACTOR, ApiError, AppState, JsonBody};
+use super::{ApiError, AppState, JsonBody};
 use crate::db::{self, CaseFull};
 use crate::domain::{CaseSpec, CaseSpecInput, CaseState, NewZone, RateStyle, ZoneInput, case_figures};
 use crate::finance::schedule::CaseMetrics;
 use axum::Json;
-use axum::Router;
 use axum::extract::{Path, State};
 use axum::http::{StatusCode, header};
 use axum::response::IntoResponse;
-use axum::routing::{get, post};
 use serde_json::{Value, json};
 
-/// The routes, relative to `/api/v1`.
-pub fn router() -> Router<AppState> {
-    Router::new()
-        .route("/openapi.json", get(openapi))
-        .route("/metrics", post(metrics::metrics))
-        .route("/zones", get(list_zones).post(create_zone))
-        .route("/zones/{id}", get(get_zone))
-        .route("/zones/{id}/cases", post(create_case))
-        .route("/cases/{id}", get(get_case))
-}
-
-async fn openapi() -> impl IntoResponse {
+/// GET /api/v1/openapi.json
+pub async fn openapi() -> impl IntoResponse {
     ([(header::CONTENT_TYPE, "application/json")], include_str!("openapi.json"))
 }
 
-async fn list_zones(State(state): State<AppState>) -> Result<Json<Value>, ApiError> {
+/// GET /api/v1/zones
+pub async fn list_zones(State(state): State<AppState>) -> Result<Json<Value>, ApiError> {
     let zones = db::list_zones(&state.pool).await?;
     Ok(Json(json!({ "zones": zones })))
 }
 
-async fn create_zone(
+/// POST /api/v1/zones
+pub async fn create_zone(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
     let zone = NewZone::parse(&input)?;
     let mut tx = db::begin_write(&state.pool).await?;
-    let id = db::insert_zone(&mut tx, &zone, ACTOR).await?;
+    let id = db::insert_zone(&mut tx, &zone, user.name()).await?;
+    db::audit::record(&mut tx, &db::now(), user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;
     tx.commit().await?;
     let zone = db::get_zone(&state.pool, id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/zones/{id}"))], Json(json!({ "zone": zone }))))
 }
 
-async fn get_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+/// GET /api/v1/zones/{id}
+pub async fn get_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
     let zone = db::get_zone(&state.pool, id).await?;
     let cases = db::list_cases(&state.pool, id).await?;
     Ok(Json(json!({ "zone": zone, "cases": cases })))
@@ -54,21 +48,32 @@ async fn get_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Result<
 
 /// POST /zones/{id}/cases: a whole case (header, costs, drivers; rates as fractions) stored as
 /// the zone's next draft version.
-async fn create_case(
+pub async fn create_case(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(zone_id): Path<i64>,
     JsonBody(input): JsonBody<CaseSpecInput>,
 ) -> Result<impl IntoResponse, ApiError> {
     let mut spec = CaseSpec::parse(&input, RateStyle::Fraction)?;
     spec.state = CaseState::Draft;
     let mut tx = db::begin_write(&state.pool).await?;
-    let id = db::insert_case(&mut tx, zone_id, &spec, ACTOR).await?;
+    let id = db::insert_case(&mut tx, zone_id, &spec, user.name()).await?;
+    db::audit::record(
+        &mut tx,
+        &db::now(),
+        user.name(),
+        "case.create",
+        &format!("case {id}"),
+        &format!("zone {zone_id}"),
+    )
+    .await?;
     tx.commit().await?;
     let body = case_body(&state, id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{id}"))], Json(body)))
 }
 
-async fn get_case(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+/// GET /api/v1/cases/{id}
+pub async fn get_case(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
     Ok(Json(case_body(&state, id).await?))
 }
 

@@ -1,8 +1,9 @@
 //! Business-case pages: figures with the chart, the monthly table, the editor, scenario copies
 //! and the side-by-side comparison.
 
+use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::LineChart;
-use super::{ACTOR, AppError, AppState, FormBody};
+use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DriverInput, DriverKind, FieldErrors, Money,
@@ -112,6 +113,7 @@ fn figures_of(full: &CaseFull, site: &SiteSettings) -> Result<CaseFigures, AppEr
 #[derive(Template)]
 #[template(path = "cases/view.html")]
 struct ViewPage {
+    nav: Nav,
     site: SiteSettings,
     zone: Zone,
     full: CaseFull,
@@ -122,7 +124,11 @@ struct ViewPage {
 }
 
 /// GET /cases/{id}: the figures and the cumulative discounted cash-flow chart.
-pub async fn view(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Html<String>, AppError> {
+pub async fn view(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Html<String>, AppError> {
     let site = db::get_site(&state.pool).await?;
     let (full, figures) = load_figures(&state, id, &site).await?;
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
@@ -134,6 +140,7 @@ pub async fn view(State(state): State<AppState>, Path(id): Path<i64>) -> Result<
         "The cumulative discounted cash flow",
     );
     let page = ViewPage {
+        nav: Nav::from(&me),
         m: MetricsView::from(&pre.metrics),
         after_tax: figures.after_tax.as_ref().map(|v| MetricsView::from(&v.metrics)),
         site,
@@ -162,6 +169,7 @@ pub struct FlowRow {
 #[derive(Template)]
 #[template(path = "cases/flows.html")]
 struct FlowsPage {
+    nav: Nav,
     site: SiteSettings,
     zone: Zone,
     full: CaseFull,
@@ -179,6 +187,7 @@ pub struct FlowsQuery {
 /// GET /cases/{id}/flows: the monthly cash-flow table behind the NPV (`?view=after_tax`).
 pub async fn flows(
     State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
     Query(q): Query<FlowsQuery>,
 ) -> Result<Html<String>, AppError> {
@@ -208,12 +217,13 @@ pub async fn flows(
         })
         .collect();
     let monthly_rate = Percent(view.schedule.monthly_rate);
-    Ok(Html(FlowsPage { site, zone, full, rows, after_tax, monthly_rate }.render()?))
+    Ok(Html(FlowsPage { nav: Nav::from(&me), site, zone, full, rows, after_tax, monthly_rate }.render()?))
 }
 
 #[derive(Template)]
 #[template(path = "cases/edit.html")]
 struct EditPage {
+    nav: Nav,
     site: SiteSettings,
     zone: Zone,
     full: CaseFull,
@@ -250,11 +260,13 @@ fn header_input(h: &CaseHeader) -> CaseHeaderInput {
     }
 }
 
-async fn edit_page(state: &AppState, id: i64, failed: Failed) -> Result<Response, AppError> {
+async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Result<Response, AppError> {
     let site = db::get_site(&state.pool).await?;
     let full = db::case_full(&state.pool, id).await?;
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
+    let editable = nav.can_edit && full.case.state == crate::domain::CaseState::Draft;
     let mut page = EditPage {
+        nav,
         header: header_input(&full.case.header),
         header_errors: FieldErrors::default(),
         cost: CostInput { kind: "one_off".into(), category: "hardware".into(), capex: true, ..Default::default() },
@@ -263,7 +275,7 @@ async fn edit_page(state: &AppState, id: i64, failed: Failed) -> Result<Response
         driver_errors: FieldErrors::default(),
         categories: CostCategory::ALL,
         kinds: DriverKind::ALL,
-        editable: full.case.state == crate::domain::CaseState::Draft,
+        editable,
         notice: None,
         value_unit: format!("{} / unit", site.currency),
         site,
@@ -293,22 +305,34 @@ async fn edit_page(state: &AppState, id: i64, failed: Failed) -> Result<Response
 }
 
 /// GET /cases/{id}/edit
-pub async fn edit(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Response, AppError> {
-    edit_page(&state, id, Failed::Nothing).await
+pub async fn edit(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Response, AppError> {
+    edit_page(&state, Nav::from(&me), id, Failed::Nothing).await
 }
 
-/// Commit a write and go back to the editor, or show the editor with the refusal.
-async fn write_then_edit<F>(state: &AppState, id: i64, write: F) -> Result<Response, AppError>
+/// Commit a write (with its audit row) and go back to the editor, or show the editor with
+/// the refusal.
+async fn write_then_edit<F>(
+    state: &AppState,
+    user: &Principal,
+    id: i64,
+    action: &str,
+    write: F,
+) -> Result<Response, AppError>
 where
-    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<(), db::DbError>,
+    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<String, db::DbError>,
 {
     let mut tx = db::begin_write(&state.pool).await?;
     match write(&mut tx).await {
-        Ok(()) => {
+        Ok(detail) => {
+            db::audit::record(&mut tx, &db::now(), user.name(), action, &format!("case {id}"), &detail).await?;
             tx.commit().await?;
             Ok(Redirect::to(&format!("/cases/{id}/edit")).into_response())
         }
-        Err(db::DbError::Conflict(msg)) => edit_page(state, id, Failed::Notice(msg)).await,
+        Err(db::DbError::Conflict(msg)) => edit_page(state, Nav::from(user), id, Failed::Notice(msg)).await,
         Err(other) => Err(other.into()),
     }
 }
@@ -316,56 +340,83 @@ where
 /// POST /cases/{id}/edit: change the header of a draft.
 pub async fn update_header(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
     FormBody(input): FormBody<CaseHeaderInput>,
 ) -> Result<Response, AppError> {
     match CaseHeader::parse(&input, RateStyle::Percent) {
-        Ok(header) => write_then_edit(&state, id, async |conn| db::update_header(conn, id, &header, ACTOR).await).await,
-        Err(e) => edit_page(&state, id, Failed::Header(input, e)).await,
+        Ok(header) => {
+            let detail = format!("{} months from {}", header.horizon_months, header.start_month);
+            write_then_edit(&state, &user, id, "case.update", async |conn| {
+                db::update_header(conn, id, &header, user.name()).await.map(|()| detail)
+            })
+            .await
+        }
+        Err(e) => edit_page(&state, Nav::from(&user), id, Failed::Header(input, e)).await,
     }
 }
 
 /// POST /cases/{id}/costs: add a cost item to a draft.
 pub async fn add_cost(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
     FormBody(input): FormBody<CostInput>,
 ) -> Result<Response, AppError> {
     let full = db::case_full(&state.pool, id).await?;
     match NewCostItem::parse(&input, full.case.header.horizon_months, RateStyle::Percent) {
         Ok(item) => {
-            write_then_edit(&state, id, async |conn| db::add_cost(conn, id, &item, ACTOR).await.map(drop)).await
+            write_then_edit(&state, &user, id, "cost.add", async |conn| {
+                db::add_cost(conn, id, &item, user.name())
+                    .await
+                    .map(|c| format!("cost {c}: {} {}", item.label, item.amount))
+            })
+            .await
         }
-        Err(e) => edit_page(&state, id, Failed::Cost(input, e)).await,
+        Err(e) => edit_page(&state, Nav::from(&user), id, Failed::Cost(input, e)).await,
     }
 }
 
 /// POST /cases/{id}/drivers: add a benefit driver to a draft.
 pub async fn add_driver(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
     FormBody(input): FormBody<DriverInput>,
 ) -> Result<Response, AppError> {
     match NewBenefitDriver::parse(&input, RateStyle::Percent) {
-        Ok(d) => write_then_edit(&state, id, async |conn| db::add_driver(conn, id, &d, ACTOR).await.map(drop)).await,
-        Err(e) => edit_page(&state, id, Failed::Driver(input, e)).await,
+        Ok(d) => {
+            write_then_edit(&state, &user, id, "driver.add", async |conn| {
+                db::add_driver(conn, id, &d, user.name()).await.map(|n| format!("driver {n}: {}", d.label))
+            })
+            .await
+        }
+        Err(e) => edit_page(&state, Nav::from(&user), id, Failed::Driver(input, e)).await,
     }
 }
 
 /// POST /cases/{id}/costs/{item}/delete
 pub async fn delete_cost(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path((id, item)): Path<(i64, i64)>,
 ) -> Result<Response, AppError> {
-    write_then_edit(&state, id, async |conn| db::delete_cost(conn, id, item, ACTOR).await).await
+    write_then_edit(&state, &user, id, "cost.remove", async |conn| {
+        db::delete_cost(conn, id, item, user.name()).await.map(|()| format!("cost {item}"))
+    })
+    .await
 }
 
 /// POST /cases/{id}/drivers/{item}/delete
 pub async fn delete_driver(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path((id, item)): Path<(i64, i64)>,
 ) -> Result<Response, AppError> {
-    write_then_edit(&state, id, async |conn| db::delete_driver(conn, id, item, ACTOR).await).await
+    write_then_edit(&state, &user, id, "driver.remove", async |conn| {
+        db::delete_driver(conn, id, item, user.name()).await.map(|()| format!("driver {item}"))
+    })
+    .await
 }
 
 #[derive(Deserialize)]
@@ -377,6 +428,7 @@ pub struct CopyForm {
 /// POST /cases/{id}/copy: save this version as the zone's next scenario version.
 pub async fn copy(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
     FormBody(form): FormBody<CopyForm>,
 ) -> Result<Response, AppError> {
@@ -389,7 +441,16 @@ pub async fn copy(
         }
     };
     let mut tx = db::begin_write(&state.pool).await?;
-    let new_id = db::copy_case(&mut tx, id, &label, ACTOR).await?;
+    let new_id = db::copy_case(&mut tx, id, &label, user.name()).await?;
+    db::audit::record(
+        &mut tx,
+        &db::now(),
+        user.name(),
+        "case.copy",
+        &format!("case {new_id}"),
+        &format!("from case {id}"),
+    )
+    .await?;
     tx.commit().await?;
     Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
 }
@@ -404,6 +465,7 @@ pub struct CompareRow {
 #[derive(Template)]
 #[template(path = "cases/compare.html")]
 struct ComparePage {
+    nav: Nav,
     site: SiteSettings,
     zone: Zone,
     versions: Vec<db::CaseVersion>,
@@ -422,6 +484,7 @@ pub struct CompareQuery {
 /// GET /zones/{id}/compare?a=&b=: two scenario versions side by side.
 pub async fn compare(
     State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
     Path(zone_id): Path<i64>,
     Query(q): Query<CompareQuery>,
 ) -> Result<Html<String>, AppError> {
@@ -465,5 +528,5 @@ pub async fn compare(
         a = Some(fa);
         b = Some(fb);
     }
-    Ok(Html(ComparePage { site, zone, versions, a, b, rows, npv_difference }.render()?))
+    Ok(Html(ComparePage { nav: Nav::from(&me), site, zone, versions, a, b, rows, npv_difference }.render()?))
 }

@@ -23,6 +23,12 @@ pub enum AppError {
         /// What was wrong.
         message: String,
     },
+    /// Not signed in, or the token is unknown or revoked (401).
+    #[error("sign in first, or send a valid API token as Authorization: Bearer <token>")]
+    Unauthenticated,
+    /// Signed in, but the role does not allow this (403).
+    #[error("your role does not allow this")]
+    Forbidden,
     /// No such thing (404).
     #[error("{0} not found")]
     NotFound(&'static str),
@@ -40,6 +46,8 @@ impl AppError {
         match self {
             Self::Invalid(_) => StatusCode::UNPROCESSABLE_ENTITY,
             Self::BadRequest { status, .. } => *status,
+            Self::Unauthenticated => StatusCode::UNAUTHORIZED,
+            Self::Forbidden => StatusCode::FORBIDDEN,
             Self::NotFound(_) => StatusCode::NOT_FOUND,
             Self::Conflict(_) => StatusCode::CONFLICT,
             Self::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
@@ -95,6 +103,7 @@ impl From<sqlx::Error> for AppError {
 #[derive(Template)]
 #[template(path = "error.html")]
 struct ErrorPage {
+    nav: super::auth::Nav,
     status: u16,
     reason: &'static str,
     message: String,
@@ -110,6 +119,7 @@ impl IntoResponse for AppError {
             _ => FieldErrors::default(),
         };
         let page = ErrorPage {
+            nav: super::auth::Nav::default(),
             status: status.as_u16(),
             reason: status.canonical_reason().unwrap_or("Error"),
             message: self.public_message(),
@@ -143,6 +153,11 @@ impl IntoResponse for ApiError {
             _ => FieldErrors::default(),
         };
         let body = json!({ "error": self.0.public_message(), "fields": fields });
-        (self.0.status(), Json(body)).into_response()
+        let mut res = (self.0.status(), Json(body)).into_response();
+        if matches!(self.0, AppError::Unauthenticated) {
+            res.headers_mut()
+                .insert(axum::http::header::WWW_AUTHENTICATE, axum::http::HeaderValue::from_static("Bearer"));
+        }
+        res
     }
 }

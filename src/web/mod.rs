@@ -1,6 +1,9 @@
-//! The thin HTTP layer: state, router, middleware, and one file per area.
+//! The thin HTTP layer: state, the route table with each route's permission, middleware, and
+//! one file per area.
 
+pub mod admin;
 mod api;
+pub mod auth;
 mod cases;
 mod chart;
 mod error;
@@ -10,14 +13,18 @@ mod zones;
 
 pub use error::{ApiError, AppError};
 
+use crate::auth::{Clock, Permission, Throttle};
 use axum::extract::{FromRequest, Request};
-use axum::http::{HeaderValue, StatusCode, header};
-use axum::routing::{get, post};
+use axum::http::{HeaderValue, Method, StatusCode, header};
+use axum::routing::{MethodRouter, get, post};
 use axum::{Form, Json, Router};
 use serde::de::DeserializeOwned;
 use sqlx::SqlitePool;
+use std::collections::HashMap;
+use std::sync::Arc;
 use std::time::Duration;
 use tower_http::compression::CompressionLayer;
+use tower_http::csrf::CsrfLayer;
 use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::services::ServeDir;
 use tower_http::set_header::SetResponseHeaderLayer;
@@ -34,40 +41,109 @@ pub const REQUEST_TIMEOUT: Duration = Duration::from_secs(30);
 pub struct AppState {
     /// The SQLite pool.
     pub pool: SqlitePool,
+    /// Where "now" comes from (tests inject a manual clock).
+    pub clock: Arc<dyn Clock>,
+    /// Failed sign-in counts.
+    pub throttle: Arc<Throttle>,
+    /// Whether cookies carry `Secure` (set when served over TLS).
+    pub secure_cookies: bool,
+    permissions: Arc<HashMap<(Method, String), Permission>>,
 }
 
-/// Who is writing. Accounts arrive with the next issue; until then every write is attributed
-/// to this placeholder so that the `*_by` columns are already filled.
-pub(crate) const ACTOR: &str = "local-user";
+impl AppState {
+    /// State for `pool` with the given clock.
+    pub fn new(pool: SqlitePool, clock: Arc<dyn Clock>, secure_cookies: bool) -> Self {
+        let permissions = routes().into_iter().map(|r| ((r.method, r.path.to_string()), r.permission)).collect();
+        Self { pool, clock, throttle: Arc::default(), secure_cookies, permissions: Arc::new(permissions) }
+    }
+}
+
+/// One route: method, path, the permission it needs, and its handler.
+pub struct Route {
+    /// HTTP method.
+    pub method: Method,
+    /// Path pattern as axum spells it (`/zones/{id}`).
+    pub path: &'static str,
+    /// What the caller must hold.
+    pub permission: Permission,
+    handler: MethodRouter<AppState>,
+}
+
+/// A route of the table: nothing can be routed without naming its permission.
+fn route(method: Method, path: &'static str, permission: Permission, handler: MethodRouter<AppState>) -> Route {
+    Route { method, path, permission, handler }
+}
+
+/// Every route of the application with its permission: the router is built from this list,
+/// the authorization middleware reads it, and the role x route test walks it.
+pub fn routes() -> Vec<Route> {
+    use Permission::{Admin, EditCases, Public, Read, SignedIn};
+    let (g, p) = (Method::GET, Method::POST);
+    vec![
+        route(g.clone(), "/login", Public, get(auth::login_page)),
+        route(p.clone(), "/login", Public, post(auth::login)),
+        route(p.clone(), "/logout", SignedIn, post(auth::logout)),
+        route(g.clone(), "/about", Public, get(pages::about)),
+        route(g.clone(), "/", SignedIn, get(pages::home)),
+        route(g.clone(), "/zones", Read, get(zones::list)),
+        route(p.clone(), "/zones", EditCases, post(zones::create)),
+        route(g.clone(), "/zones/{id}", Read, get(zones::detail)),
+        route(p.clone(), "/zones/{id}", EditCases, post(zones::update)),
+        route(p.clone(), "/zones/{id}/cases", EditCases, post(zones::new_case)),
+        route(g.clone(), "/zones/{id}/compare", Read, get(cases::compare)),
+        route(g.clone(), "/cases/{id}", Read, get(cases::view)),
+        route(g.clone(), "/cases/{id}/flows", Read, get(cases::flows)),
+        route(g.clone(), "/cases/{id}/edit", Read, get(cases::edit)),
+        route(p.clone(), "/cases/{id}/edit", EditCases, post(cases::update_header)),
+        route(p.clone(), "/cases/{id}/costs", EditCases, post(cases::add_cost)),
+        route(p.clone(), "/cases/{id}/costs/{item}/delete", EditCases, post(cases::delete_cost)),
+        route(p.clone(), "/cases/{id}/drivers", EditCases, post(cases::add_driver)),
+        route(p.clone(), "/cases/{id}/drivers/{item}/delete", EditCases, post(cases::delete_driver)),
+        route(p.clone(), "/cases/{id}/copy", EditCases, post(cases::copy)),
+        route(g.clone(), "/admin", Admin, get(admin::page)),
+        route(p.clone(), "/admin/users", Admin, post(admin::add_user)),
+        route(p.clone(), "/admin/users/{id}", Admin, post(admin::update_user)),
+        route(p.clone(), "/admin/users/{id}/password", Admin, post(admin::reset_password)),
+        route(p.clone(), "/admin/tokens", Admin, post(admin::create_token)),
+        route(p.clone(), "/admin/tokens/{id}/revoke", Admin, post(admin::revoke_token)),
+        route(p.clone(), "/admin/settings", Admin, post(admin::update_settings)),
+        route(g.clone(), "/admin/audit", Admin, get(admin::audit)),
+        route(g.clone(), "/api/v1/openapi.json", Public, get(api::openapi)),
+        route(p.clone(), "/api/v1/metrics", Read, post(metrics::metrics)),
+        route(g.clone(), "/api/v1/zones", Read, get(api::list_zones)),
+        route(p.clone(), "/api/v1/zones", EditCases, post(api::create_zone)),
+        route(g.clone(), "/api/v1/zones/{id}", Read, get(api::get_zone)),
+        route(p.clone(), "/api/v1/zones/{id}/cases", EditCases, post(api::create_case)),
+        route(g, "/api/v1/cases/{id}", Read, get(api::get_case)),
+    ]
+}
 
 /// The whole application: pages, API, static files and middleware.
 pub fn app(state: AppState) -> Router {
     let static_dir = concat!(env!("CARGO_MANIFEST_DIR"), "/static");
-    Router::new()
-        .route("/", get(pages::home))
-        .route("/about", get(pages::about))
-        .route("/zones", get(zones::list).post(zones::create))
-        .route("/zones/{id}", get(zones::detail).post(zones::update))
-        .route("/zones/{id}/cases", post(zones::new_case))
-        .route("/zones/{id}/compare", get(cases::compare))
-        .route("/cases/{id}", get(cases::view))
-        .route("/cases/{id}/flows", get(cases::flows))
-        .route("/cases/{id}/edit", get(cases::edit).post(cases::update_header))
-        .route("/cases/{id}/costs", post(cases::add_cost))
-        .route("/cases/{id}/costs/{item}/delete", post(cases::delete_cost))
-        .route("/cases/{id}/drivers", post(cases::add_driver))
-        .route("/cases/{id}/drivers/{item}/delete", post(cases::delete_driver))
-        .route("/cases/{id}/copy", post(cases::copy))
-        .nest("/api/v1", api::router())
+    let mut router = Router::new();
+    for r in routes() {
+        router = router.route(r.path, r.handler);
+    }
+    router
+        .route_layer(axum::middleware::from_fn_with_state(state.clone(), auth::authorize))
         .nest_service("/static", ServeDir::new(static_dir))
         .fallback(pages::not_found)
         .with_state(state)
+        // Cross-site form posts are refused by Sec-Fetch-Site / Origin (no token state needed).
+        // Scripts with a Bearer token send neither header and pass; browsers cannot attach a
+        // Bearer token by themselves.
+        .layer(CsrfLayer::new())
         .layer(SetResponseHeaderLayer::if_not_present(
             header::CONTENT_SECURITY_POLICY,
-            HeaderValue::from_static("default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; frame-ancestors 'none'; form-action 'self'; base-uri 'none'"),
+            HeaderValue::from_static(
+                "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; frame-ancestors 'none'; form-action 'self'; base-uri 'none'",
+            ),
         ))
         .layer(SetResponseHeaderLayer::if_not_present(header::X_CONTENT_TYPE_OPTIONS, HeaderValue::from_static("nosniff")))
+        .layer(SetResponseHeaderLayer::if_not_present(header::X_FRAME_OPTIONS, HeaderValue::from_static("DENY")))
         .layer(SetResponseHeaderLayer::if_not_present(header::REFERRER_POLICY, HeaderValue::from_static("same-origin")))
+        .layer(SetResponseHeaderLayer::if_not_present(header::CACHE_CONTROL, HeaderValue::from_static("no-store")))
         .layer(CompressionLayer::new())
         .layer(RequestBodyLimitLayer::new(BODY_LIMIT_BYTES))
         .layer(TimeoutLayer::with_status_code(StatusCode::REQUEST_TIMEOUT, REQUEST_TIMEOUT))

@@ -1,6 +1,7 @@
 //! Pages that belong to no area: home, about, not found.
 
 use super::AppError;
+use super::auth::{MaybeUser, Nav};
 use askama::Template;
 use axum::response::{Html, IntoResponse, Redirect};
 
@@ -11,11 +12,13 @@ pub async fn home() -> Redirect {
 
 #[derive(Template)]
 #[template(path = "about.html")]
-struct AboutPage;
+struct AboutPage {
+    nav: Nav,
+}
 
 /// The about page, with the cautions.
-pub async fn about() -> Result<Html<String>, AppError> {
-    Ok(Html(AboutPage.render()?))
+pub async fn about(MaybeUser(me): MaybeUser) -> Result<Html<String>, AppError> {
+    Ok(Html(AboutPage { nav: me.as_ref().map(Nav::from).unwrap_or_default() }.render()?))
 }
 
 /// Any unknown path.

@@ -1,7 +1,8 @@
 //! Zone pages: the list with its create form, the detail page with its versions.
 
+use super::auth::{CurrentUser, Nav};
 use super::cases::{MetricsView, load_figures};
-use super::{ACTOR, AppError, AppState, FormBody};
+use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseVersion};
 use crate::domain::{
     CaseHeader, CaseSpec, CaseState, FieldErrors, Month, NewZone, SiteSettings, Zone, ZoneInput, ZoneStatus,
@@ -21,6 +22,7 @@ pub struct ZoneRow {
 #[derive(Template)]
 #[template(path = "zones/list.html")]
 struct ListPage {
+    nav: Nav,
     site: SiteSettings,
     rows: Vec<ZoneRow>,
     form: ZoneInput,
@@ -28,7 +30,7 @@ struct ListPage {
     statuses: [ZoneStatus; 6],
 }
 
-async fn list_page(state: &AppState, form: ZoneInput, errors: FieldErrors) -> Result<ListPage, AppError> {
+async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErrors) -> Result<ListPage, AppError> {
     let site = db::get_site(&state.pool).await?;
     let mut rows = Vec::new();
     for zone in db::list_zones(&state.pool).await? {
@@ -41,7 +43,7 @@ async fn list_page(state: &AppState, form: ZoneInput, errors: FieldErrors) -> Re
         };
         rows.push(ZoneRow { zone, latest });
     }
-    Ok(ListPage { site, rows, form, errors, statuses: ZoneStatus::ALL })
+    Ok(ListPage { nav, site, rows, form, errors, statuses: ZoneStatus::ALL })
 }
 
 /// A taken zone code is the user's to fix beside the code field; anything else is an error.
@@ -57,17 +59,30 @@ fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
 }
 
 /// GET /zones
-pub async fn list(State(state): State<AppState>) -> Result<Html<String>, AppError> {
-    Ok(Html(list_page(&state, ZoneInput::default(), FieldErrors::default()).await?.render()?))
+pub async fn list(State(state): State<AppState>, CurrentUser(me): CurrentUser) -> Result<Html<String>, AppError> {
+    Ok(Html(list_page(&state, Nav::from(&me), ZoneInput::default(), FieldErrors::default()).await?.render()?))
 }
 
 /// POST /zones: create a zone, or show the list again with the form's errors.
-pub async fn create(State(state): State<AppState>, FormBody(input): FormBody<ZoneInput>) -> Result<Response, AppError> {
+pub async fn create(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    FormBody(input): FormBody<ZoneInput>,
+) -> Result<Response, AppError> {
     let result = match NewZone::parse(&input) {
         Ok(zone) => {
             let mut tx = db::begin_write(&state.pool).await?;
-            match db::insert_zone(&mut tx, &zone, ACTOR).await {
+            match db::insert_zone(&mut tx, &zone, user.name()).await {
                 Ok(id) => {
+                    db::audit::record(
+                        &mut tx,
+                        &db::now(),
+                        user.name(),
+                        "zone.create",
+                        &format!("zone {id}"),
+                        &zone.code,
+                    )
+                    .await?;
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
@@ -76,13 +91,14 @@ pub async fn create(State(state): State<AppState>, FormBody(input): FormBody<Zon
         }
         Err(errors) => errors,
     };
-    let page = list_page(&state, input, result).await?;
+    let page = list_page(&state, Nav::from(&user), input, result).await?;
     Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response())
 }
 
 #[derive(Template)]
 #[template(path = "zones/detail.html")]
 struct DetailPage {
+    nav: Nav,
     site: SiteSettings,
     zone: Zone,
     versions: Vec<(CaseVersion, MetricsView)>,
@@ -93,6 +109,7 @@ struct DetailPage {
 
 async fn detail_page(
     state: &AppState,
+    nav: Nav,
     id: i64,
     form: Option<ZoneInput>,
     errors: FieldErrors,
@@ -111,25 +128,33 @@ async fn detail_page(
         owner: zone.owner.clone(),
         status: zone.status.as_str().to_string(),
     });
-    Ok(DetailPage { site, zone, versions, form, errors, statuses: ZoneStatus::ALL })
+    Ok(DetailPage { nav, site, zone, versions, form, errors, statuses: ZoneStatus::ALL })
 }
 
 /// GET /zones/{id}
-pub async fn detail(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Html<String>, AppError> {
-    Ok(Html(detail_page(&state, id, None, FieldErrors::default()).await?.render()?))
+pub async fn detail(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Html<String>, AppError> {
+    Ok(Html(detail_page(&state, Nav::from(&me), id, None, FieldErrors::default()).await?.render()?))
 }
 
 /// POST /zones/{id}: change the zone's fields.
 pub async fn update(
     State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
     FormBody(input): FormBody<ZoneInput>,
 ) -> Result<Response, AppError> {
     let errors = match NewZone::parse(&input) {
         Ok(zone) => {
             let mut tx = db::begin_write(&state.pool).await?;
-            match db::update_zone(&mut tx, id, &zone, ACTOR).await {
+            match db::update_zone(&mut tx, id, &zone, user.name()).await {
                 Ok(()) => {
+                    let detail = format!("{} {} {}", zone.code, zone.name, zone.status);
+                    db::audit::record(&mut tx, &db::now(), user.name(), "zone.update", &format!("zone {id}"), &detail)
+                        .await?;
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
@@ -138,12 +163,16 @@ pub async fn update(
         }
         Err(errors) => errors,
     };
-    let page = detail_page(&state, id, Some(input), errors).await?;
+    let page = detail_page(&state, Nav::from(&user), id, Some(input), errors).await?;
     Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response())
 }
 
 /// POST /zones/{id}/cases: start a new, empty draft business case and open its editor.
-pub async fn new_case(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Redirect, AppError> {
+pub async fn new_case(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Redirect, AppError> {
     let site = db::get_site(&state.pool).await?;
     let today = time::OffsetDateTime::now_utc().date();
     let start = Month { year: today.year(), month: u8::from(today.month()) }.plus(1);
@@ -162,7 +191,16 @@ pub async fn new_case(State(state): State<AppState>, Path(id): Path<i64>) -> Res
         drivers: Vec::new(),
     };
     let mut tx = db::begin_write(&state.pool).await?;
-    let case_id = db::insert_case(&mut tx, id, &spec, ACTOR).await?;
+    let case_id = db::insert_case(&mut tx, id, &spec, user.name()).await?;
+    db::audit::record(
+        &mut tx,
+        &db::now(),
+        user.name(),
+        "case.create",
+        &format!("case {case_id}"),
+        &format!("zone {id}"),
+    )
+    .await?;
     tx.commit().await?;
     Ok(Redirect::to(&format!("/cases/{case_id}/edit")))
 }

@@ -118,6 +118,53 @@ async fn screenshot(c: &Client, name: &str) {
     std::fs::write(dir.join(format!("{name}.png")), c.screenshot().await.unwrap()).unwrap();
 }
 
+async fn sign_in(c: &Client, base: &str, name: &str) {
+    c.goto(&format!("{base}/login")).await.unwrap();
+    fill(c, "name", name).await;
+    fill(c, "password", crate::helpers::PASSWORD).await;
+    click_button(c, "Sign in").await;
+    assert_eq!(c.current_url().await.unwrap().path(), "/zones", "{name} should land on the zone list");
+}
+
+async fn has_button(c: &Client, text: &str) -> bool {
+    c.find(Locator::XPath(&format!("//button[normalize-space()='{text}']"))).await.is_ok()
+}
+
+/// Management reads everything and finds no control that would change anything (OWASP ASVS
+/// 4.0.3 V4.1.1: the server refuses it too, see security.rs); then the programme lead signs in
+/// and edits a case.
+#[tokio::test]
+async fn viewer_sees_no_edit_controls_then_lead_edits() {
+    let t: TestApp = test_app(true).await;
+    let Some(b) = browser().await else { return };
+    let c = &b.client;
+    let base = format!("http://{}", t.listen().await);
+
+    sign_in(c, &base, "t-viewer").await;
+    assert!(c.find(Locator::LinkText("PRESS-2")).await.is_ok());
+    assert!(!has_button(c, "Add zone").await);
+    click_and_wait(c, Locator::LinkText("PRESS-2")).await;
+    assert!(!has_button(c, "Start a new business case").await && !has_button(c, "Save zone").await);
+    click_and_wait(c, Locator::LinkText("v1")).await;
+    assert!(c.find(Locator::Id("npv")).await.is_ok());
+    assert!(!has_button(c, "Save new version").await);
+    click_and_wait(c, Locator::LinkText("Inputs")).await;
+    assert!(!has_button(c, "Add cost item").await && !has_button(c, "Save case").await);
+    assert!(!has_button(c, "Remove").await);
+    screenshot(c, "viewer-inputs").await;
+    click_button(c, "Sign out").await;
+    assert_eq!(c.current_url().await.unwrap().path(), "/login");
+
+    sign_in(c, &base, "t-lead").await;
+    click_and_wait(c, Locator::LinkText("CNC-5")).await;
+    click_and_wait(c, Locator::LinkText("v2")).await;
+    click_and_wait(c, Locator::LinkText("Edit")).await;
+    fill(c, "ramp_up_months", "5").await;
+    click_button(c, "Save case").await;
+    assert_eq!(c.find(Locator::Id("ramp_up_months")).await.unwrap().prop("value").await.unwrap().as_deref(), Some("5"));
+    b.client.clone().close().await.unwrap();
+}
+
 /// The programme lead's journey: create a zone, write its case (a cost and a driver), and read
 /// the same NPV on the page as the API gives for the case.
 #[tokio::test]
@@ -127,7 +174,7 @@ async fn lead_creates_a_zone_and_sees_the_api_npv() {
     let c = &b.client;
     let base = format!("http://{}", t.listen().await);
 
-    c.goto(&format!("{base}/zones")).await.unwrap();
+    sign_in(c, &base, "t-lead").await;
     screenshot(c, "zones").await;
     fill(c, "code", "LOOP-7").await;
     fill(c, "name", "Assembly loop 7").await;

@@ -37,34 +37,101 @@ fn migrate_and_load_are_all_or_nothing() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("already exists"));
 }
 
-#[test]
-fn serve_on_port_zero_logs_the_address_and_answers() {
-    let dir = tempfile::tempdir().unwrap();
+/// A running `serve` child with its stdout lines so far.
+struct Served {
+    child: std::process::Child,
+    addr: String,
+    lines: Vec<String>,
+    rest: std::io::Lines<BufReader<std::process::ChildStdout>>,
+}
+
+impl Drop for Served {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+fn serve(url: &str, log: &str) -> Served {
     let mut child = Command::new(BIN)
-        .args(["--database-url", &db_url(&dir), "serve", "--addr", "127.0.0.1:0"])
-        .env("RUST_LOG", "info")
+        .args(["--database-url", url, "serve", "--addr", "127.0.0.1:0"])
+        .env("RUST_LOG", log)
         .env("NO_COLOR", "1")
         .stdout(Stdio::piped())
-        .stderr(Stdio::null())
+        .stderr(Stdio::piped())
         .spawn()
         .unwrap();
-    let stdout = child.stdout.take().unwrap();
-    let mut addr = None;
-    for line in BufReader::new(stdout).lines().take(50) {
-        let line = line.unwrap();
-        if let Some(rest) = line.split("listening on http://").nth(1) {
-            addr = Some(rest.split_whitespace().next().unwrap().to_string());
-            break;
+    let rest = BufReader::new(child.stdout.take().unwrap()).lines();
+    // Owned by the guard from here on, so that a failed start still kills the child.
+    let mut served = Served { child, addr: String::new(), lines: Vec::new(), rest };
+    while let Some(Ok(line)) = served.rest.next() {
+        let found = line.split("listening on http://").nth(1).map(|r| r.split_whitespace().next().unwrap().to_string());
+        served.lines.push(line);
+        if let Some(addr) = found {
+            served.addr = addr;
+            return served;
         }
     }
-    let addr = addr.expect("the server logs the address it listens on");
-    assert!(!addr.ends_with(":0"));
-    let mut stream = std::net::TcpStream::connect(&addr).unwrap();
-    write!(stream, "GET /zones HTTP/1.1\r\nHost: {addr}\r\nConnection: close\r\n\r\n").unwrap();
+    panic!("the server never logged its address: {:?}", served.lines);
+}
+
+fn http(addr: &str, request_head: &str) -> String {
+    let mut stream = std::net::TcpStream::connect(addr).unwrap();
+    write!(stream, "{request_head}Host: {addr}\r\nConnection: close\r\n\r\n").unwrap();
     let mut page = String::new();
     stream.read_to_string(&mut page).unwrap();
-    let _ = child.kill();
-    let _ = child.wait();
-    assert!(page.starts_with("HTTP/1.1 200"), "{}", &page[..page.len().min(200)]);
-    assert!(page.contains("PRESS-2"), "the demo plant is loaded on first run");
+    page
+}
+
+#[test]
+fn serve_on_port_zero_logs_the_address_and_prints_demo_accounts_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = db_url(&dir);
+    let s = serve(&url, "info");
+    assert!(!s.addr.ends_with(":0"));
+    let printed = s.lines.join("\n");
+    for role in ["lead", "controller", "viewer", "admin"] {
+        assert!(printed.lines().any(|l| l.trim_start().starts_with(role)), "no demo account for {role}: {printed}");
+    }
+    let page = http(&s.addr, "GET /zones HTTP/1.1\r\n");
+    assert!(page.starts_with("HTTP/1.1 303"), "{}", &page[..page.len().min(200)]);
+    assert!(page.contains("location: /login?next=/zones"));
+    assert!(http(&s.addr, "GET /login HTTP/1.1\r\n").starts_with("HTTP/1.1 200"));
+    drop(s);
+    // The second start finds the data and the accounts and prints no passwords.
+    let again = serve(&url, "info");
+    assert!(!again.lines.iter().any(|l| l.contains("Demo accounts")), "{:?}", again.lines);
+}
+
+/// OWASP ASVS 4.0.3 V7.1.1: no credentials or session tokens in logs. A Bearer token used
+/// against a server logging at trace level never appears in its output.
+#[test]
+fn tokens_never_appear_in_logs() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = db_url(&dir);
+    drop(serve(&url, "info"));
+    let out = Command::new(BIN)
+        .args(["--database-url", &url, "token", "create", "viewer", "--label", "report"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let token = String::from_utf8_lossy(&out.stdout).trim().to_string();
+    assert!(token.starts_with("plt_"));
+
+    let mut s = serve(&url, "trace");
+    let ok = http(&s.addr, &format!("GET /api/v1/zones HTTP/1.1\r\nAuthorization: Bearer {token}\r\n"));
+    assert!(ok.starts_with("HTTP/1.1 200"), "{}", &ok[..ok.len().min(300)]);
+    let bad = http(&s.addr, "GET /api/v1/zones HTTP/1.1\r\nAuthorization: Bearer plt_not-a-token\r\n");
+    assert!(bad.starts_with("HTTP/1.1 401"));
+    let _ = s.child.kill();
+    let _ = s.child.wait();
+    let mut log = s.lines.join("\n");
+    for line in s.rest.by_ref().map_while(Result::ok) {
+        log.push_str(&line);
+    }
+    let mut err = String::new();
+    s.child.stderr.take().unwrap().read_to_string(&mut err).unwrap();
+    assert!(log.contains("/api/v1/zones"), "trace logging should show the requests");
+    assert!(!log.contains(&token) && !err.contains(&token), "the token leaked into the log");
+    assert!(!log.contains(&token[4..]), "part of the token leaked into the log");
 }

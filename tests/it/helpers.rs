@@ -1,21 +1,33 @@
-//! Shared test helpers: a fresh database file per test, in-process requests, a real listener.
+//! Shared test helpers: a fresh database file per test, a signed-in user per role, a manual
+//! clock, in-process requests and a real loopback listener.
 
 use axum::Router;
 use axum::body::Body;
-use axum::http::{Request, StatusCode, header};
+use axum::http::{HeaderMap, Request, StatusCode, header};
 use http_body_util::BodyExt;
+use pilot_ledger::auth::{ManualClock, Role};
 use pilot_ledger::{AppState, app, cli};
 use serde_json::Value;
 use sqlx::SqlitePool;
+use std::collections::HashMap;
 use std::net::SocketAddr;
+use std::sync::Arc;
 use tempfile::TempDir;
 use tower::ServiceExt;
 
-/// An application on its own temporary SQLite file.
+/// The password of every test account.
+pub const PASSWORD: &str = "correct horse battery staple";
+
+/// An application on its own temporary SQLite file, with one account per role (`t-lead`,
+/// `t-controller`, `t-viewer`, `t-admin`); requests go out as `as_role` says (lead by default).
+#[derive(Clone)]
 pub struct TestApp {
     pub pool: SqlitePool,
     pub router: Router,
-    _dir: TempDir,
+    pub clock: Arc<ManualClock>,
+    pub cookies: HashMap<Role, String>,
+    pub cookie: Option<String>,
+    _dir: Arc<TempDir>,
 }
 
 /// A fresh database, migrated, with the demo plant when `demo`.
@@ -24,18 +36,28 @@ pub async fn test_app(demo: bool) -> TestApp {
     let url = format!("sqlite://{}", dir.path().join("test.db").display());
     let pool = cli::prepare(&url, demo).await.unwrap();
     if !demo {
-        // The site row is what a first run creates; tests without the demo still need one.
+        // Tests without the demo use a 10 % hurdle rate.
         let site = r#"{"format":"pilot-ledger-scenario","version":1,
             "site":{"plant_name":"Test works","currency":"EUR","hurdle_rate":"0.1"},"zones":[]}"#;
         cli::load_text(&pool, site).await.unwrap();
     }
-    let router = app(AppState { pool: pool.clone() });
-    TestApp { pool, router, _dir: dir }
+    let clock = Arc::new(ManualClock::new(time::OffsetDateTime::now_utc()));
+    let router = app(AppState::new(pool.clone(), clock.clone(), false));
+    let mut t = TestApp { pool, router, clock, cookies: HashMap::new(), cookie: None, _dir: Arc::new(dir) };
+    for role in Role::ALL {
+        let name = format!("t-{role}");
+        pilot_ledger::web::admin::create_user(&t.pool, &name, role, PASSWORD, "test").await.unwrap();
+        let cookie = t.sign_in(&name, PASSWORD).await.expect("test account signs in");
+        t.cookies.insert(role, cookie);
+    }
+    t.cookie = t.cookies.get(&Role::Lead).cloned();
+    t
 }
 
 /// A response read whole.
 pub struct Answer {
     pub status: StatusCode,
+    pub headers: HeaderMap,
     pub location: Option<String>,
     pub text: String,
 }
@@ -44,15 +66,41 @@ impl Answer {
     pub fn json(&self) -> Value {
         serde_json::from_str(&self.text).unwrap_or_else(|e| panic!("not JSON ({e}): {}", self.text))
     }
+
+    /// The `name=value` part of a Set-Cookie for `name`, with the whole header line.
+    pub fn set_cookie(&self, name: &str) -> Option<(String, String)> {
+        self.headers.get_all(header::SET_COOKIE).iter().filter_map(|v| v.to_str().ok()).find_map(|line| {
+            let pair = line.split(';').next()?.trim();
+            pair.starts_with(&format!("{name}=")).then(|| (pair.to_string(), line.to_string()))
+        })
+    }
 }
 
 impl TestApp {
-    pub async fn send(&self, req: Request<Body>) -> Answer {
+    /// The same app, sending requests as `role` (or anonymously with `None`).
+    pub fn as_role(&self, role: Option<Role>) -> TestApp {
+        let mut t = self.clone();
+        t.cookie = role.and_then(|r| self.cookies.get(&r).cloned());
+        t
+    }
+
+    /// Sign in through the form; the session cookie on success.
+    pub async fn sign_in(&self, name: &str, password: &str) -> Option<String> {
+        let body = format!("name={name}&password={}", password.replace(' ', "+"));
+        let a = self.as_role(None).post_form("/login", &body).await;
+        a.set_cookie("pl_session").map(|(pair, _)| pair)
+    }
+
+    pub async fn send(&self, mut req: Request<Body>) -> Answer {
+        if let Some(c) = &self.cookie {
+            req.headers_mut().insert(header::COOKIE, c.parse().unwrap());
+        }
         let res = self.router.clone().oneshot(req).await.unwrap();
         let status = res.status();
-        let location = res.headers().get(header::LOCATION).map(|v| v.to_str().unwrap().to_string());
+        let headers = res.headers().clone();
+        let location = headers.get(header::LOCATION).map(|v| v.to_str().unwrap().to_string());
         let bytes = res.into_body().collect().await.unwrap().to_bytes();
-        Answer { status, location, text: String::from_utf8_lossy(&bytes).into_owned() }
+        Answer { status, headers, location, text: String::from_utf8_lossy(&bytes).into_owned() }
     }
 
     pub async fn get(&self, uri: &str) -> Answer {
@@ -90,7 +138,9 @@ impl TestApp {
         let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.unwrap();
         let addr = listener.local_addr().unwrap();
         let router = self.router.clone();
-        tokio::spawn(async move { axum::serve(listener, router).await });
+        tokio::spawn(
+            async move { axum::serve(listener, router.into_make_service_with_connect_info::<SocketAddr>()).await },
+        );
         addr
     }
 }

@@ -7,3 +7,4 @@ mod cli;
 mod finance;
 mod helpers;
 mod pages;
+mod security;

@@ -1,0 +1,62 @@
+//! The audit trail: append-only rows of who did what, when (triggers refuse changes).
+
+use super::DbResult;
+use serde::Serialize;
+use sqlx::{Row, SqliteConnection, SqlitePool};
+
+/// One audit row.
+#[derive(Debug, Clone, Serialize)]
+pub struct AuditEntry {
+    /// Row id.
+    pub id: i64,
+    /// RFC 3339 time.
+    pub at: String,
+    /// Who (user name, or `anonymous` / a CLI marker).
+    pub actor: String,
+    /// What, e.g. `sign_in`, `zone.create`.
+    pub action: String,
+    /// On what, e.g. `zone 3`.
+    pub subject: String,
+    /// Free detail (never a secret).
+    pub detail: String,
+}
+
+/// Append one row, in the caller's transaction when there is one.
+pub async fn record(
+    conn: &mut SqliteConnection,
+    at: &str,
+    actor: &str,
+    action: &str,
+    subject: &str,
+    detail: &str,
+) -> DbResult<()> {
+    sqlx::query("INSERT INTO audit_log (at, actor, action, subject, detail) VALUES (?, ?, ?, ?, ?)")
+        .bind(at)
+        .bind(actor)
+        .bind(action)
+        .bind(subject)
+        .bind(detail)
+        .execute(conn)
+        .await?;
+    Ok(())
+}
+
+/// The newest `limit` rows.
+pub async fn recent(pool: &SqlitePool, limit: i64) -> DbResult<Vec<AuditEntry>> {
+    let rows = sqlx::query("SELECT id, at, actor, action, subject, detail FROM audit_log ORDER BY id DESC LIMIT ?")
+        .bind(limit)
+        .fetch_all(pool)
+        .await?;
+    rows.iter()
+        .map(|r| {
+            Ok(AuditEntry {
+                id: r.try_get("id")?,
+                at: r.try_get("at")?,
+                actor: r.try_get("actor")?,
+                action: r.try_get("action")?,
+                subject: r.try_get("subject")?,
+                detail: r.try_get("detail")?,
+            })
+        })
+        .collect()
+}

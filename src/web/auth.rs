@@ -1,0 +1,329 @@
+//! Sign-in, sessions, API tokens and the one place that enforces each route's permission.
+//!
+//! Sessions: a random 256-bit id in an HttpOnly, SameSite=Strict cookie (Secure behind TLS),
+//! stored only as its SHA-256 hash; a fresh id at every sign-in; idle and absolute expiry
+//! checked on the server against the injectable clock. Scripts send
+//! `Authorization: Bearer <token>`; a token carries its owner's role until revoked.
+//! We keep sessions in our own table rather than tower-sessions so that expiry runs on the
+//! same injectable clock as everything else and the store needs no second sqlx.
+
+use super::{AppError, AppState};
+use crate::auth::{Permission, Role, Secret, Throttle, hash_password, hash_secret, new_secret, verify_password};
+use crate::db::{self, User};
+use askama::Template;
+use axum::extract::connect_info::ConnectInfo;
+use axum::extract::{FromRequestParts, MatchedPath, Query, Request, State};
+use axum::http::request::Parts;
+use axum::http::{HeaderMap, HeaderValue, Method, StatusCode, header};
+use axum::middleware::Next;
+use axum::response::{Html, IntoResponse, Redirect, Response};
+use serde::Deserialize;
+use std::net::{IpAddr, SocketAddr};
+use std::sync::OnceLock;
+use time::Duration;
+use time::format_description::well_known::Rfc3339;
+
+/// The session cookie's name.
+pub const SESSION_COOKIE: &str = "pl_session";
+/// A session unused this long ends (OWASP ASVS 4.0.3 V3.3.2 allows up to 30 minutes idle
+/// for L2 when re-authentication is needed; we use 30).
+pub const IDLE_TIMEOUT: Duration = Duration::minutes(30);
+/// A session ends this long after sign-in whatever its use (ASVS 4.0.3 V3.3.2: 12 hours).
+pub const ABSOLUTE_TIMEOUT: Duration = Duration::hours(12);
+
+/// Who is asking: the user and how they proved it.
+#[derive(Debug, Clone)]
+pub struct Principal {
+    /// The user.
+    pub user: User,
+    /// Hash of the session id, when signed in by cookie (logout needs it).
+    pub session: Option<String>,
+}
+
+impl Principal {
+    /// The name written into `*_by` columns and the audit trail.
+    pub fn name(&self) -> &str {
+        &self.user.name
+    }
+
+    /// The role.
+    pub fn role(&self) -> Role {
+        self.user.role
+    }
+}
+
+/// The signed-in user of a request that passed [`authorize`]; handlers take it to attribute
+/// their writes.
+pub struct CurrentUser(pub Principal);
+
+impl<S: Send + Sync> FromRequestParts<S> for CurrentUser {
+    type Rejection = AppError;
+
+    async fn from_request_parts(parts: &mut Parts, _: &S) -> Result<Self, Self::Rejection> {
+        parts.extensions.get::<Principal>().cloned().map(Self).ok_or(AppError::Unauthenticated)
+    }
+}
+
+/// The principal, if any, for templates that show the account bar.
+pub struct MaybeUser(pub Option<Principal>);
+
+impl<S: Send + Sync> FromRequestParts<S> for MaybeUser {
+    type Rejection = std::convert::Infallible;
+
+    async fn from_request_parts(parts: &mut Parts, _: &S) -> Result<Self, Self::Rejection> {
+        Ok(Self(parts.extensions.get::<Principal>().cloned()))
+    }
+}
+
+fn cookie_value(headers: &HeaderMap, name: &str) -> Option<String> {
+    headers.get_all(header::COOKIE).iter().filter_map(|v| v.to_str().ok()).flat_map(|v| v.split(';')).find_map(|pair| {
+        let (k, v) = pair.trim().split_once('=')?;
+        (k == name).then(|| v.to_string())
+    })
+}
+
+fn rfc3339(t: time::OffsetDateTime) -> String {
+    t.format(&Rfc3339).unwrap_or_default()
+}
+
+/// Find the principal of a request: a Bearer token first, else the session cookie (expired
+/// sessions are deleted on sight).
+async fn principal(state: &AppState, headers: &HeaderMap) -> Result<Option<Principal>, AppError> {
+    if let Some(auth) = headers.get(header::AUTHORIZATION) {
+        let token = auth.to_str().ok().and_then(|v| v.strip_prefix("Bearer ")).map(str::trim);
+        return Ok(match token {
+            Some(t) => {
+                db::user_for_token(&state.pool, &hash_secret(t)).await?.map(|user| Principal { user, session: None })
+            }
+            None => None,
+        });
+    }
+    let Some(id) = cookie_value(headers, SESSION_COOKIE) else { return Ok(None) };
+    let id_hash = hash_secret(&id);
+    let Some(row) = db::get_session(&state.pool, &id_hash).await? else { return Ok(None) };
+    let now = state.clock.now();
+    let parse = |s: &str| time::OffsetDateTime::parse(s, &Rfc3339).ok();
+    let fresh = match (parse(&row.created_at), parse(&row.last_seen_at)) {
+        (Some(created), Some(seen)) => now - created < ABSOLUTE_TIMEOUT && now - seen < IDLE_TIMEOUT,
+        _ => false,
+    };
+    if !fresh {
+        db::delete_session(&state.pool, &id_hash).await?;
+        return Ok(None);
+    }
+    db::touch_session(&state.pool, &id_hash, &rfc3339(now)).await?;
+    Ok(Some(Principal { user: row.user, session: Some(id_hash) }))
+}
+
+/// Route middleware: resolve the principal, then allow or refuse by the route's permission.
+/// Anonymous: 401 on the API, a redirect to sign-in on pages. Wrong role: 403.
+pub async fn authorize(State(state): State<AppState>, req: Request, next: Next) -> Response {
+    let api = req.uri().path().starts_with("/api/");
+    match authorize_inner(&state, req, next).await {
+        Ok(res) => res,
+        Err(e) if api => super::ApiError(e).into_response(),
+        Err(e) => e.into_response(),
+    }
+}
+
+async fn authorize_inner(state: &AppState, mut req: Request, next: Next) -> Result<Response, AppError> {
+    let path = req.extensions().get::<MatchedPath>().map(|p| p.as_str().to_string()).unwrap_or_default();
+    // Fail closed: a route missing from the table needs the highest permission.
+    let permission = state.permissions.get(&(req.method().clone(), path.clone())).copied().unwrap_or(Permission::Admin);
+    let who = principal(state, req.headers()).await?;
+    let api = path.starts_with("/api/");
+    match (&who, permission) {
+        (_, Permission::Public) => {}
+        (None, _) if api => return Err(AppError::Unauthenticated),
+        (None, _) => {
+            let target = req.uri().path_and_query().map_or("/zones", |p| p.as_str());
+            let next_param =
+                if req.method() == Method::GET { format!("?next={}", urlencode(target)) } else { String::new() };
+            return Ok(Redirect::to(&format!("/login{next_param}")).into_response());
+        }
+        (Some(p), needed) if !p.role().allows(needed) => return Err(AppError::Forbidden),
+        _ => {}
+    }
+    if let Some(p) = who {
+        req.extensions_mut().insert(p);
+    }
+    Ok(next.run(req).await)
+}
+
+fn urlencode(s: &str) -> String {
+    s.bytes()
+        .map(|b| match b {
+            b'A'..=b'Z' | b'a'..=b'z' | b'0'..=b'9' | b'/' | b'-' | b'_' | b'.' => (b as char).to_string(),
+            _ => format!("%{b:02X}"),
+        })
+        .collect()
+}
+
+/// Only same-site relative paths may be redirect targets (no open redirect, ASVS 4.0.3 V5.1.5).
+fn safe_next(next: &str) -> &str {
+    if next.starts_with('/') && !next.starts_with("//") && !next.contains('\\') { next } else { "/zones" }
+}
+
+#[derive(Template)]
+#[template(path = "login.html")]
+struct LoginPage {
+    nav: Nav,
+    next: String,
+    name: String,
+    message: Option<String>,
+}
+
+/// Query of the sign-in page.
+#[derive(Deserialize, Default)]
+pub struct LoginQuery {
+    #[serde(default)]
+    next: String,
+}
+
+/// GET /login
+pub async fn login_page(Query(q): Query<LoginQuery>) -> Result<Html<String>, AppError> {
+    Ok(Html(LoginPage { nav: Nav::default(), next: q.next, name: String::new(), message: None }.render()?))
+}
+
+/// The sign-in form.
+#[derive(Deserialize, Default)]
+#[serde(default)]
+pub struct LoginForm {
+    name: String,
+    password: String,
+    next: String,
+}
+
+/// The client's address as the listener saw it (absent in in-process tests).
+pub struct ClientAddr(pub Option<IpAddr>);
+
+impl<S: Send + Sync> FromRequestParts<S> for ClientAddr {
+    type Rejection = std::convert::Infallible;
+
+    async fn from_request_parts(parts: &mut Parts, _: &S) -> Result<Self, Self::Rejection> {
+        Ok(Self(parts.extensions.get::<ConnectInfo<SocketAddr>>().map(|c| c.0.ip())))
+    }
+}
+
+/// A fixed argon2id hash to verify against for unknown names, so that unknown and known
+/// names take the same time and get the same answer (ASVS 4.0.3 V2.2.1 / V3.2.1 intent).
+fn dummy_hash() -> &'static str {
+    static HASH: OnceLock<String> = OnceLock::new();
+    HASH.get_or_init(|| hash_password("no such user, no such password").unwrap_or_default())
+}
+
+fn login_failed(form: &LoginForm, status: StatusCode, message: String) -> Result<Response, AppError> {
+    let page =
+        LoginPage { nav: Nav::default(), next: form.next.clone(), name: form.name.clone(), message: Some(message) };
+    Ok((status, Html(page.render()?)).into_response())
+}
+
+/// POST /login: check throttling, then the password; on success a fresh session.
+pub async fn login(
+    State(state): State<AppState>,
+    ClientAddr(addr): ClientAddr,
+    headers: HeaderMap,
+    super::FormBody(form): super::FormBody<LoginForm>,
+) -> Result<Response, AppError> {
+    let clock = state.clock.as_ref();
+    let account_key = format!("account:{}", form.name.trim().to_lowercase());
+    let address_key = format!("address:{}", addr.map_or_else(|| "unknown".to_string(), |a| a.to_string()));
+    let locked = state
+        .throttle
+        .locked_for(&account_key, Throttle::PER_ACCOUNT, clock)
+        .or_else(|| state.throttle.locked_for(&address_key, Throttle::PER_ADDRESS, clock));
+    if let Some(wait) = locked {
+        let minutes = (wait.whole_seconds() + 59) / 60;
+        let mut res = login_failed(
+            &form,
+            StatusCode::TOO_MANY_REQUESTS,
+            format!(
+                "Too many failed sign-ins for this account or from this address. Try again in {minutes} minute(s)."
+            ),
+        )?;
+        if let Ok(v) = HeaderValue::from_str(&wait.whole_seconds().max(1).to_string()) {
+            res.headers_mut().insert(header::RETRY_AFTER, v);
+        }
+        return Ok(res);
+    }
+    let found = db::user_for_login(&state.pool, form.name.trim()).await?;
+    let user = match found {
+        Some((user, hash)) if user.active && verify_password(&form.password, &hash) => Some(user),
+        Some(_) => None,
+        None => {
+            // Same work and same answer as a wrong password.
+            verify_password(&form.password, dummy_hash());
+            None
+        }
+    };
+    let now = rfc3339(clock.now());
+    let Some(user) = user else {
+        state.throttle.fail(&account_key, clock);
+        state.throttle.fail(&address_key, clock);
+        let mut conn = state.pool.acquire().await?;
+        let subject = format!("account {}", form.name.trim().chars().take(64).collect::<String>());
+        db::audit::record(&mut conn, &now, "anonymous", "sign_in_failed", &subject, &address_key).await?;
+        return login_failed(&form, StatusCode::UNAUTHORIZED, "Unknown user name or wrong password.".into());
+    };
+    state.throttle.clear(&account_key);
+    // A fresh id at every sign-in; any session the browser had is ended (no fixation).
+    if let Some(old) = cookie_value(&headers, SESSION_COOKIE) {
+        db::delete_session(&state.pool, &hash_secret(&old)).await?;
+    }
+    let id: Secret = new_secret("");
+    db::insert_session(&state.pool, &hash_secret(id.expose()), user.id, &now).await?;
+    let mut conn = state.pool.acquire().await?;
+    db::audit::record(&mut conn, &now, &user.name, "sign_in", &format!("user {}", user.id), "").await?;
+    let mut res = Redirect::to(safe_next(&form.next)).into_response();
+    set_cookie(&mut res, &session_cookie(id.expose(), state.secure_cookies));
+    Ok(res)
+}
+
+fn session_cookie(value: &str, secure: bool) -> String {
+    let secure = if secure { "; Secure" } else { "" };
+    format!("{SESSION_COOKIE}={value}; Path=/; HttpOnly; SameSite=Strict{secure}")
+}
+
+fn set_cookie(res: &mut Response, cookie: &str) {
+    if let Ok(v) = HeaderValue::from_str(cookie) {
+        res.headers_mut().append(header::SET_COOKIE, v);
+    }
+}
+
+/// POST /logout: end the session on the server and clear the cookie.
+pub async fn logout(State(state): State<AppState>, CurrentUser(p): CurrentUser) -> Result<Response, AppError> {
+    if let Some(hash) = &p.session {
+        db::delete_session(&state.pool, hash).await?;
+    }
+    let mut conn = state.pool.acquire().await?;
+    db::audit::record(&mut conn, &rfc3339(state.clock.now()), p.name(), "sign_out", &format!("user {}", p.user.id), "")
+        .await?;
+    let mut res = Redirect::to("/login").into_response();
+    set_cookie(&mut res, &format!("{}; Max-Age=0", session_cookie("", state.secure_cookies)));
+    Ok(res)
+}
+
+/// What the page header shows and which controls a page offers. Hiding a control is only
+/// a courtesy: [`authorize`] refuses the request anyway.
+#[derive(Debug, Clone, Default)]
+pub struct Nav {
+    /// Signed-in user name; empty when anonymous.
+    pub name: String,
+    /// Role name.
+    pub role: String,
+    /// May write zones and cases.
+    pub can_edit: bool,
+    /// May open the admin pages.
+    pub is_admin: bool,
+}
+
+impl From<&Principal> for Nav {
+    fn from(p: &Principal) -> Self {
+        Self {
+            name: p.name().to_string(),
+            role: p.role().as_str().to_string(),
+            can_edit: p.role().allows(Permission::EditCases),
+            is_admin: p.role().allows(Permission::Admin),
+        }
+    }
+}
