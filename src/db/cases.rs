@@ -166,7 +166,7 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     .bind(i64::from(h.go_live_offset))
     .bind(i64::from(h.ramp_up_months))
     .bind(h.success_probability.to_string())
-    .bind(spec.state.as_str())
+    .bind(CaseState::Draft.as_str())
     .bind(&ts)
     .bind(actor)
     .bind(&ts)
@@ -179,7 +179,84 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     for d in &spec.drivers {
         insert_driver_row(conn, id, d, actor).await?;
     }
+    // Items go in while the row is a draft: the database freezes approved versions.
+    if spec.state != CaseState::Draft {
+        set_state(conn, id, spec.state, actor).await?;
+    }
     Ok(id)
+}
+
+/// Move a version to `state`; approving stamps who and when (the caller checks the move is
+/// allowed and supersedes the old baseline first).
+pub async fn set_state(conn: &mut SqliteConnection, case_id: i64, state: CaseState, actor: &str) -> DbResult<()> {
+    let ts = now();
+    let approved = state == CaseState::Approved;
+    sqlx::query(
+        "UPDATE case_versions SET state = ?, updated_at = ?, updated_by = ?,
+                approved_at = CASE WHEN ? THEN ? ELSE approved_at END,
+                approved_by = CASE WHEN ? THEN ? ELSE approved_by END
+         WHERE id = ?",
+    )
+    .bind(state.as_str())
+    .bind(&ts)
+    .bind(actor)
+    .bind(approved)
+    .bind(&ts)
+    .bind(approved)
+    .bind(actor)
+    .bind(case_id)
+    .execute(conn)
+    .await
+    .map_err(|e| super::unique_as(e, "the zone already has an approved baseline"))?;
+    Ok(())
+}
+
+/// The zone's approved baseline version, if any.
+pub async fn baseline_of(pool: &SqlitePool, zone_id: i64) -> DbResult<Option<CaseFull>> {
+    let id: Option<i64> = sqlx::query_scalar("SELECT id FROM case_versions WHERE zone_id = ? AND state = 'approved'")
+        .bind(zone_id)
+        .fetch_optional(pool)
+        .await?;
+    match id {
+        Some(id) => Ok(Some(case_full(pool, id).await?)),
+        None => Ok(None),
+    }
+}
+
+/// Submit a draft for approval.
+pub async fn submit_case(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+    ensure_editable(conn, case_id).await?;
+    set_state(conn, case_id, CaseState::Submitted, actor).await
+}
+
+/// Approve a submitted version: the zone's previous baseline becomes superseded and this one
+/// is frozen as the baseline the ledger is measured against.
+pub async fn approve_case(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+    let row =
+        sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(case_id).fetch_optional(&mut *conn).await?;
+    let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
+    if case.state != CaseState::Submitted {
+        return Err(DbError::Conflict(format!(
+            "version {} is {}: submit it for approval first",
+            case.version, case.state
+        )));
+    }
+    sqlx::query("UPDATE case_versions SET state = 'superseded', updated_at = ?, updated_by = ? WHERE zone_id = ? AND state = 'approved'")
+        .bind(now())
+        .bind(actor)
+        .bind(case.zone_id)
+        .execute(&mut *conn)
+        .await?;
+    set_state(conn, case_id, CaseState::Approved, actor).await?;
+    sqlx::query(
+        "UPDATE zones SET status = 'approved', updated_at = ?, updated_by = ? WHERE id = ? AND status = 'candidate'",
+    )
+    .bind(now())
+    .bind(actor)
+    .bind(case.zone_id)
+    .execute(conn)
+    .await?;
+    Ok(())
 }
 
 /// Refuse changes to a version that is no longer a draft: approved versions are frozen.

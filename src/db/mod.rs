@@ -8,6 +8,7 @@
 
 pub mod audit;
 mod cases;
+pub mod ledger;
 mod scenario;
 mod site;
 mod users;
@@ -30,6 +31,9 @@ pub enum DbError {
     /// A uniqueness or state rule refused the write; the message is for the user.
     #[error("{0}")]
     Conflict(String),
+    /// Input that is valid on its own but not against the stored data (422, per field).
+    #[error("{0}")]
+    Invalid(crate::domain::FieldErrors),
     /// A stored value could not be read back (a bug or a hand-edited database).
     #[error("stored value in {column} is not valid: {value:?}")]
     Corrupt {
@@ -105,7 +109,8 @@ fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
 }
 
 pub use cases::{
-    add_cost, add_driver, case_full, copy_case, delete_cost, delete_driver, insert_case, list_cases, update_header,
+    add_cost, add_driver, approve_case, baseline_of, case_full, copy_case, delete_cost, delete_driver, insert_case,
+    list_cases, set_state, submit_case, update_header,
 };
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};

@@ -149,7 +149,7 @@ pub struct CaseHeader {
     pub success_probability: Decimal,
 }
 
-fn ser_display<S: serde::Serializer, T: fmt::Display>(v: &T, s: S) -> Result<S::Ok, S::Error> {
+pub(crate) fn ser_display<S: serde::Serializer, T: fmt::Display>(v: &T, s: S) -> Result<S::Ok, S::Error> {
     s.collect_str(v)
 }
 

@@ -6,7 +6,9 @@
 
 mod case;
 mod figures;
+mod ledger;
 mod money;
+mod realized;
 mod scenario;
 mod site;
 mod zone;
@@ -16,7 +18,9 @@ pub use case::{
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
 };
 pub use figures::{CaseFigures, View, case_figures};
-pub use money::{Money, Percent, money, parse_decimal, parse_percent, pct};
+pub use ledger::{Booking, BookingInput, EntryKind, LedgerEntry, Measurement};
+pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct};
+pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};

@@ -43,6 +43,7 @@ mod mirr;
 mod npv;
 mod payback;
 mod rate;
+mod realized;
 pub mod schedule;
 
 pub use dated::{DAYS_PER_YEAR, xirr, xirr_outcome, xnpv};
@@ -52,6 +53,9 @@ pub use mirr::mirr;
 pub use npv::{npv, profitability_index};
 pub use payback::{Payback, discounted_payback, payback};
 pub use rate::{annual_from_periodic, monthly_from_annual};
+pub use realized::{
+    Realization, RealizedReturn, forecast_at_completion, normalized_avoided, realization, realized_return,
+};
 pub use schedule::{
     CaseInput, CaseMetrics, CostInput, CostTiming, DriverInput, MonthFlow, Schedule, TaxInput, build_schedule,
     case_metrics,

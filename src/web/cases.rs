@@ -530,3 +530,38 @@ pub async fn compare(
     }
     Ok(Html(ComparePage { nav: Nav::from(&me), site, zone, versions, a, b, rows, npv_difference }.render()?))
 }
+
+/// POST /cases/{id}/submit: a draft goes up for approval.
+pub async fn submit(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Response, AppError> {
+    state_change(&state, &user, id, "case.submit", async |conn| db::submit_case(conn, id, user.name()).await).await
+}
+
+/// POST /cases/{id}/approve: a submitted version becomes the zone's frozen baseline.
+pub async fn approve(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Response, AppError> {
+    state_change(&state, &user, id, "case.approve", async |conn| db::approve_case(conn, id, user.name()).await).await
+}
+
+async fn state_change<F>(
+    state: &AppState,
+    user: &Principal,
+    id: i64,
+    action: &str,
+    change: F,
+) -> Result<Response, AppError>
+where
+    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<(), db::DbError>,
+{
+    let mut tx = db::begin_write(&state.pool).await?;
+    change(&mut tx).await?;
+    db::audit::record(&mut tx, &db::now(), user.name(), action, &format!("case {id}"), "").await?;
+    tx.commit().await?;
+    Ok(Redirect::to(&format!("/cases/{id}")).into_response())
+}

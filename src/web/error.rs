@@ -76,6 +76,7 @@ impl From<DbError> for AppError {
         match e {
             DbError::NotFound(what) => Self::NotFound(what),
             DbError::Conflict(msg) => Self::Conflict(msg),
+            DbError::Invalid(fields) => Self::Invalid(fields),
             other => Self::Internal(other.into()),
         }
     }

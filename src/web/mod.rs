@@ -7,6 +7,7 @@ pub mod auth;
 mod cases;
 mod chart;
 mod error;
+mod ledger;
 mod metrics;
 mod pages;
 mod zones;
@@ -77,7 +78,7 @@ fn route(method: Method, path: &'static str, permission: Permission, handler: Me
 /// Every route of the application with its permission: the router is built from this list,
 /// the authorization middleware reads it, and the role x route test walks it.
 pub fn routes() -> Vec<Route> {
-    use Permission::{Admin, EditCases, Public, Read, SignedIn};
+    use Permission::{Admin, EditCases, Ledger, Public, Read, SignedIn};
     let (g, p) = (Method::GET, Method::POST);
     vec![
         route(g.clone(), "/login", Public, get(auth::login_page)),
@@ -100,6 +101,14 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/cases/{id}/drivers", EditCases, post(cases::add_driver)),
         route(p.clone(), "/cases/{id}/drivers/{item}/delete", EditCases, post(cases::delete_driver)),
         route(p.clone(), "/cases/{id}/copy", EditCases, post(cases::copy)),
+        route(p.clone(), "/cases/{id}/submit", EditCases, post(cases::submit)),
+        route(p.clone(), "/cases/{id}/approve", EditCases, post(cases::approve)),
+        route(g.clone(), "/zones/{id}/ledger", Read, get(ledger::show)),
+        route(p.clone(), "/zones/{id}/ledger", Ledger, post(ledger::book)),
+        route(p.clone(), "/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::reverse)),
+        route(p.clone(), "/zones/{id}/ledger/import", Ledger, post(ledger::import)),
+        route(g.clone(), "/zones/{id}/ledger.csv", Read, get(ledger::export_zone)),
+        route(g.clone(), "/ledger.csv", Read, get(ledger::export_all)),
         route(g.clone(), "/admin", Admin, get(admin::page)),
         route(p.clone(), "/admin/users", Admin, post(admin::add_user)),
         route(p.clone(), "/admin/users/{id}", Admin, post(admin::update_user)),
@@ -114,7 +123,10 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/api/v1/zones", EditCases, post(api::create_zone)),
         route(g.clone(), "/api/v1/zones/{id}", Read, get(api::get_zone)),
         route(p.clone(), "/api/v1/zones/{id}/cases", EditCases, post(api::create_case)),
-        route(g, "/api/v1/cases/{id}", Read, get(api::get_case)),
+        route(g.clone(), "/api/v1/cases/{id}", Read, get(api::get_case)),
+        route(g, "/api/v1/zones/{id}/ledger", Read, get(ledger::api_show)),
+        route(p.clone(), "/api/v1/zones/{id}/ledger", Ledger, post(ledger::api_book)),
+        route(p, "/api/v1/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::api_reverse)),
     ]
 }
 

@@ -7,4 +7,5 @@ mod cli;
 mod finance;
 mod helpers;
 mod pages;
+mod realized;
 mod security;

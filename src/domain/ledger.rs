@@ -1,0 +1,248 @@
+//! Ledger bookings: measured savings (direct or normalized) and actual spending, as raw input
+//! and as validated bookings. Context checks (the item belongs to the zone's baseline, the
+//! month lies inside its horizon and not in the future) need the stored case: see `db::ledger`.
+
+use super::de::string_or_number;
+use super::{FieldErrors, Month, parse_decimal, required_text};
+use rust_decimal::Decimal;
+use serde::{Deserialize, Serialize};
+
+/// Saving (positive amount) or spending (negative amount).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum EntryKind {
+    /// A measured saving against a benefit driver.
+    Saving,
+    /// Money actually spent against a cost item.
+    Spending,
+}
+
+impl EntryKind {
+    /// Stored spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Saving => "saving",
+            Self::Spending => "spending",
+        }
+    }
+
+    /// Parse the stored spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        match value.trim() {
+            "saving" => Ok(Self::Saving),
+            "spending" => Ok(Self::Spending),
+            _ => Err("saving or spending".into()),
+        }
+    }
+}
+
+/// How a saving was measured, with its inputs.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "method", rename_all = "snake_case")]
+pub enum Measurement {
+    /// The avoided quantity itself (e.g. 1,240 kWh).
+    Direct {
+        /// Avoided quantity in the driver's unit; negative when the period did worse.
+        quantity: Decimal,
+    },
+    /// IPMVP-style avoided quantity: baseline intensity x reporting volume - measured consumption.
+    Normalized {
+        /// Baseline consumption per unit of volume (e.g. kWh per unit produced).
+        baseline_intensity: Decimal,
+        /// The reporting period's volume (e.g. units produced).
+        reporting_volume: Decimal,
+        /// What was metered in the reporting period.
+        measured_consumption: Decimal,
+    },
+    /// Money spent (positive as typed; booked as a negative flow).
+    Spend {
+        /// Amount spent.
+        amount: Decimal,
+    },
+}
+
+impl Measurement {
+    /// Stored method name.
+    pub fn method(&self) -> &'static str {
+        match self {
+            Self::Direct { .. } => "direct",
+            Self::Normalized { .. } => "normalized",
+            Self::Spend { .. } => "spend",
+        }
+    }
+}
+
+/// Raw booking fields as a form, JSON body or CSV row gives them.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(default)]
+pub struct BookingInput {
+    /// `saving` or `spending`.
+    pub kind: String,
+    /// `direct`, `normalized` or (spending) empty / `spend`.
+    pub method: String,
+    /// Driver id (saving) or cost item id (spending) of the baseline case.
+    #[serde(deserialize_with = "string_or_number")]
+    pub item: String,
+    /// Month, `YYYY-MM`.
+    pub period: String,
+    /// Direct: avoided quantity.
+    #[serde(deserialize_with = "string_or_number")]
+    pub quantity: String,
+    /// Normalized: baseline intensity.
+    #[serde(deserialize_with = "string_or_number")]
+    pub baseline_intensity: String,
+    /// Normalized: reporting-period volume.
+    #[serde(deserialize_with = "string_or_number")]
+    pub reporting_volume: String,
+    /// Normalized: measured consumption.
+    #[serde(deserialize_with = "string_or_number")]
+    pub measured_consumption: String,
+    /// Spending: amount spent.
+    #[serde(deserialize_with = "string_or_number")]
+    pub amount: String,
+    /// How it was measured (meter, report, sample...).
+    pub evidence: String,
+}
+
+/// A booking whose fields are each valid.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Booking {
+    /// Saving or spending.
+    pub kind: EntryKind,
+    /// Driver id (saving) or cost item id (spending).
+    pub item_id: i64,
+    /// The month booked.
+    pub period: Month,
+    /// Method and inputs.
+    pub measurement: Measurement,
+    /// Evidence note.
+    pub evidence: String,
+}
+
+fn non_negative(field: &'static str) -> impl Fn(Decimal) -> Result<Decimal, String> {
+    move |d| if d < Decimal::ZERO { Err(format!("{field} cannot be negative")) } else { Ok(d) }
+}
+
+/// Bounds that keep ledger sums far inside `Decimal`'s range.
+const MAX_MAGNITUDE: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
+
+fn bounded(d: Decimal) -> Result<Decimal, String> {
+    if d.abs() > MAX_MAGNITUDE { Err("at most 1,000,000,000,000 in size".into()) } else { Ok(d) }
+}
+
+impl Booking {
+    /// Validate each field; the names match the form and the CSV columns.
+    pub fn parse(input: &BookingInput) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let kind = e.take("kind", EntryKind::parse(&input.kind));
+        let item_id = e.take(
+            "item",
+            input.item.trim().parse::<i64>().map_err(|_| "choose the driver or cost item (its id)".to_string()),
+        );
+        let period = e.take("period", Month::parse(&input.period));
+        let evidence = e.take(
+            "evidence",
+            required_text(&input.evidence, 500).map_err(|_| {
+                "required: say how it was measured (meter, report, sample), at most 500 characters".to_string()
+            }),
+        );
+        let measurement = match (kind, input.method.trim()) {
+            (Some(EntryKind::Saving), "direct") => e
+                .take("quantity", parse_decimal(&input.quantity).and_then(bounded))
+                .map(|quantity| Measurement::Direct { quantity }),
+            (Some(EntryKind::Saving), "normalized") => {
+                let i = e.take(
+                    "baseline_intensity",
+                    parse_decimal(&input.baseline_intensity)
+                        .and_then(bounded)
+                        .and_then(non_negative("baseline intensity")),
+                );
+                let v = e.take(
+                    "reporting_volume",
+                    parse_decimal(&input.reporting_volume).and_then(bounded).and_then(non_negative("volume")),
+                );
+                let c = e.take(
+                    "measured_consumption",
+                    parse_decimal(&input.measured_consumption).and_then(bounded).and_then(non_negative("consumption")),
+                );
+                match (i, v, c) {
+                    (Some(baseline_intensity), Some(reporting_volume), Some(measured_consumption)) => {
+                        Some(Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption })
+                    }
+                    _ => None,
+                }
+            }
+            (Some(EntryKind::Saving), _) => {
+                e.push("method", "direct or normalized");
+                None
+            }
+            (Some(EntryKind::Spending), "" | "spend") => e
+                .take(
+                    "amount",
+                    parse_decimal(&input.amount).and_then(bounded).and_then(|d| {
+                        if d > Decimal::ZERO {
+                            Ok(d)
+                        } else {
+                            Err("the amount spent, more than zero (correct by reversal)".into())
+                        }
+                    }),
+                )
+                .map(|amount| Measurement::Spend { amount }),
+            (Some(EntryKind::Spending), _) => {
+                e.push("method", "leave empty (or spend) for spending");
+                None
+            }
+            (None, _) => None,
+        };
+        match (kind, item_id, period, measurement, evidence) {
+            (Some(kind), Some(item_id), Some(period), Some(measurement), Some(evidence)) if e.is_empty() => {
+                Ok(Self { kind, item_id, period, measurement, evidence })
+            }
+            _ => Err(e),
+        }
+    }
+}
+
+/// A stored ledger entry.
+#[derive(Debug, Clone, Serialize)]
+pub struct LedgerEntry {
+    /// Row id.
+    pub id: i64,
+    /// Zone.
+    pub zone_id: i64,
+    /// The baseline case version it was measured against.
+    pub case_id: i64,
+    /// Saving or spending.
+    pub kind: EntryKind,
+    /// Driver (saving).
+    pub driver_id: Option<i64>,
+    /// Cost item (spending).
+    pub cost_id: Option<i64>,
+    /// Month booked.
+    #[serde(serialize_with = "super::case::ser_display")]
+    pub period: Month,
+    /// `direct`, `normalized` or `spend`.
+    pub method: String,
+    /// Avoided quantity (savings).
+    pub quantity: Option<Decimal>,
+    /// Unit value frozen at booking (savings).
+    pub unit_value: Option<Decimal>,
+    /// Signed money flow: savings positive, spending negative.
+    pub amount: Decimal,
+    /// Normalized inputs.
+    pub baseline_intensity: Option<Decimal>,
+    /// Normalized inputs.
+    pub reporting_volume: Option<Decimal>,
+    /// Normalized inputs.
+    pub measured_consumption: Option<Decimal>,
+    /// Evidence note.
+    pub evidence: String,
+    /// The entry this one reverses.
+    pub reverses_id: Option<i64>,
+    /// The entry that reversed this one, if any.
+    pub reversed_by: Option<i64>,
+    /// RFC 3339 booking time.
+    pub booked_at: String,
+    /// Who booked it.
+    pub booked_by: String,
+}

@@ -1,0 +1,155 @@
+//! The realized view of a zone: its ledger against its approved baseline, month by month.
+//!
+//! Months are counted from the baseline's start month. "Elapsed" runs through the latest month
+//! with a booking, so a month not yet booked does not pull the realization rate down.
+
+use super::{CaseHeader, EntryKind, LedgerEntry, Month, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
+use crate::finance::schedule::build_schedule;
+use crate::finance::{FinanceError, Realization, RealizedReturn, forecast_at_completion, realization, realized_return};
+use rust_decimal::Decimal;
+
+/// Expected vs measured for one benefit driver.
+#[derive(Debug, Clone)]
+pub struct DriverRealization {
+    /// Driver id.
+    pub id: i64,
+    /// Driver label.
+    pub label: String,
+    /// Unit of the driver.
+    pub unit: String,
+    /// Expected money per month over the horizon (likely quantity).
+    pub expected: Vec<Decimal>,
+    /// Measured money per month (net of reversals).
+    pub measured: Vec<Decimal>,
+    /// Measured quantity to date.
+    pub measured_quantity: Decimal,
+    /// Realization to date.
+    pub realization: Realization,
+}
+
+/// The whole realized view.
+#[derive(Debug, Clone)]
+pub struct RealizedView {
+    /// Months through the latest booking (0 when nothing is booked).
+    pub elapsed: usize,
+    /// Per driver.
+    pub drivers: Vec<DriverRealization>,
+    /// Expected net cash flow per month (pre-tax baseline schedule).
+    pub expected_net: Vec<Decimal>,
+    /// Booked net cash flow per month.
+    pub measured_net: Vec<Decimal>,
+    /// Savings realization over all drivers.
+    pub savings: Realization,
+    /// Forecast of total savings at completion.
+    pub savings_forecast: Decimal,
+    /// Expected total savings over the horizon.
+    pub savings_expected_total: Decimal,
+    /// Spending booked to date (negative).
+    pub spending_to_date: Decimal,
+    /// Spending expected to date (negative).
+    pub spending_expected_to_date: Decimal,
+    /// XNPV at the hurdle rate and XIRR of the dated ledger flows, when anything is booked.
+    pub realized: Option<RealizedReturn>,
+}
+
+/// The last day of a month, the date ledger flows of that month carry.
+pub fn month_end(m: Month) -> Option<time::Date> {
+    let next = m.plus(1);
+    let month = time::Month::try_from(next.month).ok()?;
+    time::Date::from_calendar_date(next.year, month, 1).ok()?.previous_day()
+}
+
+fn month_index(start: Month, m: Month) -> Option<usize> {
+    let i = (m.year - start.year) * 12 + i32::from(m.month) - i32::from(start.month);
+    usize::try_from(i).ok()
+}
+
+/// Compute the realized view of `entries` against the baseline parts.
+pub fn realized_view(
+    header: &CaseHeader,
+    costs: &[(i64, NewCostItem)],
+    drivers: &[(i64, NewBenefitDriver)],
+    entries: &[LedgerEntry],
+    site: &SiteSettings,
+) -> Result<RealizedView, FinanceError> {
+    let n = header.horizon_months as usize;
+    let hurdle = site.hurdle_f64();
+    let benefits_of = |d: &NewBenefitDriver| -> Result<Vec<Decimal>, FinanceError> {
+        let input = finance_input(header, [], [d], None);
+        Ok(build_schedule(&input, hurdle)?.rows.iter().map(|r| r.benefits).collect())
+    };
+    let expected_net: Vec<Decimal> = build_schedule(
+        &finance_input(header, costs.iter().map(|(_, c)| c), drivers.iter().map(|(_, d)| d), None),
+        hurdle,
+    )?
+    .net_flows();
+    let spending_expected: Vec<Decimal> =
+        build_schedule(&finance_input(header, costs.iter().map(|(_, c)| c), [], None), hurdle)?.net_flows();
+    let mut measured_net = vec![Decimal::ZERO; n];
+    let mut measured_spend = vec![Decimal::ZERO; n];
+    let mut elapsed = 0;
+    for e in entries {
+        if let Some(i) = month_index(header.start_month, e.period).filter(|i| *i < n) {
+            measured_net[i] += e.amount;
+            if e.kind == EntryKind::Spending {
+                measured_spend[i] += e.amount;
+            }
+            elapsed = elapsed.max(i + 1);
+        }
+    }
+    let mut out_drivers = Vec::with_capacity(drivers.len());
+    let (mut all_expected, mut all_measured) = (vec![Decimal::ZERO; n], vec![Decimal::ZERO; n]);
+    for (id, d) in drivers {
+        let expected = benefits_of(d)?;
+        let mut measured = vec![Decimal::ZERO; n];
+        let mut measured_quantity = Decimal::ZERO;
+        for e in entries.iter().filter(|e| e.driver_id == Some(*id)) {
+            if let Some(i) = month_index(header.start_month, e.period).filter(|i| *i < n) {
+                measured[i] += e.amount;
+                measured_quantity += e.quantity.unwrap_or_default();
+            }
+        }
+        for i in 0..n {
+            all_expected[i] += expected[i];
+            all_measured[i] += measured[i];
+        }
+        let realization = realization(&expected, &measured, elapsed);
+        out_drivers.push(DriverRealization {
+            id: *id,
+            label: d.label.clone(),
+            unit: d.unit.clone(),
+            expected,
+            measured,
+            measured_quantity,
+            realization,
+        });
+    }
+    let flows: Vec<(time::Date, Decimal)> =
+        entries.iter().filter_map(|e| month_end(e.period).map(|d| (d, e.amount))).collect();
+    let realized = if flows.is_empty() { None } else { Some(realized_return(hurdle, &flows)?) };
+    Ok(RealizedView {
+        elapsed,
+        savings: realization(&all_expected, &all_measured, elapsed),
+        savings_forecast: forecast_at_completion(&all_expected, &all_measured, elapsed),
+        savings_expected_total: all_expected.iter().sum(),
+        spending_to_date: measured_spend.iter().take(elapsed).sum(),
+        spending_expected_to_date: spending_expected.iter().take(elapsed).sum(),
+        drivers: out_drivers,
+        expected_net,
+        measured_net,
+        realized,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn month_ends() {
+        let feb = month_end(Month { year: 2028, month: 2 }).map(|d| d.to_string());
+        assert_eq!(feb.as_deref(), Some("2028-02-29"));
+        let dec = month_end(Month { year: 2026, month: 12 }).map(|d| d.to_string());
+        assert_eq!(dec.as_deref(), Some("2026-12-31"));
+    }
+}

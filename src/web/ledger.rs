@@ -1,0 +1,594 @@
+//! The controller's ledger: booking forms and API (direct, normalized, spending), reversals,
+//! CSV import and export, and the realized view against the approved baseline.
+
+use super::auth::{CurrentUser, Nav, Principal};
+use super::chart::PairChart;
+use super::{ApiError, AppError, AppState, FormBody, JsonBody};
+use crate::db::{self, CaseFull, ledger::Booked};
+use crate::domain::{
+    Booking, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, Percent, RealizedView, SiteSettings,
+    Zone, realized_view,
+};
+use askama::Template;
+use axum::Json;
+use axum::extract::{Multipart, Path, State};
+use axum::http::{HeaderMap, StatusCode, header};
+use axum::response::{Html, IntoResponse, Redirect, Response};
+use rust_decimal::Decimal;
+use serde::Deserialize;
+use serde_json::{Value, json};
+
+/// Largest CSV accepted by the import form.
+pub const IMPORT_MAX_BYTES: usize = 2 * 1024 * 1024;
+/// The CSV columns, in order; export writes them and import reads them by name.
+pub const CSV_COLUMNS: [&str; 10] = [
+    "period",
+    "kind",
+    "item",
+    "method",
+    "quantity",
+    "baseline_intensity",
+    "reporting_volume",
+    "measured_consumption",
+    "amount",
+    "evidence",
+];
+
+/// The month the clock is in: nothing later can be booked.
+fn current_month(state: &AppState) -> Month {
+    let d = state.clock.now().date();
+    Month { year: d.year(), month: u8::from(d.month()) }
+}
+
+/// Realization and its parts, formatted.
+pub struct DriverRow {
+    label: String,
+    unit: String,
+    expected: Money,
+    measured: Money,
+    quantity: String,
+    rate: String,
+    chart: PairChart,
+}
+
+/// A ledger entry as the history table shows it.
+pub struct EntryRow {
+    e: LedgerEntry,
+    item: String,
+    amount: Money,
+    inputs: String,
+}
+
+#[derive(Template)]
+#[template(path = "ledger/page.html")]
+struct LedgerPage {
+    nav: Nav,
+    site: SiteSettings,
+    zone: Zone,
+    baseline: Option<CaseFull>,
+    can_book: bool,
+    figures: Option<Figures>,
+    entries: Vec<EntryRow>,
+    form: BookingInput,
+    errors: FieldErrors,
+    notice: Option<String>,
+    period_hint: String,
+}
+
+/// The realized figures of the page.
+pub struct Figures {
+    elapsed: usize,
+    savings_expected: Money,
+    savings_measured: Money,
+    savings_rate: String,
+    forecast: Money,
+    expected_total: Money,
+    spending: Money,
+    spending_expected: Money,
+    xnpv: String,
+    xirr: String,
+    drivers: Vec<DriverRow>,
+    cumulative: PairChart,
+}
+
+fn rate_text(r: Option<f64>) -> String {
+    r.map_or_else(|| "–".into(), |r| Percent(r).to_string())
+}
+
+fn figures(view: &RealizedView) -> Figures {
+    let months = view.elapsed.max(1);
+    Figures {
+        elapsed: view.elapsed,
+        savings_expected: Money(view.savings.expected_to_date),
+        savings_measured: Money(view.savings.measured_to_date),
+        savings_rate: rate_text(view.savings.rate),
+        forecast: Money(view.savings_forecast),
+        expected_total: Money(view.savings_expected_total),
+        spending: Money(view.spending_to_date),
+        spending_expected: Money(view.spending_expected_to_date),
+        xnpv: view.realized.as_ref().map_or_else(|| "–".into(), |r| Money(r.xnpv).to_string()),
+        xirr: view.realized.as_ref().map_or_else(
+            || "–".into(),
+            |r| {
+                r.xirr.map_or_else(
+                    || format!("none: {}", r.xirr_note.clone().unwrap_or_default()),
+                    |x| Percent(x).to_string(),
+                )
+            },
+        ),
+        drivers: view
+            .drivers
+            .iter()
+            .map(|d| DriverRow {
+                label: d.label.clone(),
+                unit: d.unit.clone(),
+                expected: Money(d.realization.expected_to_date),
+                measured: Money(d.realization.measured_to_date),
+                quantity: crate::domain::group_thousands(d.measured_quantity, 0),
+                rate: rate_text(d.realization.rate),
+                chart: PairChart::monthly(&d.expected, &d.measured, months, &d.label),
+            })
+            .collect(),
+        cumulative: PairChart::cumulative(&view.expected_net, &view.measured_net, view.elapsed),
+    }
+}
+
+/// The baseline and entries of a zone, with the realized view.
+async fn load(
+    state: &AppState,
+    zone_id: i64,
+) -> Result<(SiteSettings, Zone, Option<CaseFull>, Vec<LedgerEntry>, Option<RealizedView>), AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let zone = db::get_zone(&state.pool, zone_id).await?;
+    let baseline = db::baseline_of(&state.pool, zone_id).await?;
+    let entries = db::ledger::zone_entries(&state.pool, zone_id).await?;
+    let view = match &baseline {
+        Some(b) => {
+            let costs: Vec<_> = b.costs.iter().map(|c| (c.id, c.item.clone())).collect();
+            let drivers: Vec<_> = b.drivers.iter().map(|d| (d.id, d.driver.clone())).collect();
+            let relevant: Vec<LedgerEntry> = entries.iter().filter(|e| e.case_id == b.case.id).cloned().collect();
+            Some(
+                realized_view(&b.case.header, &costs, &drivers, &relevant, &site)
+                    .map_err(|e| AppError::Conflict(format!("the realized figures cannot be computed: {e}")))?,
+            )
+        }
+        None => None,
+    };
+    Ok((site, zone, baseline, entries, view))
+}
+
+fn item_name(baseline: &Option<CaseFull>, e: &LedgerEntry) -> String {
+    let Some(b) = baseline else { return String::new() };
+    match e.kind {
+        EntryKind::Saving => b.drivers.iter().find(|d| Some(d.id) == e.driver_id).map(|d| d.driver.label.clone()),
+        EntryKind::Spending => b.costs.iter().find(|c| Some(c.id) == e.cost_id).map(|c| c.item.label.clone()),
+    }
+    .unwrap_or_else(|| format!("item of version {}", e.case_id))
+}
+
+async fn page(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    form: BookingInput,
+    errors: FieldErrors,
+    notice: Option<String>,
+) -> Result<Response, AppError> {
+    let (site, zone, baseline, entries, view) = load(state, zone_id).await?;
+    let rows = entries
+        .into_iter()
+        .rev()
+        .map(|e| {
+            let inputs = match (e.baseline_intensity, e.reporting_volume, e.measured_consumption) {
+                (Some(i), Some(v), Some(c)) => format!("{i} × {v} − {c}"),
+                _ => String::new(),
+            };
+            EntryRow { item: item_name(&baseline, &e), amount: Money(e.amount), inputs, e }
+        })
+        .collect();
+    let status = if !errors.is_empty() {
+        StatusCode::UNPROCESSABLE_ENTITY
+    } else if notice.is_some() {
+        StatusCode::CONFLICT
+    } else {
+        StatusCode::OK
+    };
+    let page = LedgerPage {
+        nav: Nav::from(me),
+        can_book: me.role().allows(crate::auth::Permission::Ledger) && baseline.is_some(),
+        figures: view.as_ref().map(figures),
+        period_hint: format!("up to {}", current_month(state)),
+        site,
+        zone,
+        baseline,
+        entries: rows,
+        form,
+        errors,
+        notice,
+    };
+    Ok((status, Html(page.render()?)).into_response())
+}
+
+/// GET /zones/{id}/ledger
+pub async fn show(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+) -> Result<Response, AppError> {
+    page(
+        &state,
+        &me,
+        id,
+        BookingInput { kind: "saving".into(), method: "direct".into(), ..Default::default() },
+        FieldErrors::default(),
+        None,
+    )
+    .await
+}
+
+/// Book one entry with its audit row in one transaction.
+async fn book_one(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    booking: &Booking,
+    key: Option<&str>,
+) -> Result<Booked, AppError> {
+    let mut tx = db::begin_write(&state.pool).await?;
+    let booked = db::ledger::book(&mut tx, zone_id, booking, current_month(state), me.name(), key, None).await?;
+    if let Booked::New(e) = &booked {
+        let detail = format!("{} {} {} {}", e.kind.as_str(), e.period, e.method, e.amount);
+        db::audit::record(&mut tx, &db::now(), me.name(), "ledger.book", &format!("entry {}", e.id), &detail).await?;
+    }
+    tx.commit().await?;
+    Ok(booked)
+}
+
+/// POST /zones/{id}/ledger: book from the form.
+pub async fn book(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+    FormBody(input): FormBody<BookingInput>,
+) -> Result<Response, AppError> {
+    let booking = match Booking::parse(&input) {
+        Ok(b) => b,
+        Err(e) => return page(&state, &me, id, input, e, None).await,
+    };
+    match book_one(&state, &me, id, &booking, None).await {
+        Ok(_) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Err(AppError::Invalid(e)) => page(&state, &me, id, input, e, None).await,
+        Err(AppError::Conflict(msg)) => page(&state, &me, id, input, FieldErrors::default(), Some(msg)).await,
+        Err(other) => Err(other),
+    }
+}
+
+/// The reversal form and body.
+#[derive(Deserialize, Default)]
+#[serde(default)]
+pub struct ReverseInput {
+    evidence: String,
+}
+
+async fn reverse_one(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    entry: i64,
+    evidence: &str,
+) -> Result<LedgerEntry, AppError> {
+    let evidence = crate::domain::CaseHeader::parse_label(evidence).map_err(|_| {
+        let mut e = FieldErrors::default();
+        e.push("evidence", "required: why the entry is reversed, at most 80 characters");
+        AppError::Invalid(e)
+    })?;
+    let mut tx = db::begin_write(&state.pool).await?;
+    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
+    db::audit::record(
+        &mut tx,
+        &db::now(),
+        me.name(),
+        "ledger.reverse",
+        &format!("entry {}", r.id),
+        &format!("reverses entry {entry}"),
+    )
+    .await?;
+    tx.commit().await?;
+    Ok(r)
+}
+
+/// POST /zones/{id}/ledger/{entry}/reverse
+pub async fn reverse(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path((id, entry)): Path<(i64, i64)>,
+    FormBody(input): FormBody<ReverseInput>,
+) -> Result<Response, AppError> {
+    match reverse_one(&state, &me, id, entry, &input.evidence).await {
+        Ok(_) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Err(AppError::Conflict(msg)) => {
+            page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
+        }
+        Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
+        Err(other) => Err(other),
+    }
+}
+
+/// Parse and book a whole CSV file in one transaction: all rows or none. Every bad row is
+/// reported with its line number and column.
+pub async fn import_csv(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    file_name: &str,
+    bytes: &[u8],
+) -> Result<usize, AppError> {
+    let invalid = |field: String, message: String| {
+        let mut e = FieldErrors::default();
+        e.push(field, message);
+        AppError::Invalid(e)
+    };
+    if bytes.len() > IMPORT_MAX_BYTES {
+        return Err(invalid(
+            "file".into(),
+            format!("larger than {} MiB; split it by month", IMPORT_MAX_BYTES / 1024 / 1024),
+        ));
+    }
+    let baseline = db::baseline_of(&state.pool, zone_id).await?.ok_or_else(|| {
+        AppError::Conflict("the zone has no approved business case to measure against: approve one first".into())
+    })?;
+    let mut reader = csv::ReaderBuilder::new().trim(csv::Trim::All).flexible(false).from_reader(bytes);
+    let headers =
+        reader.headers().map_err(|e| invalid("line 1".into(), format!("cannot read the header row: {e}")))?.clone();
+    let missing: Vec<&str> = CSV_COLUMNS.iter().copied().filter(|c| !headers.iter().any(|h| h == *c)).collect();
+    if !missing.is_empty() {
+        return Err(invalid(
+            "line 1".into(),
+            format!("missing column(s): {}; expected {}", missing.join(", "), CSV_COLUMNS.join(",")),
+        ));
+    }
+    let col = |name: &str| headers.iter().position(|h| h == name);
+    let mut errors = FieldErrors::default();
+    let mut rows = Vec::new();
+    for record in reader.records() {
+        let record = match record {
+            Ok(r) => r,
+            Err(e) => {
+                let line = e.position().map_or(0, |p| p.line());
+                errors.push(format!("line {line}"), e.to_string());
+                continue;
+            }
+        };
+        let line = record.position().map_or(0, |p| p.line());
+        let get = |name: &str| col(name).and_then(|i| record.get(i)).unwrap_or_default().to_string();
+        let kind = get("kind");
+        let item_text = get("item");
+        // The item column takes the id or the exact label of a driver (saving) or cost item (spending).
+        let item = if item_text.parse::<i64>().is_ok() {
+            item_text.clone()
+        } else {
+            let found: Vec<i64> = match kind.as_str() {
+                "saving" => baseline.drivers.iter().filter(|d| d.driver.label == item_text).map(|d| d.id).collect(),
+                _ => baseline.costs.iter().filter(|c| c.item.label == item_text).map(|c| c.id).collect(),
+            };
+            match found.as_slice() {
+                [id] => id.to_string(),
+                [] => {
+                    errors.push(
+                        format!("line {line}, column item"),
+                        format!("no driver or cost item of the baseline is named {item_text:?}"),
+                    );
+                    continue;
+                }
+                _ => {
+                    errors.push(
+                        format!("line {line}, column item"),
+                        format!("{item_text:?} names several items; use the id"),
+                    );
+                    continue;
+                }
+            }
+        };
+        let input = BookingInput {
+            kind,
+            method: get("method"),
+            item,
+            period: get("period"),
+            quantity: get("quantity"),
+            baseline_intensity: get("baseline_intensity"),
+            reporting_volume: get("reporting_volume"),
+            measured_consumption: get("measured_consumption"),
+            amount: get("amount"),
+            evidence: get("evidence"),
+        };
+        match Booking::parse(&input) {
+            Ok(b) => rows.push((line, b)),
+            Err(e) => errors.extend_prefixed(&format!("line {line}, column "), e),
+        }
+    }
+    if rows.is_empty() && errors.is_empty() {
+        return Err(invalid("file".into(), "no rows below the header".into()));
+    }
+    use sha2::Digest;
+    let hash: String = sha2::Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect();
+    let mut tx = db::begin_write(&state.pool).await?;
+    let import_id = db::ledger::insert_import(&mut tx, zone_id, &hash, file_name, rows.len(), me.name()).await?;
+    let month = current_month(state);
+    for (line, b) in &rows {
+        match db::ledger::book(&mut tx, zone_id, b, month, me.name(), None, Some(import_id)).await {
+            Ok(_) => {}
+            Err(db::DbError::Invalid(e)) => errors.extend_prefixed(&format!("line {line}, column "), e),
+            Err(other) => return Err(other.into()),
+        }
+    }
+    if !errors.is_empty() {
+        // Dropping the transaction rolls every row back: all or nothing.
+        return Err(AppError::Invalid(errors));
+    }
+    let detail = format!("{file_name}: {} rows", rows.len());
+    db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
+    tx.commit().await?;
+    Ok(rows.len())
+}
+
+/// POST /zones/{id}/ledger/import: a CSV file from the form (multipart).
+pub async fn import(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+    mut multipart: Multipart,
+) -> Result<Response, AppError> {
+    let mut file: Option<(String, Vec<u8>)> = None;
+    while let Some(field) = multipart
+        .next_field()
+        .await
+        .map_err(|e| AppError::BadRequest { status: StatusCode::BAD_REQUEST, message: e.body_text() })?
+    {
+        if field.name() == Some("file") {
+            let name = field.file_name().unwrap_or("upload.csv").to_string();
+            let bytes = field
+                .bytes()
+                .await
+                .map_err(|e| AppError::BadRequest { status: StatusCode::BAD_REQUEST, message: e.body_text() })?;
+            file = Some((name, bytes.to_vec()));
+        }
+    }
+    let Some((name, bytes)) = file else {
+        let mut e = FieldErrors::default();
+        e.push("file", "choose a CSV file");
+        return page(&state, &me, id, BookingInput::default(), e, None).await;
+    };
+    match import_csv(&state, &me, id, &name, &bytes).await {
+        Ok(n) => {
+            tracing::info!(zone = id, rows = n, file = %name, "CSV imported");
+            Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response())
+        }
+        Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
+        Err(AppError::Conflict(msg)) => {
+            page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
+        }
+        Err(other) => Err(other),
+    }
+}
+
+/// The ledger as CSV in the import layout plus bookkeeping columns.
+fn csv_of(entries: &[LedgerEntry], zone_codes: &std::collections::HashMap<i64, String>) -> Result<String, AppError> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut head: Vec<&str> = vec!["entry", "zone"];
+    head.extend(CSV_COLUMNS);
+    head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by"]);
+    let internal = |e: csv::Error| AppError::Internal(e.into());
+    w.write_record(&head).map_err(internal)?;
+    let text = |d: Option<Decimal>| d.map(|d| d.to_string()).unwrap_or_default();
+    let id = |v: Option<i64>| v.map(|v| v.to_string()).unwrap_or_default();
+    for e in entries {
+        let amount = if e.kind == EntryKind::Spending { (-e.amount).to_string() } else { String::new() };
+        w.write_record([
+            e.id.to_string(),
+            zone_codes.get(&e.zone_id).cloned().unwrap_or_default(),
+            e.period.to_string(),
+            e.kind.as_str().to_string(),
+            id(e.driver_id.or(e.cost_id)),
+            if e.method == "spend" { String::new() } else { e.method.clone() },
+            text(e.quantity),
+            text(e.baseline_intensity),
+            text(e.reporting_volume),
+            text(e.measured_consumption),
+            amount,
+            e.evidence.clone(),
+            text(e.unit_value),
+            id(e.reverses_id),
+            id(e.reversed_by),
+            e.booked_at.clone(),
+            e.booked_by.clone(),
+        ])
+        .map_err(internal)?;
+    }
+    let bytes = w.into_inner().map_err(|e| AppError::Internal(anyhow::anyhow!("csv: {e}")))?;
+    String::from_utf8(bytes).map_err(|e| AppError::Internal(e.into()))
+}
+
+fn csv_response(name: &str, body: String) -> Response {
+    (
+        [
+            (header::CONTENT_TYPE, "text/csv; charset=utf-8".to_string()),
+            (header::CONTENT_DISPOSITION, format!("attachment; filename=\"{name}\"")),
+        ],
+        body,
+    )
+        .into_response()
+}
+
+/// GET /zones/{id}/ledger.csv
+pub async fn export_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Response, AppError> {
+    let zone = db::get_zone(&state.pool, id).await?;
+    let entries = db::ledger::zone_entries(&state.pool, id).await?;
+    let codes = std::iter::once((zone.id, zone.code.clone())).collect();
+    Ok(csv_response(&format!("ledger-{}.csv", zone.code), csv_of(&entries, &codes)?))
+}
+
+/// GET /ledger.csv: every zone's entries.
+pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppError> {
+    let codes = db::list_zones(&state.pool).await?.into_iter().map(|z| (z.id, z.code)).collect();
+    let entries = db::ledger::all_entries(&state.pool).await?;
+    Ok(csv_response("ledger.csv", csv_of(&entries, &codes)?))
+}
+
+/// GET /api/v1/zones/{id}/ledger: entries and realized figures.
+pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+    let (_, _, baseline, entries, view) = load(&state, id).await?;
+    let realized = view.map(|v| {
+        json!({
+            "elapsed_months": v.elapsed,
+            "savings_expected_to_date": v.savings.expected_to_date.to_string(),
+            "savings_measured_to_date": v.savings.measured_to_date.to_string(),
+            "savings_realization": v.savings.rate.map(super::metrics::rate_text),
+            "savings_forecast_at_completion": super::metrics::money_text(v.savings_forecast),
+            "spending_to_date": v.spending_to_date.to_string(),
+            "xnpv": v.realized.as_ref().map(|r| super::metrics::money_text(r.xnpv)),
+            "xirr": v.realized.as_ref().and_then(|r| r.xirr).map(super::metrics::rate_text),
+            "drivers": v.drivers.iter().map(|d| json!({
+                "id": d.id, "label": d.label, "expected_to_date": d.realization.expected_to_date.to_string(),
+                "measured_to_date": d.realization.measured_to_date.to_string(),
+                "realization": d.realization.rate.map(super::metrics::rate_text),
+            })).collect::<Vec<_>>(),
+        })
+    });
+    Ok(Json(json!({ "baseline_case_id": baseline.map(|b| b.case.id), "entries": entries, "realized": realized })))
+}
+
+/// POST /api/v1/zones/{id}/ledger: book one entry. An `Idempotency-Key` header makes a retry
+/// book once: the repeat answers 200 with the first entry.
+pub async fn api_book(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path(id): Path<i64>,
+    headers: HeaderMap,
+    JsonBody(input): JsonBody<BookingInput>,
+) -> Result<Response, ApiError> {
+    let booking = Booking::parse(&input)?;
+    let key =
+        headers.get("idempotency-key").and_then(|v| v.to_str().ok()).map(|k| format!("{}:{}", me.name(), k.trim()));
+    if key.as_ref().is_some_and(|k| k.len() > 200) {
+        let mut e = FieldErrors::default();
+        e.push("Idempotency-Key", "at most 150 characters");
+        return Err(AppError::Invalid(e).into());
+    }
+    Ok(match book_one(&state, &me, id, &booking, key.as_deref()).await? {
+        Booked::New(e) => (StatusCode::CREATED, Json(json!({ "entry": e }))).into_response(),
+        Booked::Replayed(e) => {
+            (StatusCode::OK, [("idempotent-replayed", "true")], Json(json!({ "entry": e }))).into_response()
+        }
+    })
+}
+
+/// POST /api/v1/zones/{id}/ledger/{entry}/reverse with `{"evidence": "..."}`.
+pub async fn api_reverse(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Path((id, entry)): Path<(i64, i64)>,
+    JsonBody(input): JsonBody<ReverseInput>,
+) -> Result<Response, ApiError> {
+    let r = reverse_one(&state, &me, id, entry, &input.evidence).await?;
+    Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response())
+}
