@@ -42,6 +42,14 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             println!("loaded {}: {} zones, {} case versions", file.display(), summary.zones, summary.cases);
             Ok(())
         }
+        Command::Backup { path } => {
+            let pool = open(&config.database_url).await?;
+            let started = std::time::Instant::now();
+            let bytes =
+                db::backup(&pool, &path).await.with_context(|| format!("backup to {} failed", path.display()))?;
+            println!("backup written to {} ({bytes} bytes, {:.1} s)", path.display(), started.elapsed().as_secs_f64());
+            Ok(())
+        }
         Command::User(cmd) => {
             let pool = open(&config.database_url).await?;
             match cmd {

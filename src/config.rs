@@ -34,6 +34,12 @@ pub enum Command {
         /// The scenario JSON file (format in DEVELOPERS.md).
         file: PathBuf,
     },
+    /// Write a consistent copy of the database to PATH while the server may be running
+    /// (SQLite's VACUUM INTO); restore by stopping the server and putting the copy in place.
+    Backup {
+        /// Where to write the copy; must not exist yet.
+        path: PathBuf,
+    },
     /// Manage user accounts. Passwords are read from the terminal or standard input, never from arguments.
     #[command(subcommand)]
     User(UserCommand),

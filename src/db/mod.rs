@@ -80,6 +80,17 @@ pub async fn begin_write(pool: &SqlitePool) -> DbResult<Transaction<'static, Sql
     Ok(pool.begin_with("BEGIN IMMEDIATE").await?)
 }
 
+/// Write a consistent copy of the live database to `path` (SQLite's `VACUUM INTO`, which
+/// reads one snapshot while writers carry on); returns its size. An existing file is refused.
+pub async fn backup(pool: &SqlitePool, path: &std::path::Path) -> DbResult<u64> {
+    if path.exists() {
+        return Err(DbError::Conflict(format!("{} exists already; choose a new file", path.display())));
+    }
+    let target = path.to_str().ok_or_else(|| DbError::Conflict("the backup path must be valid UTF-8".into()))?;
+    sqlx::query("VACUUM INTO ?").bind(target).execute(pool).await?;
+    Ok(std::fs::metadata(path).map(|m| m.len()).unwrap_or(0))
+}
+
 /// The current time as RFC 3339 UTC text, the one timestamp format of the database.
 pub fn now() -> String {
     time::OffsetDateTime::now_utc().format(&time::format_description::well_known::Rfc3339).unwrap_or_default()

@@ -123,7 +123,6 @@ fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
     out
 }
 
-
 /// Expected against measured: two lines (cumulative) or paired bars (per month), on one scale.
 pub struct PairChart {
     /// Full SVG width.

@@ -6,6 +6,7 @@ mod browser;
 mod cli;
 mod finance;
 mod helpers;
+mod ledger;
 mod pages;
 mod realized;
 mod security;
