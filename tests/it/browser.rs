@@ -220,3 +220,63 @@ async fn lead_creates_a_zone_and_sees_the_api_npv() {
     assert!(svg.html(false).await.unwrap().contains("payback"));
     b.client.clone().close().await.unwrap();
 }
+
+/// The controller's journey: book a month by form, import a CSV, reverse one entry, and see
+/// the realization figures change each time.
+#[tokio::test]
+async fn controller_books_imports_and_reverses() {
+    let t: TestApp = test_app(true).await;
+    let Some(b) = browser().await else { return };
+    let c = &b.client;
+    let base = format!("http://{}", t.listen().await);
+    // PRESS-2 is measuring against its approved baseline (starts 2025-03).
+    let zone: i64 = sqlx::query_scalar("SELECT id FROM zones WHERE code = 'PRESS-2'").fetch_one(&t.pool).await.unwrap();
+
+    sign_in(c, &base, "t-controller").await;
+    click_and_wait(c, Locator::LinkText("PRESS-2")).await;
+    click_and_wait(c, Locator::LinkText("Measured savings and spending (ledger)")).await;
+    let none = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
+    assert_eq!(none, "–", "nothing booked yet");
+
+    // A direct measurement by form: the first driver is selected by default.
+    fill(c, "period", "2025-08").await;
+    fill(c, "quantity", "150").await;
+    fill(c, "evidence", "scrap count from the quality report").await;
+    click_button(c, "Book entry").await;
+    let first = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
+    let measured_1 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
+
+    // A CSV of two more months, uploaded through the file input.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("september.csv");
+    std::fs::write(
+        &file,
+        "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+         2025-09,saving,Split and wrinkled blanks,direct,120,,,,,quality report\n\
+         2025-09,saving,Idle hydraulic running,normalized,,2.5,4000,4200,,main meter and press counter\n\
+         2025-09,spending,Analytics software subscription,,,,,,800,invoice 2025-09\n",
+    )
+    .unwrap();
+    c.find(Locator::Id("file")).await.unwrap().send_keys(file.to_str().unwrap()).await.unwrap();
+    click_button(c, "Import").await;
+    let measured_2 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
+    assert_ne!(measured_1, measured_2, "the import adds to the measured savings");
+    let rows = c.find_all(Locator::Css("#ledger tbody tr")).await.unwrap().len();
+    assert_eq!(rows, 4);
+    screenshot(c, "ledger").await;
+
+    // Reverse the form booking (the oldest entry, last in the table).
+    let entry: i64 = sqlx::query_scalar("SELECT MIN(id) FROM ledger_entries WHERE zone_id = ?")
+        .bind(zone)
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
+    fill(c, &format!("why-{entry}"), "counted twice").await;
+    click_and_wait(c, Locator::Css(&format!("button[aria-label='Reverse entry {entry}']"))).await;
+    let measured_3 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
+    assert_ne!(measured_3, measured_2, "the reversal takes the booking back out");
+    assert!(c.find(Locator::XPath(&format!("//td[contains(., 'reversed by #')]"))).await.is_ok());
+    let after = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
+    assert_ne!(first, after, "realization moved with the bookings");
+    b.client.clone().close().await.unwrap();
+}
