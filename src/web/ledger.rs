@@ -87,6 +87,7 @@ pub struct Figures {
     spending_expected: Money,
     xnpv: String,
     xirr: String,
+    xirr_note: Option<String>,
     drivers: Vec<DriverRow>,
     cumulative: PairChart,
 }
@@ -107,15 +108,8 @@ fn figures(view: &RealizedView) -> Figures {
         spending: Money(view.spending_to_date),
         spending_expected: Money(view.spending_expected_to_date),
         xnpv: view.realized.as_ref().map_or_else(|| "–".into(), |r| Money(r.xnpv).to_string()),
-        xirr: view.realized.as_ref().map_or_else(
-            || "–".into(),
-            |r| {
-                r.xirr.map_or_else(
-                    || format!("none: {}", r.xirr_note.clone().unwrap_or_default()),
-                    |x| Percent(x).to_string(),
-                )
-            },
-        ),
+        xirr: view.realized.as_ref().and_then(|r| r.xirr).map_or_else(|| "none".into(), |x| Percent(x).to_string()),
+        xirr_note: view.realized.as_ref().and_then(|r| r.xirr_note.clone()),
         drivers: view
             .drivers
             .iter()

@@ -278,5 +278,7 @@ async fn controller_books_imports_and_reverses() {
     assert!(c.find(Locator::XPath("//td[contains(., 'reversed by #')]")).await.is_ok());
     let after = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
     assert_ne!(first, after, "realization moved with the bookings");
+    c.goto(&format!("{base}/zones/{zone}/ledger")).await.unwrap();
+    screenshot(c, "ledger-figures").await;
     b.client.clone().close().await.unwrap();
 }
