@@ -384,28 +384,35 @@ pub async fn add_driver(conn: &mut SqliteConnection, case_id: i64, d: &NewBenefi
 
 /// Remove a cost item from a draft.
 pub async fn delete_cost(conn: &mut SqliteConnection, case_id: i64, cost_id: i64, actor: &str) -> DbResult<()> {
-    ensure_editable(conn, case_id).await?;
-    let done = sqlx::query("DELETE FROM cost_items WHERE id = ? AND case_id = ?")
-        .bind(cost_id)
-        .bind(case_id)
-        .execute(&mut *conn)
-        .await?;
-    if done.rows_affected() == 0 {
-        return Err(DbError::NotFound("cost item"));
-    }
-    touch(conn, case_id, actor).await
+    delete_item(conn, "DELETE FROM cost_items WHERE id = ? AND case_id = ?", "cost item", case_id, cost_id, actor).await
 }
 
 /// Remove a benefit driver from a draft.
 pub async fn delete_driver(conn: &mut SqliteConnection, case_id: i64, driver_id: i64, actor: &str) -> DbResult<()> {
+    delete_item(
+        conn,
+        "DELETE FROM benefit_drivers WHERE id = ? AND case_id = ?",
+        "benefit driver",
+        case_id,
+        driver_id,
+        actor,
+    )
+    .await
+}
+
+/// Delete one item of a draft with `sql` (`id`, `case_id` binds); `what` names it when missing.
+async fn delete_item(
+    conn: &mut SqliteConnection,
+    sql: &'static str,
+    what: &'static str,
+    case_id: i64,
+    item_id: i64,
+    actor: &str,
+) -> DbResult<()> {
     ensure_editable(conn, case_id).await?;
-    let done = sqlx::query("DELETE FROM benefit_drivers WHERE id = ? AND case_id = ?")
-        .bind(driver_id)
-        .bind(case_id)
-        .execute(&mut *conn)
-        .await?;
+    let done = sqlx::query(sql).bind(item_id).bind(case_id).execute(&mut *conn).await?;
     if done.rows_affected() == 0 {
-        return Err(DbError::NotFound("benefit driver"));
+        return Err(DbError::NotFound(what));
     }
     touch(conn, case_id, actor).await
 }
