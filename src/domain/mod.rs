@@ -19,7 +19,7 @@ pub use case::{
 };
 pub use figures::{CaseFigures, View, case_figures};
 pub use ledger::{Booking, BookingInput, EntryKind, LedgerEntry, Measurement};
-pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct};
+pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};

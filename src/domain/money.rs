@@ -38,6 +38,12 @@ pub fn money(value: &Decimal) -> String {
     Money(*value).to_string()
 }
 
+/// A quantity with thousands separators and the decimals it has (`42000` -> `42,000`).
+pub fn quantity(value: &Decimal) -> String {
+    let v = value.normalize();
+    group_thousands(v, v.scale())
+}
+
 /// Format `value` rounded half away from zero to `dp` decimals, with `,` between thousands.
 pub fn group_thousands(value: Decimal, dp: u32) -> String {
     let rounded = value.round_dp_with_strategy(dp, RoundingStrategy::MidpointAwayFromZero);
@@ -97,5 +103,7 @@ mod tests {
         assert_eq!(parse_decimal("12,500.00"), Ok(dec!(12500)));
         assert!(parse_decimal("twelve").is_err());
         assert_eq!(Percent(0.0825).to_string(), "8.25 %");
+        assert_eq!(quantity(&dec!(42000)), "42,000");
+        assert_eq!(quantity(&dec!(1234.50)), "1,234.5");
     }
 }
