@@ -10,5 +10,5 @@ mod throttle;
 pub use clock::{Clock, ManualClock, SystemClock};
 pub use password::{PasswordError, hash_password, parse_new_password, verify_password};
 pub use role::{Permission, Role};
-pub use secret::{Secret, hash_secret, new_secret};
+pub use secret::{Secret, hash_secret, new_secret, sha256_hex};
 pub use throttle::{Throttle, ThrottleRule};

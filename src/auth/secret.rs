@@ -32,7 +32,12 @@ pub fn new_secret(prefix: &str) -> Secret {
 /// The SHA-256 hex digest stored in place of a secret. A fast hash is right here: the secret
 /// has 256 random bits, so there is nothing to brute-force.
 pub fn hash_secret(secret: &str) -> String {
-    Sha256::digest(secret.as_bytes()).iter().map(|b| format!("{b:02x}")).collect()
+    sha256_hex(secret.as_bytes())
+}
+
+/// The SHA-256 hex digest of `bytes` (secrets, and the content hash of imported files).
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
 }
 
 #[cfg(test)]

@@ -164,11 +164,7 @@ pub async fn book(
         }
         Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
             let q = crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
-                .map_err(|err| {
-                let mut f = FieldErrors::default();
-                f.push("baseline_intensity", err.to_string());
-                DbError::Invalid(f)
-            })?;
+                .map_err(|err| DbError::Invalid(FieldErrors::one("baseline_intensity", err.to_string())))?;
             (
                 Some(q),
                 q * unit_value.unwrap_or_default(),

@@ -43,6 +43,13 @@ pub struct FieldError {
 pub struct FieldErrors(pub Vec<FieldError>);
 
 impl FieldErrors {
+    /// A list holding one error.
+    pub fn one(field: impl Into<String>, message: impl Into<String>) -> Self {
+        let mut e = Self::default();
+        e.push(field, message);
+        e
+    }
+
     /// Record one error.
     pub fn push(&mut self, field: impl Into<String>, message: impl Into<String>) {
         self.0.push(FieldError { field: field.into(), message: message.into() });

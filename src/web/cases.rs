@@ -62,7 +62,12 @@ impl From<&CaseMetrics> for MetricsView {
         let irr = match (&m.irr, m.irr_annual) {
             (Ok(outcome), Some(annual)) => {
                 if outcome.ambiguous {
-                    let roots: Vec<String> = outcome.roots.iter().map(|r| Percent(annual_of(*r)).to_string()).collect();
+                    let roots: Vec<String> = outcome
+                        .roots
+                        .iter()
+                        .filter_map(|r| crate::finance::annual_from_periodic(*r, 12).ok())
+                        .map(|r| Percent(r).to_string())
+                        .collect();
                     warnings.push(format!(
                         "The cash flow changes sign more than once: IRR is ambiguous (roots {}); let NPV and MIRR decide.",
                         roots.join(", ")
@@ -91,11 +96,6 @@ impl From<&CaseMetrics> for MetricsView {
             warnings,
         }
     }
-}
-
-/// Annualize a monthly rate for display.
-fn annual_of(monthly: f64) -> f64 {
-    (1.0 + monthly).powi(12) - 1.0
 }
 
 /// Load a case and compute its figures at the site's settings.
@@ -435,9 +435,7 @@ pub async fn copy(
     let label = match crate::domain::CaseHeader::parse_label(&form.label) {
         Ok(l) => l,
         Err(msg) => {
-            let mut e = FieldErrors::default();
-            e.push("label", msg);
-            return Err(AppError::Invalid(e));
+            return Err(AppError::Invalid(FieldErrors::one("label", msg)));
         }
     };
     let mut tx = db::begin_write(&state.pool).await?;

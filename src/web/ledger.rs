@@ -271,10 +271,8 @@ async fn reverse_one(
     entry: i64,
     evidence: &str,
 ) -> Result<LedgerEntry, AppError> {
-    let evidence = crate::domain::CaseHeader::parse_label(evidence).map_err(|_| {
-        let mut e = FieldErrors::default();
-        e.push("evidence", "required: why the entry is reversed, at most 80 characters");
-        AppError::Invalid(e)
+    let evidence = crate::domain::required_text(evidence, 80).map_err(|_| {
+        AppError::Invalid(FieldErrors::one("evidence", "required: why the entry is reversed, at most 80 characters"))
     })?;
     let mut tx = db::begin_write(&state.pool).await?;
     let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
@@ -317,11 +315,7 @@ pub async fn import_csv(
     file_name: &str,
     bytes: &[u8],
 ) -> Result<usize, AppError> {
-    let invalid = |field: String, message: String| {
-        let mut e = FieldErrors::default();
-        e.push(field, message);
-        AppError::Invalid(e)
-    };
+    let invalid = |field: String, message: String| AppError::Invalid(FieldErrors::one(field, message));
     if bytes.len() > IMPORT_MAX_BYTES {
         return Err(invalid(
             "file".into(),
@@ -403,8 +397,7 @@ pub async fn import_csv(
     if rows.is_empty() && errors.is_empty() {
         return Err(invalid("file".into(), "no rows below the header".into()));
     }
-    use sha2::Digest;
-    let hash: String = sha2::Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect();
+    let hash = crate::auth::sha256_hex(bytes);
     let mut tx = db::begin_write(&state.pool).await?;
     let import_id = db::ledger::insert_import(&mut tx, zone_id, &hash, file_name, rows.len(), me.name()).await?;
     let month = current_month(state);
@@ -448,9 +441,8 @@ pub async fn import(
         }
     }
     let Some((name, bytes)) = file else {
-        let mut e = FieldErrors::default();
-        e.push("file", "choose a CSV file");
-        return page(&state, &me, id, BookingInput::default(), e, None).await;
+        return page(&state, &me, id, BookingInput::default(), FieldErrors::one("file", "choose a CSV file"), None)
+            .await;
     };
     match import_csv(&state, &me, id, &name, &bytes).await {
         Ok(n) => {
@@ -564,9 +556,7 @@ pub async fn api_book(
     let key =
         headers.get("idempotency-key").and_then(|v| v.to_str().ok()).map(|k| format!("{}:{}", me.name(), k.trim()));
     if key.as_ref().is_some_and(|k| k.len() > 200) {
-        let mut e = FieldErrors::default();
-        e.push("Idempotency-Key", "at most 150 characters");
-        return Err(AppError::Invalid(e).into());
+        return Err(AppError::Invalid(FieldErrors::one("Idempotency-Key", "at most 150 characters")).into());
     }
     Ok(match book_one(&state, &me, id, &booking, key.as_deref()).await? {
         Booked::New(e) => (StatusCode::CREATED, Json(json!({ "entry": e }))).into_response(),

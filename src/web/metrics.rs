@@ -127,9 +127,7 @@ fn parse(req: &MetricsRequest) -> Result<Parsed, FieldErrors> {
 
 /// A finance failure that the caller's input caused (numbers too large, for instance).
 fn input_error(e: FinanceError) -> ApiError {
-    let mut f = FieldErrors::default();
-    f.push("flows", e.to_string());
-    ApiError(AppError::Invalid(f))
+    ApiError(AppError::Invalid(FieldErrors::one("flows", e.to_string())))
 }
 
 /// POST /api/v1/metrics

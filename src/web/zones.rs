@@ -49,11 +49,7 @@ async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErr
 /// A taken zone code is the user's to fix beside the code field; anything else is an error.
 fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
     match err {
-        db::DbError::Conflict(msg) => {
-            let mut e = FieldErrors::default();
-            e.push("code", msg);
-            Ok(e)
-        }
+        db::DbError::Conflict(msg) => Ok(FieldErrors::one("code", msg)),
         other => Err(other.into()),
     }
 }
