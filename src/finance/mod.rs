@@ -36,15 +36,19 @@
 //! and Allen, *Principles of Corporate Finance*; Numerical Recipes, 3rd ed., section 9.4
 //! (safeguarded Newton's method).
 
+pub mod calibration;
 mod dated;
 mod error;
 mod irr;
+pub mod linear;
 mod mirr;
+pub mod montecarlo;
 mod npv;
 mod payback;
 mod rate;
 mod realized;
 pub mod schedule;
+pub mod selection;
 
 pub use dated::{DAYS_PER_YEAR, xirr, xirr_outcome, xnpv};
 pub use error::FinanceError;

@@ -5,6 +5,7 @@
 
 use std::collections::HashMap;
 
+use pilot_ledger::finance::selection::{Item, knapsack};
 use pilot_ledger::finance::{
     CaseInput, CostInput, CostTiming, DriverInput, FinanceError, Payback, TaxInput, annual_from_periodic,
     build_schedule, case_metrics, discounted_payback, irr, mirr, monthly_from_annual, npv, payback,
@@ -693,4 +694,36 @@ fn schedule_errors_name_the_input() {
     case.drivers[0].unit_value = d("-1");
     let err = build_schedule(&case, 0.1).unwrap_err();
     assert!(err.to_string().contains("energy"), "{err}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Capital-budget selection against published 0/1 knapsack instances
+// ---------------------------------------------------------------------------------------------
+
+#[derive(Deserialize)]
+struct KnapsackInstance {
+    name: String,
+    capacity: i64,
+    weights: Vec<i64>,
+    profits: Vec<i64>,
+    optimal_profit: i64,
+}
+
+#[test]
+fn knapsack_matches_the_published_optima_of_the_knapsack_01_set() {
+    // tests/fixtures/knapsack_01.json: J. Burkardt, KNAPSACK_01 data set (instances P01-P08 and
+    // their optimal selections), Florida State University.
+    #[derive(Deserialize)]
+    struct Set {
+        instances: Vec<KnapsackInstance>,
+    }
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/knapsack_01.json");
+    let set: Set = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    assert_eq!(set.instances.len(), 8);
+    for k in &set.instances {
+        let items: Vec<Item> = k.weights.iter().zip(&k.profits).map(|(&cost, &value)| Item { cost, value }).collect();
+        let c = knapsack(&items, k.capacity);
+        assert!(c.proven && c.cost <= k.capacity, "{}", k.name);
+        assert_eq!(c.value, k.optimal_profit, "{}", k.name);
+    }
 }
