@@ -39,7 +39,13 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let text = std::fs::read_to_string(&file).with_context(|| format!("cannot read {}", file.display()))?;
             let summary =
                 load_text(&pool, &text).await.with_context(|| format!("{} was not loaded", file.display()))?;
-            println!("loaded {}: {} zones, {} case versions", file.display(), summary.zones, summary.cases);
+            println!(
+                "loaded {}: {} zones, {} case versions, {} ledger entries",
+                file.display(),
+                summary.zones,
+                summary.cases,
+                summary.entries
+            );
             Ok(())
         }
         Command::Backup { path } => {
@@ -147,7 +153,12 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
     let pool = open(url).await?;
     if demo && db::database_is_empty(&pool).await? {
         let summary = load_text(&pool, DEMO_SCENARIO).await.context("loading the demo plant failed")?;
-        tracing::info!(zones = summary.zones, cases = summary.cases, "empty database: demo plant loaded");
+        tracing::info!(
+            zones = summary.zones,
+            cases = summary.cases,
+            entries = summary.entries,
+            "empty database: demo plant loaded"
+        );
         if db::count_users(&pool).await? == 0 {
             create_demo_accounts(&pool).await?;
         }

@@ -9,6 +9,7 @@
 pub mod audit;
 mod cases;
 pub mod ledger;
+pub mod readiness;
 mod scenario;
 mod site;
 mod users;
@@ -120,8 +121,8 @@ fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
 }
 
 pub use cases::{
-    add_cost, add_driver, approve_case, baseline_of, case_full, copy_case, delete_cost, delete_driver, insert_case,
-    list_cases, set_state, submit_case, update_header,
+    add_cost, add_driver, approve_case, baseline_item_by_label, baseline_of, case_full, copy_case, delete_cost,
+    delete_driver, insert_case, list_cases, set_state, submit_case, update_header,
 };
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};

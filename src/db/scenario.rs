@@ -1,8 +1,8 @@
 //! Loading a whole scenario file in one transaction.
 
-use super::{DbError, DbResult, begin_write, insert_case, insert_zone, put_site};
-use crate::domain::Scenario;
-use sqlx::SqlitePool;
+use super::{DbError, DbResult, baseline_item_by_label, begin_write, insert_case, insert_zone, ledger, put_site};
+use crate::domain::{EntryKind, FieldErrors, Month, Scenario};
+use sqlx::{SqliteConnection, SqlitePool};
 
 /// What a load stored.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -11,6 +11,63 @@ pub struct LoadSummary {
     pub zones: usize,
     /// Case versions inserted.
     pub cases: usize,
+    /// Ledger entries booked.
+    pub entries: usize,
+}
+
+/// The calendar month now: a scenario may not book later months either.
+fn this_month() -> Month {
+    let today = time::OffsetDateTime::now_utc().date();
+    Month { year: today.year(), month: u8::from(today.month()) }
+}
+
+/// Store one zone's readiness scores and ledger; errors name the scenario's JSON path.
+async fn load_zone_extras(
+    conn: &mut SqliteConnection,
+    i: usize,
+    zone_id: i64,
+    z: &crate::domain::ZoneScenario,
+    actor: &str,
+) -> DbResult<usize> {
+    let mut scores = Vec::with_capacity(z.readiness.len());
+    for (key, score) in &z.readiness {
+        let id: Option<i64> = sqlx::query_scalar("SELECT id FROM readiness_criteria WHERE key = ?")
+            .bind(key)
+            .fetch_optional(&mut *conn)
+            .await?;
+        let id = id.ok_or_else(|| {
+            DbError::Invalid(FieldErrors::one(
+                format!("zones[{i}].readiness.{key}"),
+                "no readiness criterion has this key",
+            ))
+        })?;
+        scores.push((id, Some(*score)));
+    }
+    super::readiness::set_scores(conn, zone_id, &scores, actor).await?;
+    let now = this_month();
+    for (j, entry) in z.ledger.iter().enumerate() {
+        let prefix = format!("zones[{i}].ledger[{j}].");
+        let driver = entry.booking.kind == EntryKind::Saving;
+        let id = baseline_item_by_label(conn, zone_id, driver, &entry.item_label).await?.ok_or_else(|| {
+            let field = if driver { "driver" } else { "cost" };
+            DbError::Invalid(FieldErrors::one(
+                format!("{prefix}{field}"),
+                "no item of the approved case has this label",
+            ))
+        })?;
+        let mut booking = entry.booking.clone();
+        booking.item_id = id;
+        ledger::book(conn, zone_id, &booking, now, actor, None, None).await.map_err(|err| match err {
+            DbError::Invalid(fe) => {
+                let mut e = FieldErrors::default();
+                e.extend_prefixed(&prefix, fe);
+                DbError::Invalid(e)
+            }
+            DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one(format!("{prefix}item"), msg)),
+            other => other,
+        })?;
+    }
+    Ok(z.ledger.len())
 }
 
 /// Whether the database has never been loaded (no site settings yet).
@@ -35,15 +92,16 @@ pub async fn load_scenario(
             "the database has no site settings yet: the scenario must carry a \"site\" object".into(),
         ));
     }
-    let mut cases = 0;
+    let (mut cases, mut entries) = (0, 0);
     for (i, z) in scenario.zones.iter().enumerate() {
         let zone_id = insert_zone(&mut tx, &z.zone, actor).await?;
         for c in &z.cases {
             insert_case(&mut tx, zone_id, c, actor).await?;
             cases += 1;
         }
+        entries += load_zone_extras(&mut tx, i, zone_id, z, actor).await?;
         progress(i + 1);
     }
     tx.commit().await?;
-    Ok(LoadSummary { zones: scenario.zones.len(), cases })
+    Ok(LoadSummary { zones: scenario.zones.len(), cases, entries })
 }

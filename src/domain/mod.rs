@@ -8,6 +8,7 @@ mod case;
 mod figures;
 mod ledger;
 mod money;
+mod readiness;
 mod realized;
 mod scenario;
 mod site;
@@ -20,8 +21,9 @@ pub use case::{
 pub use figures::{CaseFigures, View, case_figures};
 pub use ledger::{Booking, BookingInput, EntryKind, LedgerEntry, Measurement};
 pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
+pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
-pub use scenario::{Scenario, ZoneScenario};
+pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 

@@ -2,8 +2,12 @@
 //! demo plant in `seed/` is one; `pilot-ledger load FILE` reads any other. The format is
 //! documented in DEVELOPERS.md ("Scenario files").
 
-use super::{CaseSpec, CaseSpecInput, FieldErrors, NewZone, RateStyle, SiteSettings, SiteSettingsInput, ZoneInput};
+use super::{
+    Booking, BookingInput, CaseSpec, CaseSpecInput, EntryKind, FieldErrors, NewZone, RateStyle, SCORE_RANGE,
+    SiteSettings, SiteSettingsInput, ZoneInput,
+};
 use serde::Deserialize;
+use std::collections::BTreeMap;
 
 /// The `format` value every scenario file carries.
 pub const SCENARIO_FORMAT: &str = "pilot-ledger-scenario";
@@ -25,6 +29,33 @@ struct ZoneFile {
     zone: ZoneInput,
     #[serde(default)]
     cases: Vec<CaseSpecInput>,
+    /// Readiness scores by criterion key.
+    #[serde(default)]
+    readiness: BTreeMap<String, u8>,
+    /// Bookings against the zone's approved case, by item label.
+    #[serde(default)]
+    ledger: Vec<LedgerFileEntry>,
+}
+
+#[derive(Debug, Deserialize)]
+struct LedgerFileEntry {
+    /// Label of the baseline driver (savings).
+    #[serde(default)]
+    driver: String,
+    /// Label of the baseline cost item (spending).
+    #[serde(default)]
+    cost: String,
+    #[serde(flatten)]
+    booking: BookingInput,
+}
+
+/// A booking of a scenario file: the baseline item is named by its label, resolved on load.
+#[derive(Debug, Clone)]
+pub struct ScenarioEntry {
+    /// The driver's or cost item's label in the zone's approved case.
+    pub item_label: String,
+    /// The booking; its `item_id` is set when the label is resolved.
+    pub booking: Booking,
 }
 
 /// A whole validated scenario: nothing in it is stored unless all of it is valid.
@@ -43,6 +74,10 @@ pub struct ZoneScenario {
     pub zone: NewZone,
     /// Its case versions, oldest first.
     pub cases: Vec<CaseSpec>,
+    /// Readiness scores (criterion key, 1 to 5), checked against the criteria on load.
+    pub readiness: Vec<(String, u8)>,
+    /// Ledger bookings, in file order.
+    pub ledger: Vec<ScenarioEntry>,
 }
 
 impl Scenario {
@@ -81,8 +116,34 @@ impl Scenario {
                     Err(err) => e.extend_prefixed(&format!("zones[{i}].cases[{j}]."), err),
                 }
             }
+            for (key, score) in &z.readiness {
+                if !SCORE_RANGE.contains(score) {
+                    e.push(format!("zones[{i}].readiness.{key}"), "a score from 1 to 5");
+                }
+            }
+            let mut ledger = Vec::with_capacity(z.ledger.len());
+            for (j, entry) in z.ledger.iter().enumerate() {
+                let prefix = format!("zones[{i}].ledger[{j}].");
+                // The id is not known until the case is stored; the label stands in for it.
+                let mut input = entry.booking.clone();
+                input.item = "0".into();
+                match Booking::parse(&input) {
+                    Ok(booking) => {
+                        let (label, field) = match booking.kind {
+                            EntryKind::Saving => (&entry.driver, "driver"),
+                            EntryKind::Spending => (&entry.cost, "cost"),
+                        };
+                        if label.trim().is_empty() {
+                            e.push(format!("{prefix}{field}"), "the label of the baseline's item");
+                        }
+                        ledger.push(ScenarioEntry { item_label: label.trim().to_string(), booking });
+                    }
+                    Err(err) => e.extend_prefixed(&prefix, err),
+                }
+            }
             if let Some(zone) = zone {
-                zones.push(ZoneScenario { zone, cases });
+                let readiness = z.readiness.iter().map(|(k, s)| (k.clone(), *s)).collect();
+                zones.push(ZoneScenario { zone, cases, readiness, ledger });
             }
         }
         e.into_result(|| Self { site, zones })

@@ -94,7 +94,7 @@ impl LinearNpv {
     /// let m = LinearNpv::new(&case, 0.0)?;
     /// assert_eq!(m.base, -1000.0);
     /// assert!((m.unit_pv[0] - 10.0 / 12.0 * 2.0).abs() < 1e-12);
-    /// assert!((m.npv() - -760.0).abs() < 1e-9);
+    /// assert!((m.npv() - -980.0).abs() < 1e-9);
     /// # Ok::<(), pilot_ledger::finance::FinanceError>(())
     /// ```
     pub fn new(case: &CaseInput, annual_hurdle: f64) -> Result<Self, FinanceError> {
