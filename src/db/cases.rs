@@ -2,7 +2,7 @@
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::{
-    BenefitDriver, CaseHeader, CaseSpec, CaseState, CostCategory, CostItem, CostKind, DriverKind, Month,
+    BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState, CostCategory, CostItem, CostKind, DriverKind, Month,
     NewBenefitDriver, NewCostItem,
 };
 use serde::Serialize;
@@ -43,6 +43,20 @@ pub struct CaseFull {
     pub costs: Vec<CostItem>,
     /// Benefit drivers in entry order.
     pub drivers: Vec<BenefitDriver>,
+}
+
+impl CaseFull {
+    /// The domain's view of this case: header and items with their ids.
+    pub fn parts(&self) -> CaseParts {
+        CaseParts {
+            id: self.case.id,
+            version: self.case.version,
+            baseline: self.case.state == CaseState::Approved,
+            header: self.case.header.clone(),
+            costs: self.costs.iter().map(|c| (c.id, c.item.clone())).collect(),
+            drivers: self.drivers.iter().map(|d| (d.id, d.driver.clone())).collect(),
+        }
+    }
 }
 
 macro_rules! select_case {
@@ -91,7 +105,7 @@ pub async fn case_full(pool: &SqlitePool, id: i64) -> DbResult<CaseFull> {
     case_full_in(&mut conn, id).await
 }
 
-async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResult<CaseFull> {
+pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResult<CaseFull> {
     let row = sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(id).fetch_optional(&mut *conn).await?;
     let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
     let costs = sqlx::query(

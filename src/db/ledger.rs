@@ -48,7 +48,12 @@ fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
 
 /// A zone's entries, oldest first.
 pub async fn zone_entries(pool: &SqlitePool, zone_id: i64) -> DbResult<Vec<LedgerEntry>> {
-    let rows = sqlx::query(select_entry!("WHERE e.zone_id = ? ORDER BY e.id")).bind(zone_id).fetch_all(pool).await?;
+    zone_entries_in(&mut *pool.acquire().await?, zone_id).await
+}
+
+/// [`zone_entries`] inside the caller's transaction.
+pub(super) async fn zone_entries_in(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<Vec<LedgerEntry>> {
+    let rows = sqlx::query(select_entry!("WHERE e.zone_id = ? ORDER BY e.id")).bind(zone_id).fetch_all(conn).await?;
     rows.iter().map(entry_from).collect()
 }
 

@@ -9,6 +9,7 @@
 pub mod audit;
 mod cases;
 pub mod ledger;
+mod portfolio;
 pub mod readiness;
 mod scenario;
 mod site;
@@ -120,10 +121,12 @@ fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
     }
 }
 
+use cases::case_full_in;
 pub use cases::{
     add_cost, add_driver, approve_case, baseline_item_by_label, baseline_of, case_full, copy_case, delete_cost,
     delete_driver, insert_case, list_cases, set_state, submit_case, update_header,
 };
+pub use portfolio::zone_data;
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};
 pub use users::{
@@ -131,4 +134,5 @@ pub use users::{
     insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,
     user_for_token,
 };
+use zones::list_zones_in;
 pub use zones::{get_zone, insert_zone, list_zones, update_zone};

@@ -32,7 +32,12 @@ fn zone_from(row: &SqliteRow) -> DbResult<Zone> {
 
 /// Every zone, by code.
 pub async fn list_zones(pool: &SqlitePool) -> DbResult<Vec<Zone>> {
-    let rows = sqlx::query(select_zone!("FROM zones ORDER BY code")).fetch_all(pool).await?;
+    list_zones_in(&mut *pool.acquire().await?).await
+}
+
+/// [`list_zones`] inside the caller's transaction.
+pub(super) async fn list_zones_in(conn: &mut SqliteConnection) -> DbResult<Vec<Zone>> {
+    let rows = sqlx::query(select_zone!("FROM zones ORDER BY code")).fetch_all(conn).await?;
     rows.iter().map(zone_from).collect()
 }
 

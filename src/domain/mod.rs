@@ -8,10 +8,12 @@ mod case;
 mod figures;
 mod ledger;
 mod money;
+mod portfolio;
 mod readiness;
 mod realized;
 mod scenario;
 mod site;
+mod uncertainty;
 mod zone;
 
 pub use case::{
@@ -21,10 +23,18 @@ pub use case::{
 pub use figures::{CaseFigures, View, case_figures};
 pub use ledger::{Booking, BookingInput, EntryKind, LedgerEntry, Measurement};
 pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
+pub use portfolio::{
+    BudgetChoice, CaseParts, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow, RankBy, Standing, ValueBasis,
+    ZoneData, ZoneFigures, build_portfolio, calibration_of, zone_figures,
+};
 pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
+pub use uncertainty::{
+    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, History, Trials, case_uncertainty, reference_class,
+    risk_adjusted_npv,
+};
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 
 use serde::Serialize;

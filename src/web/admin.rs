@@ -4,13 +4,14 @@ use super::auth::{CurrentUser, Nav};
 use super::{AppError, AppState, FormBody};
 use crate::auth::{Role, hash_password, hash_secret, new_secret, parse_new_password};
 use crate::db::{self, TokenRow, User, audit::AuditEntry};
-use crate::domain::{FieldErrors, SiteSettings, SiteSettingsInput, parse_percent};
+use crate::domain::{Criterion, FieldErrors, SiteSettings, SiteSettingsInput, parse_percent, parse_weights};
 use askama::Template;
 use axum::extract::{Path, State};
 use axum::http::StatusCode;
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use serde::Deserialize;
 use sqlx::SqlitePool;
+use std::collections::HashMap;
 
 #[derive(Template)]
 #[template(path = "admin/page.html")]
@@ -23,6 +24,7 @@ struct AdminPage {
     errors: FieldErrors,
     notice: Option<String>,
     new_token: Option<String>,
+    criteria: Vec<Criterion>,
 }
 
 async fn admin_page(
@@ -41,6 +43,7 @@ async fn admin_page(
         errors,
         notice,
         new_token,
+        criteria: db::readiness::criteria(&state.pool).await?,
     };
     let status = if page.errors.is_empty() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
     Ok((status, Html(page.render()?)).into_response())
@@ -295,6 +298,25 @@ pub async fn update_settings(
     db::audit::record(&mut tx, &db::now(), me.name(), "settings.update", "site", &detail).await?;
     tx.commit().await?;
     Ok(Redirect::to("/admin").into_response())
+}
+
+/// POST /admin/readiness: the weights of the readiness criteria, 0 to 10 each.
+pub async fn update_weights(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    FormBody(form): FormBody<HashMap<String, String>>,
+) -> Result<Response, AppError> {
+    let criteria = db::readiness::criteria(&state.pool).await?;
+    let weights = match parse_weights(&criteria, &form) {
+        Ok(w) => w,
+        Err(e) => return admin_page(&state, Nav::from(&me), e, None, None).await,
+    };
+    let mut tx = db::begin_write(&state.pool).await?;
+    db::readiness::set_weights(&mut tx, &weights, me.name()).await?;
+    let detail: Vec<String> = criteria.iter().zip(&weights).map(|(c, (_, w))| format!("{}={w}", c.key)).collect();
+    db::audit::record(&mut tx, &db::now(), me.name(), "readiness.weights", "readiness", &detail.join(" ")).await?;
+    tx.commit().await?;
+    Ok(Redirect::to("/admin#readiness-weights").into_response())
 }
 
 #[derive(Template)]

@@ -3,11 +3,13 @@
 
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::LineChart;
+use super::uncertainty::UncertaintyView;
 use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseFull};
 use crate::domain::{
-    CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DriverInput, DriverKind, FieldErrors, Money,
-    NewBenefitDriver, NewCostItem, Percent, RateStyle, SiteSettings, Zone, case_figures,
+    CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
+    FieldErrors, Money, NewBenefitDriver, NewCostItem, Percent, RateStyle, SiteSettings, Trials, Zone, calibration_of,
+    case_figures, case_uncertainty,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -121,16 +123,44 @@ struct ViewPage {
     after_tax: Option<MetricsView>,
     chart: LineChart,
     editable: bool,
+    uncertainty: Result<UncertaintyView, String>,
+    seed_error: Option<String>,
 }
 
-/// GET /cases/{id}: the figures and the cumulative discounted cash-flow chart.
+/// The case page's query: the Monte Carlo seed.
+#[derive(Deserialize, Default)]
+#[serde(default)]
+pub struct SeedQuery {
+    seed: String,
+}
+
+/// GET /cases/{id}: the figures, the cumulative discounted cash-flow chart and the uncertainty
+/// section (`?seed=N` reruns the Monte Carlo with another seed).
 pub async fn view(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
-) -> Result<Html<String>, AppError> {
+    Query(q): Query<SeedQuery>,
+) -> Result<Response, AppError> {
     let site = db::get_site(&state.pool).await?;
     let (full, figures) = load_figures(&state, id, &site).await?;
+    let (seed, seed_error) = match q.seed.trim() {
+        "" => (DEFAULT_SEED, None),
+        s => match s.parse::<u64>() {
+            Ok(v) => (v, None),
+            Err(_) => {
+                (DEFAULT_SEED, Some(format!("{s:?} is not a seed: use a whole number from 0 to 18446744073709551615")))
+            }
+        },
+    };
+    let calibration = calibration_of(&db::zone_data(&state.pool).await?, &site);
+    let header = &full.case.header;
+    let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
+    let drivers: Vec<&NewBenefitDriver> = full.drivers.iter().map(|d| &d.driver).collect();
+    let trials = Trials { seed, ..Trials::default() };
+    let uncertainty = case_uncertainty(header, &costs, &drivers, &site, &figures.pre_tax.metrics, &calibration, trials)
+        .map(|u| UncertaintyView::new(&u, header.success_probability, &calibration, &site.currency))
+        .map_err(|e| format!("the uncertainty cannot be computed: {e}"));
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
     let pre = &figures.pre_tax;
     let cumulative: Vec<Decimal> = pre.schedule.rows.iter().map(|r| r.cumulative_discounted).collect();
@@ -148,8 +178,11 @@ pub async fn view(
         full,
         chart,
         editable: false,
+        uncertainty,
+        seed_error,
     };
-    Ok(Html(page.render()?))
+    let status = if page.seed_error.is_some() { StatusCode::UNPROCESSABLE_ENTITY } else { StatusCode::OK };
+    Ok((status, Html(page.render()?)).into_response())
 }
 
 /// One row of the monthly table, formatted.

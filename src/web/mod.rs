@@ -10,6 +10,8 @@ mod error;
 mod ledger;
 mod metrics;
 mod pages;
+mod portfolio;
+mod uncertainty;
 mod zones;
 
 pub use error::{ApiError, AppError};
@@ -91,6 +93,7 @@ pub fn routes() -> Vec<Route> {
         route(g.clone(), "/zones/{id}", Read, get(zones::detail)),
         route(p.clone(), "/zones/{id}", EditCases, post(zones::update)),
         route(p.clone(), "/zones/{id}/cases", EditCases, post(zones::new_case)),
+        route(p.clone(), "/zones/{id}/readiness", EditCases, post(zones::rate_readiness)),
         route(g.clone(), "/zones/{id}/compare", Read, get(cases::compare)),
         route(g.clone(), "/cases/{id}", Read, get(cases::view)),
         route(g.clone(), "/cases/{id}/flows", Read, get(cases::flows)),
@@ -109,6 +112,9 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/zones/{id}/ledger/import", Ledger, post(ledger::import)),
         route(g.clone(), "/zones/{id}/ledger.csv", Read, get(ledger::export_zone)),
         route(g.clone(), "/ledger.csv", Read, get(ledger::export_all)),
+        route(g.clone(), "/portfolio", Read, get(portfolio::page)),
+        route(g.clone(), "/portfolio.csv", Read, get(portfolio::csv)),
+        route(g.clone(), "/api/v1/portfolio", Read, get(portfolio::api)),
         route(g.clone(), "/admin", Admin, get(admin::page)),
         route(p.clone(), "/admin/users", Admin, post(admin::add_user)),
         route(p.clone(), "/admin/users/{id}", Admin, post(admin::update_user)),
@@ -116,6 +122,7 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/admin/tokens", Admin, post(admin::create_token)),
         route(p.clone(), "/admin/tokens/{id}/revoke", Admin, post(admin::revoke_token)),
         route(p.clone(), "/admin/settings", Admin, post(admin::update_settings)),
+        route(p.clone(), "/admin/readiness", Admin, post(admin::update_weights)),
         route(g.clone(), "/admin/audit", Admin, get(admin::audit)),
         route(g.clone(), "/api/v1/openapi.json", Public, get(api::openapi)),
         route(p.clone(), "/api/v1/metrics", Read, post(metrics::metrics)),

@@ -5,13 +5,15 @@ use super::cases::{MetricsView, load_figures};
 use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseVersion};
 use crate::domain::{
-    CaseHeader, CaseSpec, CaseState, FieldErrors, Month, NewZone, SiteSettings, Zone, ZoneInput, ZoneStatus,
+    CaseHeader, CaseSpec, CaseState, Criterion, FieldErrors, Month, NewZone, Readiness, SiteSettings, Zone, ZoneInput,
+    ZoneStatus, parse_scores,
 };
 use askama::Template;
 use axum::extract::{Path, State};
 use axum::http::StatusCode;
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
+use std::collections::HashMap;
 
 /// One row of the zone list: the zone and the figures of its newest version.
 pub struct ZoneRow {
@@ -101,6 +103,16 @@ struct DetailPage {
     form: ZoneInput,
     errors: FieldErrors,
     statuses: [ZoneStatus; 6],
+    readiness: Vec<ReadinessLine>,
+    readiness_score: Option<Readiness>,
+    readiness_errors: FieldErrors,
+}
+
+/// One criterion on the zone page: its score and who gave it.
+pub struct ReadinessLine {
+    criterion: Criterion,
+    score: Option<u8>,
+    rated: String,
 }
 
 async fn detail_page(
@@ -109,6 +121,17 @@ async fn detail_page(
     id: i64,
     form: Option<ZoneInput>,
     errors: FieldErrors,
+) -> Result<DetailPage, AppError> {
+    detail_with(state, nav, id, form, errors, FieldErrors::default()).await
+}
+
+async fn detail_with(
+    state: &AppState,
+    nav: Nav,
+    id: i64,
+    form: Option<ZoneInput>,
+    errors: FieldErrors,
+    readiness_errors: FieldErrors,
 ) -> Result<DetailPage, AppError> {
     let site = db::get_site(&state.pool).await?;
     let zone = db::get_zone(&state.pool, id).await?;
@@ -124,7 +147,70 @@ async fn detail_page(
         owner: zone.owner.clone(),
         status: zone.status.as_str().to_string(),
     });
-    Ok(DetailPage { nav, site, zone, versions, form, errors, statuses: ZoneStatus::ALL })
+    let criteria = db::readiness::criteria(&state.pool).await?;
+    let scores = db::readiness::zone_scores(&state.pool, id).await?;
+    let readiness_score =
+        Readiness::weighted(&criteria, &scores.iter().map(|(k, (s, _, _))| (*k, *s)).collect::<HashMap<_, _>>());
+    let readiness = criteria
+        .into_iter()
+        .map(|c| {
+            let given = scores.get(&c.id);
+            ReadinessLine {
+                score: given.map(|(s, _, _)| *s),
+                rated: given.map_or_else(String::new, |(_, at, by)| format!("{at} by {by}")),
+                criterion: c,
+            }
+        })
+        .collect();
+    Ok(DetailPage {
+        nav,
+        site,
+        zone,
+        versions,
+        form,
+        errors,
+        statuses: ZoneStatus::ALL,
+        readiness,
+        readiness_score,
+        readiness_errors,
+    })
+}
+
+/// POST /zones/{id}/readiness: the lead's scores, 1 to 5 per criterion (empty clears one).
+pub async fn rate_readiness(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    FormBody(form): FormBody<HashMap<String, String>>,
+) -> Result<Response, AppError> {
+    db::get_zone(&state.pool, id).await?;
+    let criteria = db::readiness::criteria(&state.pool).await?;
+    match parse_scores(&criteria, &form) {
+        Ok(scores) => {
+            let mut tx = db::begin_write(&state.pool).await?;
+            db::readiness::set_scores(&mut tx, id, &scores, user.name()).await?;
+            let detail: Vec<String> = criteria
+                .iter()
+                .zip(&scores)
+                .map(|(c, (_, s))| format!("{}={}", c.key, s.map_or_else(|| "-".into(), |s| s.to_string())))
+                .collect();
+            db::audit::record(
+                &mut tx,
+                &db::now(),
+                user.name(),
+                "zone.readiness",
+                &format!("zone {id}"),
+                &detail.join(" "),
+            )
+            .await?;
+            tx.commit().await?;
+            Ok(Redirect::to(&format!("/zones/{id}#readiness")).into_response())
+        }
+        Err(errors) => {
+            let page = detail_with(&state, Nav::from(&user), id, None, FieldErrors::default(), errors).await?;
+            Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response())
+        }
+    }
 }
 
 /// GET /zones/{id}

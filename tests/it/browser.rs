@@ -235,15 +235,22 @@ async fn controller_books_imports_and_reverses() {
     sign_in(c, &base, "t-controller").await;
     click_and_wait(c, Locator::LinkText("PRESS-2")).await;
     click_and_wait(c, Locator::LinkText("Measured savings and spending (ledger)")).await;
-    let none = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
-    assert_eq!(none, "–", "nothing booked yet");
+    let history = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
+    assert_ne!(history, "–", "the demo plant's invented history is booked");
+    let demo_rows = c.find_all(Locator::Css("#ledger tbody tr")).await.unwrap().len();
 
     // A direct measurement by form: the first driver is selected by default.
     fill(c, "period", "2025-08").await;
     fill(c, "quantity", "150").await;
     fill(c, "evidence", "scrap count from the quality report").await;
     click_button(c, "Book entry").await;
+    let booked: i64 = sqlx::query_scalar("SELECT MAX(id) FROM ledger_entries WHERE zone_id = ?")
+        .bind(zone)
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
     let first = c.find(Locator::Id("realization")).await.unwrap().text().await.unwrap();
+    assert_ne!(first, history, "the booking moves the realization");
     let measured_1 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
 
     // A CSV of two more months, uploaded through the file input.
@@ -262,15 +269,11 @@ async fn controller_books_imports_and_reverses() {
     let measured_2 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
     assert_ne!(measured_1, measured_2, "the import adds to the measured savings");
     let rows = c.find_all(Locator::Css("#ledger tbody tr")).await.unwrap().len();
-    assert_eq!(rows, 4);
+    assert_eq!(rows, demo_rows + 4);
     screenshot(c, "ledger").await;
 
-    // Reverse the form booking (the oldest entry, last in the table).
-    let entry: i64 = sqlx::query_scalar("SELECT MIN(id) FROM ledger_entries WHERE zone_id = ?")
-        .bind(zone)
-        .fetch_one(&t.pool)
-        .await
-        .unwrap();
+    // Reverse the form booking.
+    let entry = booked;
     fill(c, &format!("why-{entry}"), "counted twice").await;
     click_and_wait(c, Locator::Css(&format!("button[aria-label='Reverse entry {entry}']"))).await;
     let measured_3 = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();

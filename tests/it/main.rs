@@ -8,5 +8,6 @@ mod finance;
 mod helpers;
 mod ledger;
 mod pages;
+mod portfolio;
 mod realized;
 mod security;

@@ -1,5 +1,11 @@
 //! Server-side SVG charts: coordinates are computed here, the markup lives in templates.
 
+mod bars;
+mod scatter;
+
+pub use bars::{Columns, RangeBars, RangeInput};
+pub use scatter::{Axis, Scatter, ScatterPoint};
+
 use crate::domain::Money;
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
@@ -107,6 +113,18 @@ impl LineChart {
             summary,
         }
     }
+}
+
+/// A money tick label.
+fn money_label(v: f64) -> String {
+    Money(Decimal::from_f64_retain(v).unwrap_or_default().round()).to_string()
+}
+
+/// `lo..hi` widened to include zero-width ranges and padded by 4 % on each side.
+fn padded(lo: f64, hi: f64) -> (f64, f64) {
+    let (lo, hi) = if (hi - lo).abs() < 1.0 { (lo - 1.0, hi + 1.0) } else { (lo, hi) };
+    let pad = (hi - lo) * 0.04;
+    (lo - pad, hi + pad)
 }
 
 /// Round tick values (1, 2 or 5 times a power of ten) covering `lo..=hi`.

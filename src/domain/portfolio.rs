@@ -1,0 +1,519 @@
+//! The portfolio: every zone's figures side by side, ranked, and the capital-budget choice.
+//!
+//! # The budget rule
+//! Zones already approved, piloting or measuring are **committed**: their one-off investment is
+//! taken from the budget first. Shelved and closed zones are out of the choice. Candidates
+//! compete for what is left: the exact 0/1 knapsack ([`crate::finance::selection::knapsack`])
+//! picks the set with the largest total value (NPV, risk-adjusted or calibrated NPV, as chosen)
+//! whose investment fits; a candidate whose value is not positive is never picked. Beside it,
+//! the greedy set taken in order of profitability index, for comparison. An optional minimum
+//! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
+//! changes the money figures.
+
+use super::uncertainty::{Calibration, CaseUncertainty, History, Trials, case_uncertainty, reference_class};
+use super::{
+    CaseFigures, CaseHeader, Criterion, FieldErrors, LedgerEntry, NewBenefitDriver, NewCostItem, Readiness,
+    SiteSettings, Zone, ZoneStatus, case_figures, parse_decimal, realized_view,
+};
+use crate::finance::selection::{Item, greedy_in_order, knapsack};
+use rust_decimal::Decimal;
+use rust_decimal::prelude::ToPrimitive;
+use serde::Deserialize;
+use std::cmp::Ordering;
+use std::collections::HashMap;
+
+/// What the table is sorted by.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RankBy {
+    /// NPV, largest first.
+    Npv,
+    /// Risk-adjusted NPV, largest first.
+    RiskAdjusted,
+    /// Calibrated NPV, largest first.
+    Calibrated,
+    /// IRR, largest first.
+    Irr,
+    /// Simple payback, shortest first.
+    Payback,
+    /// Profitability index, largest first.
+    ProfitabilityIndex,
+}
+
+impl RankBy {
+    /// Every choice, for the select box.
+    pub const ALL: [RankBy; 6] =
+        [Self::Npv, Self::RiskAdjusted, Self::Calibrated, Self::Irr, Self::Payback, Self::ProfitabilityIndex];
+
+    /// Query-string spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Npv => "npv",
+            Self::RiskAdjusted => "risk_adjusted_npv",
+            Self::Calibrated => "calibrated_npv",
+            Self::Irr => "irr",
+            Self::Payback => "payback",
+            Self::ProfitabilityIndex => "profitability_index",
+        }
+    }
+
+    /// Words for people.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Npv => "NPV",
+            Self::RiskAdjusted => "Risk-adjusted NPV",
+            Self::Calibrated => "Calibrated NPV",
+            Self::Irr => "IRR",
+            Self::Payback => "Payback (shortest first)",
+            Self::ProfitabilityIndex => "Profitability index",
+        }
+    }
+
+    fn parse(value: &str) -> Result<Self, String> {
+        let v = value.trim();
+        if v.is_empty() {
+            return Ok(Self::Npv);
+        }
+        Self::ALL
+            .into_iter()
+            .find(|r| r.as_str() == v)
+            .ok_or_else(|| format!("one of {}", Self::ALL.map(|r| r.as_str()).join(", ")))
+    }
+}
+
+/// Which NPV the budget choice maximises.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ValueBasis {
+    /// NPV as entered.
+    Npv,
+    /// Risk-adjusted NPV.
+    RiskAdjusted,
+    /// Calibrated NPV.
+    Calibrated,
+}
+
+impl ValueBasis {
+    /// Every choice.
+    pub const ALL: [ValueBasis; 3] = [Self::Npv, Self::RiskAdjusted, Self::Calibrated];
+
+    /// Query-string spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Npv => "npv",
+            Self::RiskAdjusted => "risk_adjusted_npv",
+            Self::Calibrated => "calibrated_npv",
+        }
+    }
+
+    /// Words for people.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Npv => "NPV",
+            Self::RiskAdjusted => "risk-adjusted NPV",
+            Self::Calibrated => "calibrated NPV",
+        }
+    }
+
+    fn parse(value: &str) -> Result<Self, String> {
+        let v = value.trim();
+        if v.is_empty() {
+            return Ok(Self::Npv);
+        }
+        Self::ALL
+            .into_iter()
+            .find(|r| r.as_str() == v)
+            .ok_or_else(|| format!("one of {}", Self::ALL.map(|r| r.as_str()).join(", ")))
+    }
+}
+
+/// The portfolio query as the page form, the CSV link and the API give it.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(default)]
+pub struct PortfolioQuery {
+    /// Capital budget for one-off investment; empty for no choice.
+    pub budget: String,
+    /// Ranking metric ([`RankBy::as_str`]).
+    pub rank: String,
+    /// Value the choice maximises ([`ValueBasis::as_str`]).
+    pub basis: String,
+    /// Minimum weighted readiness (1 to 5) for a candidate to be chosen; empty for none.
+    pub min_readiness: String,
+    /// Monte Carlo seed; empty for the default.
+    pub seed: String,
+}
+
+/// A valid portfolio query.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PortfolioParams {
+    /// Capital budget.
+    pub budget: Option<Decimal>,
+    /// Ranking.
+    pub rank: RankBy,
+    /// Value maximised.
+    pub basis: ValueBasis,
+    /// Minimum readiness.
+    pub min_readiness: Option<Decimal>,
+    /// Monte Carlo settings.
+    pub trials: Trials,
+}
+
+/// Largest budget accepted: far above any plant's, and inside i64 cents.
+const MAX_BUDGET: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
+
+impl PortfolioParams {
+    /// Validate each field; errors name it.
+    pub fn parse(q: &PortfolioQuery) -> Result<Self, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let budget = if q.budget.trim().is_empty() {
+            None
+        } else {
+            e.take(
+                "budget",
+                parse_decimal(&q.budget).and_then(|b| {
+                    if b < Decimal::ZERO || b > MAX_BUDGET {
+                        Err("an amount from 0 to 1,000,000,000,000".into())
+                    } else {
+                        Ok(b)
+                    }
+                }),
+            )
+        };
+        let rank = e.take("rank", RankBy::parse(&q.rank));
+        let basis = e.take("basis", ValueBasis::parse(&q.basis));
+        let min_readiness = if q.min_readiness.trim().is_empty() {
+            None
+        } else {
+            e.take(
+                "min_readiness",
+                parse_decimal(&q.min_readiness).and_then(|m| {
+                    if (Decimal::ONE..=Decimal::from(5)).contains(&m) {
+                        Ok(m)
+                    } else {
+                        Err("a score from 1 to 5".into())
+                    }
+                }),
+            )
+        };
+        let seed = if q.seed.trim().is_empty() {
+            Some(Trials::default().seed)
+        } else {
+            e.take(
+                "seed",
+                q.seed.trim().parse::<u64>().map_err(|_| "a whole number from 0 to 18446744073709551615".into()),
+            )
+        };
+        match (rank, basis, seed) {
+            (Some(rank), Some(basis), Some(seed)) if e.is_empty() => {
+                Ok(Self { budget, rank, basis, min_readiness, trials: Trials { seed, ..Trials::default() } })
+            }
+            _ => Err(e),
+        }
+    }
+}
+
+/// A case's parts as the portfolio needs them (ids kept for the realized view).
+#[derive(Debug, Clone)]
+pub struct CaseParts {
+    /// Case version id.
+    pub id: i64,
+    /// Version number.
+    pub version: u32,
+    /// Whether it is the approved baseline.
+    pub baseline: bool,
+    /// Header.
+    pub header: CaseHeader,
+    /// Cost items with ids.
+    pub costs: Vec<(i64, NewCostItem)>,
+    /// Drivers with ids.
+    pub drivers: Vec<(i64, NewBenefitDriver)>,
+}
+
+/// One zone with what the portfolio computes from.
+#[derive(Debug, Clone)]
+pub struct ZoneData {
+    /// The zone.
+    pub zone: Zone,
+    /// Its baseline, or else its newest version.
+    pub case: Option<CaseParts>,
+    /// Its ledger.
+    pub entries: Vec<LedgerEntry>,
+    /// Readiness scores (criterion id -> 1..5).
+    pub scores: HashMap<i64, u8>,
+}
+
+/// Where a zone stands in the budget choice.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Standing {
+    /// Approved or running: counted against the budget first.
+    Committed,
+    /// In the recommended set.
+    Recommended,
+    /// A candidate the recommended set leaves out.
+    LeftOut,
+    /// A candidate kept out by the minimum readiness.
+    BelowReadiness,
+    /// Shelved or closed, or without a computable case: not part of the choice.
+    NotInChoice,
+}
+
+impl Standing {
+    /// Words for people (and the CSV).
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Committed => "committed",
+            Self::Recommended => "recommended",
+            Self::LeftOut => "left out",
+            Self::BelowReadiness => "below readiness minimum",
+            Self::NotInChoice => "not in the choice",
+        }
+    }
+}
+
+/// A zone's figures on the portfolio.
+#[derive(Debug, Clone)]
+pub struct ZoneFigures {
+    /// The case's pre-tax figures.
+    pub figures: CaseFigures,
+    /// Uncertainty, risk and calibration.
+    pub uncertainty: CaseUncertainty,
+}
+
+/// One row of the portfolio.
+#[derive(Debug, Clone)]
+pub struct PortfolioRow {
+    /// The zone.
+    pub zone: Zone,
+    /// The case the figures come from (id, version, label, baseline).
+    pub case: Option<(i64, u32, String, bool)>,
+    /// Figures, or why there are none.
+    pub figures: Result<ZoneFigures, String>,
+    /// Savings realization to date (measured / expected), for zones with a ledger.
+    pub realization: Option<f64>,
+    /// Weighted readiness.
+    pub readiness: Option<Readiness>,
+    /// Budget standing (without a budget: committed, candidate rows as left out).
+    pub standing: Standing,
+    /// Whether the profitability-index order would take it.
+    pub in_greedy: bool,
+}
+
+impl PortfolioRow {
+    /// Investment (one-off costs, undiscounted).
+    pub fn investment(&self) -> Option<Decimal> {
+        self.figures.as_ref().ok().map(|f| f.figures.pre_tax.metrics.total_one_off)
+    }
+
+    /// The value the budget choice uses.
+    pub fn value(&self, basis: ValueBasis) -> Option<Decimal> {
+        self.figures.as_ref().ok().map(|f| match basis {
+            ValueBasis::Npv => f.uncertainty.npv,
+            ValueBasis::RiskAdjusted => f.uncertainty.risk_adjusted,
+            ValueBasis::Calibrated => f.uncertainty.calibrated,
+        })
+    }
+
+    /// The ranking key: larger is better (payback is negated), `None` sorts last.
+    fn key(&self, rank: RankBy) -> Option<f64> {
+        let f = self.figures.as_ref().ok()?;
+        let m = &f.figures.pre_tax.metrics;
+        match rank {
+            RankBy::Npv => f.uncertainty.npv.to_f64(),
+            RankBy::RiskAdjusted => f.uncertainty.risk_adjusted.to_f64(),
+            RankBy::Calibrated => f.uncertainty.calibrated.to_f64(),
+            RankBy::Irr => m.irr_annual,
+            RankBy::Payback => m.payback_months.as_ref().and_then(|p| p.periods.to_f64()).map(|p| -p),
+            RankBy::ProfitabilityIndex => m.profitability_index.and_then(|p| p.to_f64()),
+        }
+    }
+}
+
+/// The capital-budget choice.
+#[derive(Debug, Clone)]
+pub struct BudgetChoice {
+    /// The budget.
+    pub budget: Decimal,
+    /// Investment of committed zones.
+    pub committed: Decimal,
+    /// What is left for candidates (never below zero).
+    pub available: Decimal,
+    /// Recommended candidates' investment.
+    pub recommended_cost: Decimal,
+    /// Recommended candidates' total value.
+    pub recommended_value: Decimal,
+    /// Greedy (profitability-index order) investment.
+    pub greedy_cost: Decimal,
+    /// Greedy total value.
+    pub greedy_value: Decimal,
+    /// Codes in the recommended set but not the greedy one.
+    pub only_recommended: Vec<String>,
+    /// Codes in the greedy set but not the recommended one.
+    pub only_greedy: Vec<String>,
+    /// The best left-out candidate by profitability index, and the budget it lacks beyond what
+    /// the recommended set leaves unspent.
+    pub next_in_line: Option<(String, Decimal)>,
+    /// Whether the knapsack proved its set optimal.
+    pub proven: bool,
+}
+
+/// The whole portfolio.
+#[derive(Debug, Clone)]
+pub struct Portfolio {
+    /// Rows, ranked.
+    pub rows: Vec<PortfolioRow>,
+    /// The budget choice, when a budget was given.
+    pub choice: Option<BudgetChoice>,
+    /// The parameters used.
+    pub params: PortfolioParams,
+}
+
+fn cents(d: Decimal) -> i64 {
+    (d * Decimal::ONE_HUNDRED).round().to_i64().unwrap_or(i64::MAX)
+}
+
+fn from_cents(c: i64) -> Decimal {
+    Decimal::new(c, 2)
+}
+
+/// A zone's figures and uncertainty, or why they cannot be computed.
+pub fn zone_figures(
+    case: &CaseParts,
+    site: &SiteSettings,
+    calibration: &Calibration,
+    trials: Trials,
+) -> Result<ZoneFigures, String> {
+    let costs: Vec<&NewCostItem> = case.costs.iter().map(|(_, c)| c).collect();
+    let drivers: Vec<&NewBenefitDriver> = case.drivers.iter().map(|(_, d)| d).collect();
+    let figures = case_figures(&case.header, costs.iter().copied(), drivers.iter().copied(), site)
+        .map_err(|e| format!("the case cannot be computed: {e}"))?;
+    let uncertainty =
+        case_uncertainty(&case.header, &costs, &drivers, site, &figures.pre_tax.metrics, calibration, trials)
+            .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
+    Ok(ZoneFigures { figures, uncertainty })
+}
+
+/// The reference class for calibration: measuring and closed zones, measured against their
+/// approved baselines.
+pub fn calibration_of(zones: &[ZoneData], site: &SiteSettings) -> Calibration {
+    let histories: Vec<History<'_>> = zones
+        .iter()
+        .filter(|z| matches!(z.zone.status, ZoneStatus::Measuring | ZoneStatus::Closed))
+        .filter_map(|z| {
+            z.case.as_ref().filter(|c| c.baseline).map(|c| History {
+                code: &z.zone.code,
+                header: &c.header,
+                costs: &c.costs,
+                drivers: &c.drivers,
+                entries: &z.entries,
+            })
+        })
+        .collect();
+    reference_class(&histories, site)
+}
+
+/// Build the portfolio (see the [module docs](self) for the budget rule).
+pub fn build_portfolio(
+    zones: Vec<ZoneData>,
+    site: &SiteSettings,
+    criteria: &[Criterion],
+    calibration: &Calibration,
+    params: PortfolioParams,
+) -> Portfolio {
+    let mut rows: Vec<PortfolioRow> = zones
+        .into_iter()
+        .map(|z| {
+            let figures = match &z.case {
+                Some(c) => zone_figures(c, site, calibration, params.trials),
+                None => Err("no business case yet".into()),
+            };
+            let realization = z.case.as_ref().filter(|c| c.baseline && !z.entries.is_empty()).and_then(|c| {
+                realized_view(&c.header, &c.costs, &c.drivers, &z.entries, site).ok().and_then(|v| v.savings.rate)
+            });
+            let readiness = Readiness::weighted(criteria, &z.scores);
+            let standing = match z.zone.status {
+                _ if figures.is_err() => Standing::NotInChoice,
+                ZoneStatus::Approved | ZoneStatus::Piloting | ZoneStatus::Measuring => Standing::Committed,
+                ZoneStatus::Candidate => match (params.min_readiness, readiness) {
+                    (Some(min), r) if r.is_none_or(|r| Decimal::try_from(r.score).unwrap_or_default() < min) => {
+                        Standing::BelowReadiness
+                    }
+                    _ => Standing::LeftOut,
+                },
+                ZoneStatus::Closed | ZoneStatus::Shelved => Standing::NotInChoice,
+            };
+            PortfolioRow {
+                case: z.case.as_ref().map(|c| (c.id, c.version, c.header.label.clone(), c.baseline)),
+                zone: z.zone,
+                figures,
+                realization,
+                readiness,
+                standing,
+                in_greedy: false,
+            }
+        })
+        .collect();
+    let choice = params.budget.map(|budget| choose(&mut rows, budget, params.basis));
+    let rank = params.rank;
+    rows.sort_by(|a, b| match (a.key(rank), b.key(rank)) {
+        (Some(x), Some(y)) => y.total_cmp(&x).then_with(|| a.zone.code.cmp(&b.zone.code)),
+        (Some(_), None) => Ordering::Less,
+        (None, Some(_)) => Ordering::Greater,
+        (None, None) => a.zone.code.cmp(&b.zone.code),
+    });
+    Portfolio { rows, choice, params }
+}
+
+/// Run the knapsack and the greedy order over the candidate rows; mark each row's standing.
+fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> BudgetChoice {
+    let committed: Decimal =
+        rows.iter().filter(|r| r.standing == Standing::Committed).filter_map(PortfolioRow::investment).sum();
+    let available = (budget - committed).max(Decimal::ZERO);
+    let candidates: Vec<usize> = (0..rows.len()).filter(|&i| rows[i].standing == Standing::LeftOut).collect();
+    let items: Vec<Item> = candidates
+        .iter()
+        .map(|&i| Item {
+            cost: cents(rows[i].investment().unwrap_or_default()),
+            value: cents(rows[i].value(basis).unwrap_or_default()),
+        })
+        .collect();
+    let best = knapsack(&items, cents(available));
+    // Profitability index, best first; a case without one-off cost (no index) goes first.
+    let pi = |k: usize| {
+        rows[candidates[k]]
+            .figures
+            .as_ref()
+            .ok()
+            .and_then(|f| f.figures.pre_tax.metrics.profitability_index)
+            .and_then(|p| p.to_f64())
+            .unwrap_or(f64::INFINITY)
+    };
+    let mut order: Vec<usize> = (0..candidates.len()).collect();
+    order.sort_by(|&a, &b| pi(b).total_cmp(&pi(a)).then(a.cmp(&b)));
+    let greedy = greedy_in_order(&items, &order, cents(available));
+    for &k in &best.chosen {
+        rows[candidates[k]].standing = Standing::Recommended;
+    }
+    for &k in &greedy.chosen {
+        rows[candidates[k]].in_greedy = true;
+    }
+    let code = |k: usize| rows[candidates[k]].zone.code.clone();
+    let only_recommended = best.chosen.iter().filter(|k| !greedy.chosen.contains(k)).map(|&k| code(k)).collect();
+    let only_greedy = greedy.chosen.iter().filter(|k| !best.chosen.contains(k)).map(|&k| code(k)).collect();
+    let unspent = cents(available) - best.cost;
+    let next_in_line = order
+        .iter()
+        .copied()
+        .find(|k| !best.chosen.contains(k) && items[*k].value > 0)
+        .map(|k| (code(k), from_cents((items[k].cost - unspent).max(0))));
+    BudgetChoice {
+        budget,
+        committed,
+        available,
+        recommended_cost: from_cents(best.cost),
+        recommended_value: from_cents(best.value),
+        greedy_cost: from_cents(greedy.cost),
+        greedy_value: from_cents(greedy.value),
+        only_recommended,
+        only_greedy,
+        next_in_line,
+        proven: best.proven,
+    }
+}

@@ -1,0 +1,193 @@
+//! A case's uncertainty: tornado, break-even, Monte Carlo, risk-adjusted and calibrated NPV, all
+//! from the straight-line NPV of [`crate::finance::linear`] (pre-tax, the headline view).
+
+use super::realized_view;
+use super::{CaseHeader, DriverKind, LedgerEntry, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
+use crate::finance::calibration::{Evidence, Factor, factor};
+use crate::finance::linear::{BreakEven, LinearNpv, to_decimal};
+use crate::finance::montecarlo::{Simulation, Triangular, simulate};
+use crate::finance::{CaseMetrics, FinanceError};
+use rust_decimal::Decimal;
+use rust_decimal::prelude::ToPrimitive;
+use std::collections::HashMap;
+
+/// The seed used when none is given: fixed, so a page shows the same figures on every visit.
+pub const DEFAULT_SEED: u64 = 20_261_202;
+
+/// Monte Carlo settings: the seed is shown on every page and can be set.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Trials {
+    /// Seed of the random streams.
+    pub seed: u64,
+    /// Number of trials.
+    pub count: usize,
+}
+
+impl Default for Trials {
+    fn default() -> Self {
+        Self { seed: DEFAULT_SEED, count: crate::finance::montecarlo::DEFAULT_TRIALS }
+    }
+}
+
+/// Calibration factors per driver kind, from the reference class of measured zones.
+#[derive(Debug, Clone, Default)]
+pub struct Calibration {
+    by_kind: HashMap<DriverKind, Factor>,
+    /// Zones whose ledgers gave evidence (codes).
+    pub zones: Vec<String>,
+}
+
+impl Calibration {
+    /// The factor for a kind ([`Factor::NONE`] without evidence).
+    pub fn factor(&self, kind: DriverKind) -> Factor {
+        self.by_kind.get(&kind).copied().unwrap_or(Factor::NONE)
+    }
+}
+
+/// One measured zone's history for the reference class.
+pub struct History<'a> {
+    /// Zone code (shown as a source).
+    pub code: &'a str,
+    /// Baseline header.
+    pub header: &'a CaseHeader,
+    /// Baseline cost items with ids.
+    pub costs: &'a [(i64, NewCostItem)],
+    /// Baseline drivers with ids.
+    pub drivers: &'a [(i64, NewBenefitDriver)],
+    /// Ledger entries.
+    pub entries: &'a [LedgerEntry],
+}
+
+/// Calibration factors from measuring and closed zones' baselines and ledgers: per driver kind,
+/// expected and measured money to date and the months with an expected benefit so far, combined
+/// by [`crate::finance::calibration::factor`]. A zone whose realized view cannot be computed is
+/// skipped.
+pub fn reference_class(histories: &[History<'_>], site: &SiteSettings) -> Calibration {
+    let mut evidence: HashMap<DriverKind, Vec<Evidence>> = HashMap::new();
+    let mut zones = Vec::new();
+    for h in histories {
+        let Ok(view) = realized_view(h.header, h.costs, h.drivers, h.entries, site) else { continue };
+        if view.elapsed == 0 {
+            continue;
+        }
+        zones.push(h.code.to_string());
+        for d in &view.drivers {
+            let Some((_, driver)) = h.drivers.iter().find(|(id, _)| *id == d.id) else { continue };
+            let months = d.expected.iter().take(view.elapsed).filter(|e| **e > Decimal::ZERO).count();
+            evidence.entry(driver.kind).or_default().push(Evidence {
+                expected: d.realization.expected_to_date.to_f64().unwrap_or(0.0),
+                measured: d.realization.measured_to_date.to_f64().unwrap_or(0.0),
+                months: u32::try_from(months).unwrap_or(u32::MAX),
+            });
+        }
+    }
+    Calibration { by_kind: evidence.into_iter().map(|(k, ev)| (k, factor(&ev))).collect(), zones }
+}
+
+/// One driver's sensitivity figures.
+#[derive(Debug, Clone)]
+pub struct DriverFigures {
+    /// Label.
+    pub label: String,
+    /// Kind.
+    pub kind: DriverKind,
+    /// Unit.
+    pub unit: String,
+    /// Low, likely and high yearly quantities.
+    pub low: Decimal,
+    /// Likely.
+    pub likely: Decimal,
+    /// High.
+    pub high: Decimal,
+    /// NPV with this driver at its low quantity, the others at likely.
+    pub npv_low: Decimal,
+    /// NPV with this driver at its high quantity.
+    pub npv_high: Decimal,
+    /// Yearly quantity for NPV = 0.
+    pub break_even: BreakEven,
+    /// Calibration applied to this driver.
+    pub factor: Factor,
+}
+
+/// Everything the case page shows about uncertainty.
+#[derive(Debug, Clone)]
+pub struct CaseUncertainty {
+    /// NPV at the likely quantities (the schedule's).
+    pub npv: Decimal,
+    /// `p * PV(benefits) - PV(costs)`.
+    pub risk_adjusted: Decimal,
+    /// NPV with each driver's quantity times its kind's calibration factor.
+    pub calibrated: Decimal,
+    /// Per driver, in case order.
+    pub drivers: Vec<DriverFigures>,
+    /// Driver indices, widest NPV swing first.
+    pub tornado: Vec<usize>,
+    /// Monte Carlo of NPV.
+    pub simulation: Simulation,
+}
+
+/// Risk-adjusted NPV: costs are spent whatever happens, benefits arrive only if the pilot works,
+/// with probability `p` (the case's probability of technical success):
+/// `p * PV(benefits) - PV(costs)`. The expected value of the two outcomes (common practice in
+/// staged R&D appraisal).
+pub fn risk_adjusted_npv(metrics: &CaseMetrics, success_probability: Decimal) -> Decimal {
+    success_probability.saturating_mul(metrics.pv_benefits).saturating_sub(metrics.pv_costs)
+}
+
+/// Compute a case's uncertainty figures (pre-tax).
+pub fn case_uncertainty(
+    header: &CaseHeader,
+    costs: &[&NewCostItem],
+    drivers: &[&NewBenefitDriver],
+    site: &SiteSettings,
+    metrics: &CaseMetrics,
+    calibration: &Calibration,
+    trials: Trials,
+) -> Result<CaseUncertainty, FinanceError> {
+    let input = finance_input(header, costs.iter().copied(), drivers.iter().copied(), None);
+    let model = LinearNpv::new(&input, site.hurdle_f64())?;
+    let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);
+    let lows: Vec<f64> = drivers.iter().map(|d| f(&d.qty_low)).collect();
+    let highs: Vec<f64> = drivers.iter().map(|d| f(&d.qty_high)).collect();
+    let ranges = drivers
+        .iter()
+        .map(|d| Triangular::new(f(&d.qty_low), f(&d.qty_likely), f(&d.qty_high)))
+        .collect::<Result<Vec<_>, _>>()?;
+    let simulation = simulate(&model, &ranges, trials.count, trials.seed)?;
+    let swings = model.tornado(&lows, &highs);
+    let factors: Vec<Factor> = drivers.iter().map(|d| calibration.factor(d.kind)).collect();
+    // Shift the exact NPV by the calibration's change, so factors of 1 give the NPV itself.
+    let shift: f64 = factors
+        .iter()
+        .zip(model.unit_pv.iter().zip(&model.quantities))
+        .map(|(k, (u, q))| (k.factor - 1.0) * u * q)
+        .sum();
+    let npv = metrics.npv;
+    let out_drivers = drivers
+        .iter()
+        .enumerate()
+        .map(|(i, d)| {
+            let swing = swings.iter().find(|s| s.driver == i);
+            DriverFigures {
+                label: d.label.clone(),
+                kind: d.kind,
+                unit: d.unit.clone(),
+                low: d.qty_low,
+                likely: d.qty_likely,
+                high: d.qty_high,
+                npv_low: to_decimal(swing.map_or(0.0, |s| s.npv_low)),
+                npv_high: to_decimal(swing.map_or(0.0, |s| s.npv_high)),
+                break_even: model.break_even(i),
+                factor: factors[i],
+            }
+        })
+        .collect();
+    Ok(CaseUncertainty {
+        npv,
+        risk_adjusted: risk_adjusted_npv(metrics, header.success_probability),
+        calibrated: npv.saturating_add(to_decimal(shift)),
+        drivers: out_drivers,
+        tornado: swings.iter().map(|s| s.driver).collect(),
+        simulation,
+    })
+}

@@ -1,0 +1,481 @@
+//! The portfolio page, its CSV export and `GET /api/v1/portfolio`: one computation, three
+//! renderings, so the page, the file and the API always agree.
+
+use super::auth::{CurrentUser, Nav};
+use super::chart::{Axis, RangeBars, RangeInput, Scatter, ScatterPoint};
+use super::metrics::{money_text, rate_text};
+use super::{ApiError, AppError, AppState};
+use crate::db;
+use crate::domain::{
+    BudgetChoice, FieldErrors, Money, Percent, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow, RankBy,
+    SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of,
+};
+use askama::Template;
+use axum::Json;
+use axum::extract::{Query, State};
+use axum::http::StatusCode;
+use axum::response::{Html, IntoResponse, Response};
+use rust_decimal::Decimal;
+use rust_decimal::prelude::ToPrimitive;
+use serde_json::{Value, json};
+
+/// Compute the portfolio for a valid query.
+async fn compute(state: &AppState, params: PortfolioParams) -> Result<(SiteSettings, Portfolio), AppError> {
+    let site = db::get_site(&state.pool).await?;
+    let criteria = db::readiness::criteria(&state.pool).await?;
+    let zones = db::zone_data(&state.pool).await?;
+    let calibration = calibration_of(&zones, &site);
+    Ok((site.clone(), build_portfolio(zones, &site, &criteria, &calibration, params)))
+}
+
+fn standing_class(s: Standing) -> &'static str {
+    match s {
+        Standing::Committed => "committed",
+        Standing::Recommended => "recommended",
+        Standing::LeftOut | Standing::BelowReadiness => "left-out",
+        Standing::NotInChoice => "not-in-choice",
+    }
+}
+
+/// A row formatted for the page and the CSV.
+pub struct RowView {
+    rank: usize,
+    zone_id: i64,
+    code: String,
+    name: String,
+    status: &'static str,
+    standing: &'static str,
+    class: &'static str,
+    case: Option<(i64, String)>,
+    investment: String,
+    npv: String,
+    npv_negative: bool,
+    risk_adjusted: String,
+    calibrated: String,
+    irr: String,
+    payback: String,
+    pi: String,
+    prob_negative: String,
+    p10: String,
+    p50: String,
+    p90: String,
+    realization: String,
+    readiness: String,
+    in_greedy: bool,
+    problem: Option<String>,
+}
+
+const DASH: &str = "–";
+
+fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
+    let f = r.figures.as_ref().ok();
+    let m = f.map(|f| &f.figures.pre_tax.metrics);
+    let u = f.map(|f| &f.uncertainty);
+    let money = |d: Option<Decimal>| d.map_or_else(|| DASH.to_string(), |d| Money(d).to_string());
+    let sim_money = |v: Option<f64>| money(v.and_then(Decimal::from_f64_retain));
+    RowView {
+        rank,
+        zone_id: r.zone.id,
+        code: r.zone.code.clone(),
+        name: r.zone.name.clone(),
+        status: r.zone.status.as_str(),
+        standing: r.standing.label(),
+        class: standing_class(r.standing),
+        case: r.case.as_ref().map(|(id, v, label, _)| (*id, format!("v{v} {label}"))),
+        investment: money(r.investment()),
+        npv: money(u.map(|u| u.npv)),
+        npv_negative: u.is_some_and(|u| u.npv < Decimal::ZERO),
+        risk_adjusted: money(u.map(|u| u.risk_adjusted)),
+        calibrated: money(u.map(|u| u.calibrated)),
+        irr: m.and_then(|m| m.irr_annual).map_or_else(|| DASH.into(), |i| Percent(i).to_string()),
+        payback: m
+            .and_then(|m| m.payback_months.as_ref())
+            .map_or_else(|| "not reached".into(), |p| format!("{} mo", p.periods.round_dp(1))),
+        pi: m.and_then(|m| m.profitability_index).map_or_else(|| DASH.into(), |p| p.round_dp(2).to_string()),
+        prob_negative: u.map_or_else(|| DASH.into(), |u| Percent(u.simulation.prob_negative).to_string()),
+        p10: sim_money(u.map(|u| u.simulation.p10)),
+        p50: sim_money(u.map(|u| u.simulation.p50)),
+        p90: sim_money(u.map(|u| u.simulation.p90)),
+        realization: r.realization.map_or_else(|| DASH.into(), |v| Percent(v).to_string()),
+        readiness: r.readiness.map_or_else(
+            || "not scored".into(),
+            |x| {
+                if x.complete() {
+                    format!("{:.1}", x.score)
+                } else {
+                    format!("{:.1} ({} of {} scored)", x.score, x.rated, x.of)
+                }
+            },
+        ),
+        in_greedy: r.in_greedy,
+        problem: r.figures.as_ref().err().cloned(),
+    }
+}
+
+fn f64_of(d: Decimal) -> f64 {
+    d.to_f64().unwrap_or(0.0)
+}
+
+/// The three charts above the table.
+struct Charts {
+    npv: RangeBars,
+    investment: Scatter,
+    readiness: Scatter,
+}
+
+fn charts(p: &Portfolio, currency: &str) -> Charts {
+    let ok: Vec<&PortfolioRow> = p.rows.iter().filter(|r| r.figures.is_ok()).collect();
+    let npv = |r: &PortfolioRow| r.figures.as_ref().map_or(0.0, |f| f64_of(f.uncertainty.npv));
+    let bar_class = |r: &PortfolioRow| match r.standing {
+        Standing::Committed => "bar-committed",
+        Standing::Recommended => "bar-recommended",
+        _ => "bar-other",
+    };
+    let bars = ok
+        .iter()
+        .map(|r| {
+            let s = r.figures.as_ref().ok().map(|f| &f.uncertainty.simulation);
+            RangeInput {
+                label: r.zone.code.clone(),
+                from: 0.0,
+                to: npv(r),
+                whisker: s.map(|s| (s.p10, s.p90)),
+                split: None,
+                class: bar_class(r),
+                note: format!(
+                    "{} · {}",
+                    Money(Decimal::from_f64_retain(npv(r)).unwrap_or_default().round()),
+                    r.standing.label()
+                ),
+            }
+        })
+        .collect();
+    let best = ok.first().map(|r| r.zone.code.as_str()).unwrap_or("none");
+    let npv_chart = RangeBars::new(
+        bars,
+        0.0,
+        "0",
+        format!(
+            "NPV of each zone in {currency}, in ranking order (first: {best}); the thin line spans P10 to P90 of the Monte Carlo."
+        ),
+    );
+    let point_class = |r: &PortfolioRow| match r.standing {
+        Standing::Committed => "dot-committed",
+        Standing::Recommended => "dot-recommended",
+        _ => "dot-other",
+    };
+    let investment = Scatter::new(
+        ok.iter()
+            .map(|r| ScatterPoint {
+                x: r.investment().map_or(0.0, f64_of),
+                y: npv(r),
+                label: r.zone.code.clone(),
+                class: point_class(r),
+            })
+            .collect(),
+        Axis::Money,
+        &format!("one-off investment ({currency})"),
+        &format!("NPV ({currency})"),
+        "Investment against NPV: zones up and to the left give the most value per unit of capital.".into(),
+    );
+    let scored: Vec<&&PortfolioRow> = ok.iter().filter(|r| r.readiness.is_some()).collect();
+    let unscored = ok.len() - scored.len();
+    let readiness = Scatter::new(
+        scored
+            .iter()
+            .map(|r| ScatterPoint {
+                x: r.readiness.map_or(0.0, |x| x.score),
+                y: npv(r),
+                label: r.zone.code.clone(),
+                class: point_class(r),
+            })
+            .collect(),
+        Axis::Score(1.0, 5.0),
+        "weighted readiness (1 = not ready, 5 = ready)",
+        &format!("NPV ({currency})"),
+        format!(
+            "Readiness against NPV: a zone high and to the left is valuable but not ready to instrument yet.{}",
+            if unscored > 0 { format!(" {unscored} zone(s) not scored are not shown.") } else { String::new() }
+        ),
+    );
+    Charts { npv: npv_chart, investment, readiness }
+}
+
+/// The budget choice, formatted.
+struct ChoiceView {
+    budget: Money,
+    committed: Money,
+    available: Money,
+    recommended: Vec<String>,
+    recommended_cost: Money,
+    recommended_value: Money,
+    greedy: Vec<String>,
+    greedy_cost: Money,
+    greedy_value: Money,
+    only_recommended: Vec<String>,
+    only_greedy: Vec<String>,
+    gain: Money,
+    next_in_line: Option<(String, Money)>,
+    proven: bool,
+    over_committed: bool,
+}
+
+fn choice_view(c: &BudgetChoice, rows: &[PortfolioRow]) -> ChoiceView {
+    let codes = |f: &dyn Fn(&PortfolioRow) -> bool| rows.iter().filter(|r| f(r)).map(|r| r.zone.code.clone()).collect();
+    ChoiceView {
+        budget: Money(c.budget),
+        committed: Money(c.committed),
+        available: Money(c.available),
+        recommended: codes(&|r| r.standing == Standing::Recommended),
+        recommended_cost: Money(c.recommended_cost),
+        recommended_value: Money(c.recommended_value),
+        greedy: codes(&|r| r.in_greedy),
+        greedy_cost: Money(c.greedy_cost),
+        greedy_value: Money(c.greedy_value),
+        only_recommended: c.only_recommended.clone(),
+        only_greedy: c.only_greedy.clone(),
+        gain: Money(c.recommended_value - c.greedy_value),
+        next_in_line: c.next_in_line.as_ref().map(|(code, lack)| (code.clone(), Money(*lack))),
+        proven: c.proven,
+        over_committed: c.committed > c.budget,
+    }
+}
+
+#[derive(Template)]
+#[template(path = "portfolio/page.html")]
+struct PortfolioPage {
+    nav: Nav,
+    site: SiteSettings,
+    form: PortfolioQuery,
+    errors: FieldErrors,
+    ranks: [RankBy; 6],
+    bases: [ValueBasis; 3],
+    rank: RankBy,
+    basis: ValueBasis,
+    seed: u64,
+    trials: usize,
+    rows: Vec<RowView>,
+    charts: Option<Charts>,
+    choice: Option<ChoiceView>,
+    query: String,
+    print_view: bool,
+}
+
+/// The query string of the current settings, for the CSV and print links.
+fn query_string(q: &PortfolioQuery) -> String {
+    let pairs = [
+        ("budget", &q.budget),
+        ("rank", &q.rank),
+        ("basis", &q.basis),
+        ("min_readiness", &q.min_readiness),
+        ("seed", &q.seed),
+    ];
+    pairs
+        .iter()
+        .filter(|(_, v)| !v.trim().is_empty())
+        .map(|(k, v)| {
+            format!("{k}={}", v.trim().replace(|c: char| !c.is_ascii_alphanumeric() && c != '.' && c != '_', ""))
+        })
+        .collect::<Vec<_>>()
+        .join("&")
+}
+
+/// Query parameters of the page: the portfolio query plus the print view switch.
+#[derive(serde::Deserialize, Default)]
+#[serde(default)]
+pub struct PageQuery {
+    #[serde(flatten)]
+    q: PortfolioQuery,
+    view: String,
+}
+
+/// GET /portfolio
+pub async fn page(
+    State(state): State<AppState>,
+    CurrentUser(me): CurrentUser,
+    Query(pq): Query<PageQuery>,
+) -> Result<Response, AppError> {
+    let q = pq.q;
+    let (params, errors) = match PortfolioParams::parse(&q) {
+        Ok(p) => (Some(p), FieldErrors::default()),
+        Err(e) => (None, e),
+    };
+    let mut page = PortfolioPage {
+        nav: Nav::from(&me),
+        site: db::get_site(&state.pool).await?,
+        query: query_string(&q),
+        form: q,
+        errors,
+        ranks: RankBy::ALL,
+        bases: ValueBasis::ALL,
+        rank: RankBy::Npv,
+        basis: ValueBasis::Npv,
+        seed: crate::domain::DEFAULT_SEED,
+        trials: 0,
+        rows: Vec::new(),
+        charts: None,
+        choice: None,
+        print_view: pq.view == "print",
+    };
+    let Some(params) = params else {
+        return Ok((StatusCode::UNPROCESSABLE_ENTITY, Html(page.render()?)).into_response());
+    };
+    page.rank = params.rank;
+    page.basis = params.basis;
+    page.seed = params.trials.seed;
+    page.trials = params.trials.count;
+    let (site, portfolio) = compute(&state, params).await?;
+    page.charts = Some(charts(&portfolio, &site.currency));
+    page.choice = portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows));
+    page.rows = portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect();
+    Ok(Html(page.render()?).into_response())
+}
+
+/// GET /portfolio.csv: the table as the page shows it, one row per zone.
+pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, AppError> {
+    let params = PortfolioParams::parse(&q)?;
+    let (site, portfolio) = compute(&state, params).await?;
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let cur = &site.currency;
+    let header = [
+        "rank".to_string(),
+        "code".into(),
+        "name".into(),
+        "status".into(),
+        "standing".into(),
+        "in_pi_order_set".into(),
+        "case".into(),
+        format!("investment_{cur}"),
+        format!("npv_{cur}"),
+        format!("risk_adjusted_npv_{cur}"),
+        format!("calibrated_npv_{cur}"),
+        "irr".into(),
+        "payback_months".into(),
+        "profitability_index".into(),
+        "probability_npv_below_zero".into(),
+        format!("p10_npv_{cur}"),
+        format!("p50_npv_{cur}"),
+        format!("p90_npv_{cur}"),
+        "realization_to_date".into(),
+        "readiness".into(),
+        "problem".into(),
+    ];
+    let internal = |e: csv::Error| AppError::Internal(e.into());
+    w.write_record(&header).map_err(internal)?;
+    for (i, r) in portfolio.rows.iter().enumerate() {
+        let j = row_json(i + 1, r);
+        let s = |k: &str| match &j[k] {
+            Value::Null => String::new(),
+            Value::String(s) => s.clone(),
+            v => v.to_string(),
+        };
+        let record = [
+            s("rank"),
+            s("code"),
+            s("name"),
+            s("status"),
+            s("standing"),
+            s("in_pi_order_set"),
+            j["case"]["label"].as_str().unwrap_or_default().to_string(),
+            s("investment"),
+            s("npv"),
+            s("risk_adjusted_npv"),
+            s("calibrated_npv"),
+            s("irr"),
+            s("payback_months"),
+            s("profitability_index"),
+            s("probability_npv_below_zero"),
+            s("p10_npv"),
+            s("p50_npv"),
+            s("p90_npv"),
+            s("realization_to_date"),
+            j["readiness"]["score"].as_f64().map(|v| format!("{v:.2}")).unwrap_or_default(),
+            s("problem"),
+        ];
+        w.write_record(&record).map_err(internal)?;
+    }
+    let bytes = w.into_inner().map_err(|e| AppError::Internal(anyhow::anyhow!("csv: {e}")))?;
+    let body = String::from_utf8(bytes).map_err(|e| AppError::Internal(e.into()))?;
+    Ok(super::ledger::csv_response("portfolio.csv", body))
+}
+
+fn opt_money(d: Option<Decimal>) -> Value {
+    d.map_or(Value::Null, |d| Value::String(money_text(d)))
+}
+
+fn opt_rate(r: Option<f64>) -> Value {
+    r.map_or(Value::Null, |r| Value::String(rate_text(r)))
+}
+
+/// One row as JSON: money and rates as decimal strings, probabilities as strings too.
+fn row_json(rank: usize, r: &PortfolioRow) -> Value {
+    let f = r.figures.as_ref().ok();
+    let m = f.map(|f| &f.figures.pre_tax.metrics);
+    let u = f.map(|f| &f.uncertainty);
+    let sim = |g: fn(&crate::finance::montecarlo::Simulation) -> f64| {
+        opt_money(u.and_then(|u| Decimal::from_f64_retain(g(&u.simulation))).map(|d| d.round_dp(2)))
+    };
+    json!({
+        "rank": rank,
+        "zone_id": r.zone.id,
+        "code": r.zone.code,
+        "name": r.zone.name,
+        "status": r.zone.status.as_str(),
+        "standing": r.standing.label(),
+        "in_pi_order_set": r.in_greedy,
+        "case": r.case.as_ref().map(|(id, v, label, baseline)| json!({
+            "id": id, "version": v, "label": format!("v{v} {label}"), "baseline": baseline
+        })),
+        "investment": opt_money(r.investment()),
+        "npv": opt_money(u.map(|u| u.npv)),
+        "risk_adjusted_npv": opt_money(u.map(|u| u.risk_adjusted)),
+        "calibrated_npv": opt_money(u.map(|u| u.calibrated)),
+        "irr": opt_rate(m.and_then(|m| m.irr_annual)),
+        "payback_months": opt_money(m.and_then(|m| m.payback_months.as_ref()).map(|p| p.periods)),
+        "profitability_index": opt_money(m.and_then(|m| m.profitability_index)),
+        "probability_npv_below_zero": opt_rate(u.map(|u| u.simulation.prob_negative)),
+        "mean_npv": sim(|s| s.mean),
+        "p10_npv": sim(|s| s.p10),
+        "p50_npv": sim(|s| s.p50),
+        "p90_npv": sim(|s| s.p90),
+        "realization_to_date": opt_rate(r.realization),
+        "readiness": r.readiness.map(|x| json!({ "score": x.score, "scored": x.rated, "of": x.of })),
+        "problem": r.figures.as_ref().err(),
+    })
+}
+
+/// GET /api/v1/portfolio?budget=&rank=&basis=&min_readiness=&seed=
+pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Json<Value>, ApiError> {
+    let params = PortfolioParams::parse(&q).map_err(AppError::from)?;
+    let (site, p) = compute(&state, params).await?;
+    let choice = p.choice.as_ref().map(|c| {
+        let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
+            p.rows.iter().filter(|r| f(r)).map(|r| r.zone.code.clone()).collect()
+        };
+        json!({
+            "budget": money_text(c.budget),
+            "committed": money_text(c.committed),
+            "available": money_text(c.available),
+            "recommended": codes(&|r| r.standing == Standing::Recommended),
+            "recommended_investment": money_text(c.recommended_cost),
+            "recommended_value": money_text(c.recommended_value),
+            "pi_order": codes(&|r| r.in_greedy),
+            "pi_order_investment": money_text(c.greedy_cost),
+            "pi_order_value": money_text(c.greedy_value),
+            "only_recommended": c.only_recommended,
+            "only_pi_order": c.only_greedy,
+            "next_in_line": c.next_in_line.as_ref().map(|(code, lack)| json!({ "code": code, "budget_lacking": money_text(*lack) })),
+            "proven_optimal": c.proven,
+        })
+    });
+    Ok(Json(json!({
+        "currency": site.currency,
+        "rank": p.params.rank.as_str(),
+        "basis": p.params.basis.as_str(),
+        "min_readiness": p.params.min_readiness.map(money_text),
+        "seed": p.params.trials.seed.to_string(),
+        "trials": p.params.trials.count,
+        "choice": choice,
+        "zones": p.rows.iter().enumerate().map(|(i, r)| row_json(i + 1, r)).collect::<Vec<_>>(),
+    })))
+}
