@@ -69,15 +69,20 @@ impl RankBy {
     }
 
     fn parse(value: &str) -> Result<Self, String> {
-        let v = value.trim();
-        if v.is_empty() {
-            return Ok(Self::Npv);
-        }
-        Self::ALL
-            .into_iter()
-            .find(|r| r.as_str() == v)
-            .ok_or_else(|| format!("one of {}", Self::ALL.map(|r| r.as_str()).join(", ")))
+        choice(value, &Self::ALL, Self::as_str, Self::Npv)
     }
+}
+
+/// One of `all` by its query spelling, `default` when empty; the error lists the spellings.
+fn choice<T: Copy>(value: &str, all: &[T], name: fn(T) -> &'static str, default: T) -> Result<T, String> {
+    let v = value.trim();
+    if v.is_empty() {
+        return Ok(default);
+    }
+    all.iter().copied().find(|x| name(*x) == v).ok_or_else(|| {
+        let names: Vec<&str> = all.iter().map(|x| name(*x)).collect();
+        format!("one of {}", names.join(", "))
+    })
 }
 
 /// Which NPV the budget choice maximises.
@@ -114,14 +119,7 @@ impl ValueBasis {
     }
 
     fn parse(value: &str) -> Result<Self, String> {
-        let v = value.trim();
-        if v.is_empty() {
-            return Ok(Self::Npv);
-        }
-        Self::ALL
-            .into_iter()
-            .find(|r| r.as_str() == v)
-            .ok_or_else(|| format!("one of {}", Self::ALL.map(|r| r.as_str()).join(", ")))
+        choice(value, &Self::ALL, Self::as_str, Self::Npv)
     }
 }
 

@@ -86,7 +86,7 @@ impl UncertaintyView {
                     "no measured driver of this kind yet".into()
                 } else {
                     format!(
-                        "{} driver(s), {} driver-months; weight given to the evidence {}",
+                        "{} driver(s), {} driver-months; weight on evidence {}",
                         d.factor.drivers,
                         d.factor.months,
                         Percent(d.factor.credibility)

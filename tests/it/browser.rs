@@ -285,3 +285,52 @@ async fn controller_books_imports_and_reverses() {
     screenshot(c, "ledger-figures").await;
     b.client.clone().close().await.unwrap();
 }
+
+/// Management's journey: the portfolio under a budget, the recommended set changing with the
+/// budget, and the print view (A4 landscape) rendered and captured.
+#[tokio::test]
+async fn management_sets_a_budget_and_prints_the_portfolio() {
+    let t: TestApp = test_app(true).await;
+    let Some(b) = browser().await else { return };
+    let c = &b.client;
+    let base = format!("http://{}", t.listen().await);
+    sign_in(c, &base, "t-viewer").await;
+    click_and_wait(c, Locator::LinkText("Portfolio")).await;
+    assert!(c.find(Locator::Id("choice")).await.is_err(), "no budget, no choice");
+    let rows = c.find_all(Locator::Css("#portfolio tbody tr")).await.unwrap().len();
+    assert_eq!(rows, 8);
+
+    let recommended = || async { c.find(Locator::Id("recommended")).await.unwrap().text().await.unwrap() };
+    fill(c, "budget", "300000").await;
+    click_button(c, "Show").await;
+    assert_eq!(recommended().await, "CNC-5");
+    let pi = c.find(Locator::Id("pi-order")).await.unwrap().text().await.unwrap();
+    assert_eq!(pi, "EOL-1", "the profitability-index order picks differently");
+    assert!(c.find(Locator::Id("next-in-line")).await.unwrap().text().await.unwrap().contains("EOL-1"));
+
+    fill(c, "budget", "310000").await;
+    click_button(c, "Show").await;
+    assert_eq!(recommended().await, "CNC-5, EOL-1", "a larger budget takes both");
+    screenshot(c, "portfolio").await;
+
+    click_and_wait(c, Locator::Id("print-view")).await;
+    assert!(c.current_url().await.unwrap().query().unwrap_or_default().contains("view=print"));
+    // The print rules hide the form and the navigation; the table and charts stay.
+    assert!(!c.find(Locator::Id("portfolio-form")).await.unwrap().is_displayed().await.unwrap());
+    assert!(c.find(Locator::Id("portfolio")).await.unwrap().is_displayed().await.unwrap());
+    assert!(c.find(Locator::Id("npv-bars")).await.unwrap().is_displayed().await.unwrap());
+    c.set_window_size(1123, 794).await.unwrap(); // A4 landscape at 96 dpi
+    screenshot(c, "portfolio-print").await;
+
+    // The lead opens a candidate's case: tornado, histogram and break-even are there.
+    c.goto(&format!("{base}/zones")).await.unwrap();
+    click_and_wait(c, Locator::LinkText("PAINT-1")).await;
+    click_and_wait(c, Locator::LinkText("v1")).await;
+    for id in ["tornado", "histogram", "drivers-uncertainty"] {
+        assert!(c.find(Locator::Id(id)).await.unwrap().is_displayed().await.unwrap(), "{id}");
+    }
+    c.set_window_size(1280, 1400).await.unwrap();
+    c.execute("document.getElementById('uncertainty').scrollIntoView()", vec![]).await.unwrap();
+    screenshot(c, "case-uncertainty").await;
+    b.client.clone().close().await.unwrap();
+}

@@ -1,12 +1,12 @@
 //! Horizontal range bars (the portfolio's NPV bars, the tornado) and vertical columns (the Monte
 //! Carlo histogram).
 
-use super::{Tick, money_label, nice_ticks, padded};
+use super::{Frame, Tick, money_label, nice_ticks, padded};
 
 const WIDTH: f64 = 760.0;
 const LABEL_SPACE: f64 = 190.0;
 const ROW: f64 = 24.0;
-const TOP: f64 = 8.0;
+const TOP: f64 = 20.0;
 const AXIS: f64 = 26.0;
 
 /// One bar to draw, in data units.
@@ -55,16 +55,8 @@ pub struct RangeRow {
 
 /// Horizontal bars on one money axis, with a vertical reference line.
 pub struct RangeBars {
-    /// Full SVG width.
-    pub width: f64,
-    /// Full SVG height.
-    pub height: f64,
-    /// Left edge of the plot.
-    pub left: f64,
-    /// Top edge of the plot.
-    pub top: f64,
-    /// Bottom edge of the plot.
-    pub bottom: f64,
+    /// The SVG box and the plot area.
+    pub frame: Frame,
     /// Bars.
     pub rows: Vec<RangeRow>,
     /// X of the reference line and its text.
@@ -88,7 +80,8 @@ impl RangeBars {
             .chain([reference]);
         let (lo, hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
         let (lo, hi) = padded(lo, hi);
-        let (left, right) = (LABEL_SPACE, WIDTH - 110.0);
+        // Room on the right for the note after the longest bar.
+        let (left, right) = (LABEL_SPACE, WIDTH - 170.0);
         let x = |v: f64| left + (right - left) * (v - lo) / (hi - lo);
         let bottom = TOP + ROW * bars.len().max(1) as f64;
         let rows = bars
@@ -121,11 +114,7 @@ impl RangeBars {
             })
             .collect();
         Self {
-            width: WIDTH,
-            height: bottom + AXIS,
-            left,
-            top: TOP,
-            bottom,
+            frame: Frame { width: WIDTH, height: bottom + AXIS, left, right, top: TOP, bottom },
             rows,
             reference: Tick { at: x(reference), label: reference_label.to_string() },
             x_ticks: nice_ticks(lo, hi).into_iter().map(|v| Tick { at: x(v), label: money_label(v) }).collect(),
@@ -150,18 +139,8 @@ pub struct Column {
 
 /// Vertical columns over a money axis: a histogram.
 pub struct Columns {
-    /// Full SVG width.
-    pub width: f64,
-    /// Full SVG height.
-    pub height: f64,
-    /// Left edge of the plot.
-    pub left: f64,
-    /// Right edge of the plot.
-    pub right: f64,
-    /// Top edge of the plot.
-    pub top: f64,
-    /// Bottom edge of the plot.
-    pub bottom: f64,
+    /// The SVG box and the plot area.
+    pub frame: Frame,
     /// Columns.
     pub columns: Vec<Column>,
     /// X of the zero line, when zero is in range.
@@ -194,12 +173,7 @@ impl Columns {
             })
             .collect();
         Self {
-            width: WIDTH,
-            height: bottom + AXIS,
-            left,
-            right,
-            top,
-            bottom,
+            frame: Frame { width: WIDTH, height: bottom + AXIS, left, right, top, bottom },
             columns,
             zero_x: (lo < 0.0 && hi > 0.0).then(|| x(0.0)),
             x_ticks: nice_ticks(lo, hi).into_iter().map(|v| Tick { at: x(v), label: money_label(v) }).collect(),

@@ -18,16 +18,9 @@ const LEFT: f64 = 90.0;
 const BOTTOM: f64 = 30.0;
 const TOP: f64 = 12.0;
 
-/// One axis tick: position and text.
-pub struct Tick {
-    /// Position along its axis.
-    pub at: f64,
-    /// Text shown.
-    pub label: String,
-}
-
-/// A line chart of one monthly series with a zero line and an optional vertical marker.
-pub struct LineChart {
+/// The SVG box and the plot area inside it, in SVG user units.
+#[derive(Clone, Copy)]
+pub struct Frame {
     /// Full SVG width.
     pub width: f64,
     /// Full SVG height.
@@ -40,6 +33,20 @@ pub struct LineChart {
     pub top: f64,
     /// Bottom edge of the plot.
     pub bottom: f64,
+}
+
+/// One axis tick: position and text.
+pub struct Tick {
+    /// Position along its axis.
+    pub at: f64,
+    /// Text shown.
+    pub label: String,
+}
+
+/// A line chart of one monthly series with a zero line and an optional vertical marker.
+pub struct LineChart {
+    /// The SVG box and the plot area.
+    pub frame: Frame,
     /// `points` attribute of the polyline.
     pub points: String,
     /// Y of the zero line.
@@ -99,12 +106,7 @@ impl LineChart {
             None => format!("{what} never crosses zero inside the horizon; it ends at {}.", Money(last)),
         };
         Self {
-            width: WIDTH,
-            height: HEIGHT,
-            left: LEFT,
-            right,
-            top: TOP,
-            bottom,
+            frame: Frame { width: WIDTH, height: HEIGHT, left: LEFT, right, top: TOP, bottom },
             points,
             zero_y: y(0.0),
             x_ticks,
@@ -143,16 +145,8 @@ fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
 
 /// Expected against measured: two lines (cumulative) or paired bars (per month), on one scale.
 pub struct PairChart {
-    /// Full SVG width.
-    pub width: f64,
-    /// Full SVG height.
-    pub height: f64,
-    /// Left edge of the plot.
-    pub left: f64,
-    /// Right edge of the plot.
-    pub right: f64,
-    /// Bottom edge of the plot.
-    pub bottom: f64,
+    /// The SVG box and the plot area.
+    pub frame: Frame,
     /// Y of the zero line.
     pub zero_y: f64,
     /// Polyline of the expected series (line charts).
@@ -184,7 +178,7 @@ pub struct Bar {
 }
 
 impl PairChart {
-    fn frame(values: impl Iterator<Item = f64>, height: f64) -> (f64, f64, f64, f64, impl Fn(f64) -> f64 + Copy) {
+    fn y_scale(values: impl Iterator<Item = f64>, height: f64) -> (f64, f64, f64, f64, impl Fn(f64) -> f64 + Copy) {
         let (mut lo, mut hi) = values.fold((0.0_f64, 0.0_f64), |(lo, hi), v| (lo.min(v), hi.max(v)));
         if (hi - lo).abs() < 1.0 {
             lo -= 1.0;
@@ -215,7 +209,7 @@ impl PairChart {
         };
         let (e, m) = (cum(expected, expected.len()), cum(measured, elapsed));
         let n = expected.len().max(2) - 1;
-        let (lo, hi, bottom, right, y) = Self::frame(e.iter().chain(m.iter()).copied(), HEIGHT);
+        let (lo, hi, bottom, right, y) = Self::y_scale(e.iter().chain(m.iter()).copied(), HEIGHT);
         let x = |i: usize| LEFT + (right - LEFT) * i as f64 / n as f64;
         let line = |v: &[f64]| {
             v.iter().enumerate().map(|(i, v)| format!("{:.1},{:.1}", x(i), y(*v))).collect::<Vec<_>>().join(" ")
@@ -233,11 +227,7 @@ impl PairChart {
             Money(expected.iter().take(elapsed).sum())
         );
         Self {
-            width: WIDTH,
-            height: HEIGHT,
-            left: LEFT,
-            right,
-            bottom,
+            frame: Frame { width: WIDTH, height: HEIGHT, left: LEFT, right, top: TOP, bottom },
             zero_y: y(0.0),
             expected_points: line(&e),
             measured_points: line(&m),
@@ -254,7 +244,7 @@ impl PairChart {
         let f = |v: &[Decimal], i: usize| v.get(i).and_then(|d| d.to_f64()).unwrap_or(0.0);
         let height = 170.0;
         let (lo, hi, bottom, right, y) =
-            Self::frame((0..months).flat_map(|i| [f(expected, i), f(measured, i)]), height);
+            Self::y_scale((0..months).flat_map(|i| [f(expected, i), f(measured, i)]), height);
         let slot = (right - LEFT) / months as f64;
         let w = (slot * 0.4).min(14.0);
         let mut bars = Vec::with_capacity(months * 2);
@@ -283,11 +273,7 @@ impl PairChart {
             Money(expected.iter().take(months).sum())
         );
         Self {
-            width: WIDTH,
-            height,
-            left: LEFT,
-            right,
-            bottom,
+            frame: Frame { width: WIDTH, height, left: LEFT, right, top: TOP, bottom },
             zero_y: y(0.0),
             expected_points: String::new(),
             measured_points: String::new(),

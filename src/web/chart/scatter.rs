@@ -1,6 +1,6 @@
 //! Labelled points on two axes: investment against NPV, readiness against NPV.
 
-use super::{Tick, money_label, nice_ticks, padded};
+use super::{Frame, Tick, money_label, nice_ticks, padded};
 
 const WIDTH: f64 = 560.0;
 const HEIGHT: f64 = 300.0;
@@ -40,18 +40,8 @@ pub struct Placed {
 
 /// A scatter chart.
 pub struct Scatter {
-    /// Full SVG width.
-    pub width: f64,
-    /// Full SVG height.
-    pub height: f64,
-    /// Left edge of the plot.
-    pub left: f64,
-    /// Right edge of the plot.
-    pub right: f64,
-    /// Top edge of the plot.
-    pub top: f64,
-    /// Bottom edge of the plot.
-    pub bottom: f64,
+    /// The SVG box and the plot area.
+    pub frame: Frame,
     /// Points.
     pub points: Vec<Placed>,
     /// Y of the zero line, when zero is in range.
@@ -90,18 +80,14 @@ fn ticks(lo: f64, hi: f64, axis: Axis, at: impl Fn(f64) -> f64) -> Vec<Tick> {
 impl Scatter {
     /// Lay out `points`; the y axis is money.
     pub fn new(points: Vec<ScatterPoint>, x_axis: Axis, x_title: &str, y_title: &str, summary: String) -> Self {
-        let (left, right, top, bottom) = (90.0, WIDTH - 20.0, 10.0, HEIGHT - 40.0);
+        // Room on the right for the label of the rightmost point.
+        let (left, right, top, bottom) = (90.0, WIDTH - 70.0, 10.0, HEIGHT - 40.0);
         let (xl, xh) = range(points.iter().map(|p| p.x), x_axis);
         let (yl, yh) = range(points.iter().map(|p| p.y), Axis::Money);
         let x = |v: f64| left + (right - left) * (v - xl) / (xh - xl);
         let y = |v: f64| bottom - (bottom - top) * (v - yl) / (yh - yl);
         Self {
-            width: WIDTH,
-            height: HEIGHT,
-            left,
-            right,
-            top,
-            bottom,
+            frame: Frame { width: WIDTH, height: HEIGHT, left, right, top, bottom },
             points: points
                 .into_iter()
                 .map(|p| Placed { x: x(p.x), y: y(p.y), label: p.label, class: p.class })
