@@ -113,7 +113,9 @@ impl std::error::Error for FieldErrors {}
 /// Trim a required text field, rejecting it when empty or longer than `max` characters.
 pub(crate) fn required_text(value: &str, max: usize) -> Result<String, String> {
     let v = value.trim();
-    if v.is_empty() {
+    if has_control(v) {
+        Err(CONTROL.into())
+    } else if v.is_empty() {
         Err("required: enter some text".into())
     } else if v.chars().count() > max {
         Err(format!("at most {max} characters"))
@@ -125,7 +127,21 @@ pub(crate) fn required_text(value: &str, max: usize) -> Result<String, String> {
 /// Trim an optional text field, rejecting it only when longer than `max` characters.
 pub(crate) fn optional_text(value: &str, max: usize) -> Result<String, String> {
     let v = value.trim();
-    if v.chars().count() > max { Err(format!("at most {max} characters")) } else { Ok(v.to_string()) }
+    if has_control(v) {
+        Err(CONTROL.into())
+    } else if v.chars().count() > max {
+        Err(format!("at most {max} characters"))
+    } else {
+        Ok(v.to_string())
+    }
+}
+
+const CONTROL: &str = "contains a control character (such as NUL); type plain text";
+
+/// Control characters other than tab and line breaks: never meant as text, and NUL in particular
+/// truncates strings in SQLite's C interface and in many tools that read an export.
+fn has_control(v: &str) -> bool {
+    v.chars().any(|c| c.is_control() && !matches!(c, '\t' | '\n' | '\r'))
 }
 
 /// Parse a whole number within `min..=max`.

@@ -216,7 +216,7 @@ impl DatedSeries {
     fn new(merged: &[(i64, Decimal)]) -> Result<Self, FinanceError> {
         let mut terms = Vec::with_capacity(merged.len());
         for &(d, cf) in merged.iter().filter(|(_, cf)| !cf.is_zero()) {
-            let c = cf.to_f64().ok_or(FinanceError::NotRepresentable)?;
+            let c = irr::decimal_to_f64(&cf).ok_or(FinanceError::NotRepresentable)?;
             terms.push((c, d as f64 / DAYS_PER_YEAR as f64));
         }
         Ok(Self::normalized(terms))
@@ -243,28 +243,36 @@ impl DatedSeries {
 
 impl Series for DatedSeries {
     fn eval(&self, s: f64) -> (f64, f64) {
+        // x^e = exp(e ln x): one logarithm per evaluation instead of a power per term, and the
+        // derivative term c e x^(e - 1) = c e x^e / x from the same power.
         let (mut g, mut dg) = (0.0, 0.0);
         if s <= 1.0 {
             // sum c x^e with x = s; the e = 0 term has no derivative.
-            for &(c, e) in &self.terms {
-                g += c * s.powf(e);
-                if e > 0.0 {
-                    dg += c * e * s.powf(e - 1.0);
-                }
+            if s <= 0.0 {
+                return (self.terms.first().map_or(0.0, |t| t.0), 0.0);
             }
-            (g, dg)
+            let ln = s.ln();
+            for &(c, e) in &self.terms {
+                let p = c * (e * ln).exp();
+                g += p;
+                dg += e * p;
+            }
+            (g, dg / s)
         } else {
             // Future-value form in y = 1 + r = 2 - s: sum c y^(E - e), dy/ds = -1.
             let y = 2.0 - s;
             let top = self.top();
+            if y <= 0.0 {
+                return (self.terms.last().map_or(0.0, |t| t.0), 0.0);
+            }
+            let ln = y.ln();
             for &(c, e) in &self.terms {
                 let k = top - e;
-                g += c * y.powf(k);
-                if k > 0.0 {
-                    dg -= c * k * y.powf(k - 1.0);
-                }
+                let p = c * (k * ln).exp();
+                g += p;
+                dg -= k * p;
             }
-            (g, dg)
+            (g, dg / y)
         }
     }
 
@@ -296,6 +304,10 @@ impl Series for DatedSeries {
         // d/dx of sum c x^e (e_0 = 0): the constant term drops out, c_i becomes c_i e_i.
         let terms = self.terms[1..].iter().map(|&(c, e)| (c * e, e)).collect();
         Some(Self::normalized(terms))
+    }
+
+    fn terms(&self) -> impl Iterator<Item = (f64, f64)> {
+        self.terms.iter().copied()
     }
 }
 

@@ -143,8 +143,7 @@ pub fn irr(flows: &[Decimal]) -> Result<IrrOutcome, FinanceError> {
 /// Solves a series with exactly one sign change (one root) on the whole of [0, 2].
 pub(crate) fn solve_single<S: Series>(series: &S) -> Result<f64, FinanceError> {
     let (g0, _) = series.ends();
-    // Start from 10 % per period, the usual spreadsheet guess.
-    let s = solve_bracket(series, 0.0, 2.0, g0, s_from_rate(0.1))?;
+    let s = solve_bracket(series, 0.0, 2.0, g0, start_guess(series))?;
     Ok(rate_from_s(s))
 }
 
@@ -216,23 +215,48 @@ pub(crate) trait Series: Sized {
     /// The next level of the Rolle recursion: the derivative in `x` of `x^(-e_min) * g`, whose
     /// positive roots separate those of `g`; `None` for a constant.
     fn derivative(&self) -> Option<Self>;
+    /// `(coefficient, exponent)` of each term, for the starting guess.
+    fn terms(&self) -> impl Iterator<Item = (f64, f64)>;
+}
+
+/// A starting point for the one-root search, in the solver variable: the rate at which the
+/// positive and the negative terms, each collapsed to its value-weighted mean time, are equal,
+/// `r0 = (P / N)^(1 / (t_P - t_N)) - 1` (the duration approximation of an IRR, common
+/// practice). It only saves iterations: the bracketed search converges from any start.
+fn start_guess<S: Series>(series: &S) -> f64 {
+    let (mut p, mut tp, mut n, mut tn) = (0.0, 0.0, 0.0, 0.0);
+    for (c, e) in series.terms() {
+        if c > 0.0 {
+            p += c;
+            tp += c * e;
+        } else {
+            n -= c;
+            tn -= c * e;
+        }
+    }
+    let span = tp / p - tn / n;
+    let r0 = ((p / n).ln() / span).exp_m1();
+    if r0.is_finite() && r0 > -0.99 && span.abs() > 1e-9 { s_from_rate(r0) } else { s_from_rate(0.1) }
 }
 
 /// The NPV polynomial `sum_t a_t x^t` of evenly spaced flows, with zero leading and trailing
-/// coefficients removed (they only add roots at x = 0 or change nothing) and scaled so that the
-/// largest coefficient is 1 (scaling changes no root and keeps the recursion from overflowing).
+/// coefficients removed (they only add roots at x = 0 or change nothing) and scaled by a power of
+/// two so that the largest coefficient is in [1, 2) (scaling changes no root and keeps the
+/// recursion from overflowing).
 pub(crate) struct DensePoly {
     coeffs: Vec<f64>,
 }
 
 impl DensePoly {
     fn from_flows(flows: &[Decimal]) -> Result<Self, FinanceError> {
-        let coeffs =
-            flows.iter().map(|d| d.to_f64().ok_or(FinanceError::NotRepresentable)).collect::<Result<Vec<_>, _>>()?;
+        let coeffs = flows
+            .iter()
+            .map(|d| decimal_to_f64(d).ok_or(FinanceError::NotRepresentable))
+            .collect::<Result<Vec<_>, _>>()?;
         Ok(Self::normalized(coeffs))
     }
 
-    fn normalized(mut coeffs: Vec<f64>) -> Self {
+    pub(crate) fn normalized(mut coeffs: Vec<f64>) -> Self {
         while coeffs.last() == Some(&0.0) {
             coeffs.pop();
         }
@@ -240,7 +264,10 @@ impl DensePoly {
         coeffs.drain(..lead);
         let scale = coeffs.iter().fold(0.0_f64, |m, c| m.max(c.abs()));
         if scale > 0.0 {
-            coeffs.iter_mut().for_each(|c| *c /= scale);
+            // A power of two near the largest coefficient: scaling by it is exact, and a
+            // multiplication rather than one division per coefficient.
+            let factor = (-scale.log2().floor()).exp2();
+            coeffs.iter_mut().for_each(|c| *c *= factor);
         }
         Self { coeffs }
     }
@@ -290,6 +317,25 @@ impl Series for DensePoly {
         // The constant term is non-zero (stripped), so this is d/dx of the polynomial itself.
         let d = self.coeffs.iter().enumerate().skip(1).map(|(t, &a)| a * t as f64).collect();
         Some(Self::normalized(d))
+    }
+
+    fn terms(&self) -> impl Iterator<Item = (f64, f64)> {
+        self.coeffs.iter().enumerate().map(|(t, &a)| (a, t as f64))
+    }
+}
+
+/// `Decimal` to the nearest f64. Money has few decimals, so the mantissa usually fits 53 bits:
+/// then `mantissa / 10^scale` is one correctly rounded division of two exact f64 values, far
+/// cheaper than the general conversion, which handles the rest.
+pub(crate) fn decimal_to_f64(d: &Decimal) -> Option<f64> {
+    const POW10: [f64; 23] = [
+        1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19,
+        1e20, 1e21, 1e22,
+    ];
+    let m = d.mantissa();
+    match POW10.get(d.scale() as usize) {
+        Some(p) if m.unsigned_abs() < 1 << 53 => Some(m as f64 / p),
+        _ => d.to_f64(),
     }
 }
 
@@ -396,6 +442,12 @@ pub(crate) fn solve_bracket<S: Series>(
             pos = x;
         }
         let newton = x - g / dg;
+        // A Newton step below the tolerance: x is the root to working precision. (Without this
+        // test a step that rounds onto the bracket's end would look like a failed step and
+        // start a long bisection.)
+        if newton.is_finite() && (newton - x).abs() <= IRR_TOLERANCE * x.abs() + f64::MIN_POSITIVE {
+            return Ok(x);
+        }
         let bisect = !newton.is_finite()
             || newton <= neg.min(pos)
             || newton >= neg.max(pos)

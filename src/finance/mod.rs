@@ -39,6 +39,7 @@
 pub mod calibration;
 mod dated;
 mod error;
+pub mod float;
 mod irr;
 pub mod linear;
 mod mirr;

@@ -4,9 +4,9 @@
 use std::io::{BufRead, BufReader, Read, Write};
 use std::process::{Command, Stdio};
 
-const BIN: &str = env!("CARGO_BIN_EXE_pilot-ledger");
+pub(crate) const BIN: &str = env!("CARGO_BIN_EXE_pilot-ledger");
 
-fn db_url(dir: &tempfile::TempDir) -> String {
+pub(crate) fn db_url(dir: &tempfile::TempDir) -> String {
     format!("sqlite://{}", dir.path().join("cli.db").display())
 }
 
@@ -38,9 +38,9 @@ fn migrate_and_load_are_all_or_nothing() {
 }
 
 /// A running `serve` child with its stdout lines so far.
-struct Served {
-    child: std::process::Child,
-    addr: String,
+pub(crate) struct Served {
+    pub(crate) child: std::process::Child,
+    pub(crate) addr: String,
     lines: Vec<String>,
     rest: std::io::Lines<BufReader<std::process::ChildStdout>>,
 }
@@ -52,7 +52,7 @@ impl Drop for Served {
     }
 }
 
-fn serve(url: &str, log: &str) -> Served {
+pub(crate) fn serve(url: &str, log: &str) -> Served {
     let mut child = Command::new(BIN)
         .args(["--database-url", url, "serve", "--addr", "127.0.0.1:0"])
         .env("RUST_LOG", log)

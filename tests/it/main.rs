@@ -4,8 +4,10 @@
 mod api;
 mod browser;
 mod cli;
+mod faults;
 mod finance;
 mod helpers;
+mod hostile;
 mod ledger;
 mod pages;
 mod portfolio;

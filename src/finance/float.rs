@@ -1,0 +1,130 @@
+//! f64 versions of NPV and IRR for batch work (screening thousands of series at once), where
+//! `Decimal`'s exactness buys nothing: every figure a page or report shows comes from the
+//! `Decimal` functions ([`super::npv`], [`super::irr`]); these agree with them to about 1e-12
+//! relative (see the tests).
+
+use rayon::prelude::*;
+
+use super::irr::{DensePoly, all_roots, outcome_from_roots, solve_single};
+use super::rate::check_rate;
+use super::{FinanceError, IrrOutcome};
+
+/// Independent Horner chains: enough to hide the latency of a multiply-add and let the
+/// compiler use SIMD lanes.
+const LANES: usize = 8;
+
+/// NPV of evenly spaced f64 flows, the first undiscounted: `sum_t CF_t / (1 + rate)^t`.
+///
+/// Evaluated as [`LANES`] interleaved Horner chains in `v^LANES` (`v = 1 / (1 + rate)`), flow
+/// `t` in chain `t mod LANES`, combined at the end by one short Horner in `v`: the same sum,
+/// one multiply-add per flow, without one long dependency chain.
+///
+/// # Errors
+/// [`FinanceError::EmptyFlows`], [`FinanceError::RateOutOfRange`], and
+/// [`FinanceError::NotRepresentable`] for a non-finite flow or result.
+///
+/// # Example
+/// ```
+/// use pilot_ledger::finance::float::npv_f64;
+/// // numpy-financial's npv documentation example: npf.npv(0.281, [-100, 39, 59, 55, 20]) = -0.0085
+/// // (rounded to 4 places).
+/// let v = npv_f64(0.281, &[-100.0, 39.0, 59.0, 55.0, 20.0])?;
+/// assert!((v - -0.0085).abs() < 5e-5);
+/// # Ok::<(), pilot_ledger::finance::FinanceError>(())
+/// ```
+pub fn npv_f64(rate: f64, flows: &[f64]) -> Result<f64, FinanceError> {
+    if flows.is_empty() {
+        return Err(FinanceError::EmptyFlows);
+    }
+    check_rate(rate)?;
+    let v = 1.0 / (1.0 + rate);
+    let step = v.powi(LANES as i32);
+    let chunks = flows.chunks_exact(LANES);
+    // The partial last chunk is the highest power of `step`: it starts the chains.
+    let mut acc = [0.0; LANES];
+    for (a, cf) in acc.iter_mut().zip(chunks.remainder()) {
+        *a = *cf;
+    }
+    for chunk in chunks.rev() {
+        for k in 0..LANES {
+            acc[k] = acc[k] * step + chunk[k];
+        }
+    }
+    let total = acc.iter().rev().fold(0.0, |sum, a| sum * v + a);
+    if total.is_finite() { Ok(total) } else { Err(FinanceError::NotRepresentable) }
+}
+
+/// [`npv_f64`] of many series at one rate, spread over the cores; results in input order.
+///
+/// # Errors
+/// The first error of any series.
+pub fn npv_batch(rate: f64, series: &[Vec<f64>]) -> Result<Vec<f64>, FinanceError> {
+    series.par_iter().map(|flows| npv_f64(rate, flows)).collect()
+}
+
+/// IRR of f64 flows with the method, rules and outcome of [`super::irr`].
+///
+/// # Errors
+/// As [`super::irr`].
+pub fn irr_f64(flows: &[f64]) -> Result<IrrOutcome, FinanceError> {
+    if flows.is_empty() {
+        return Err(FinanceError::EmptyFlows);
+    }
+    if flows.iter().any(|f| !f.is_finite()) {
+        return Err(FinanceError::NotRepresentable);
+    }
+    let signs = flows.iter().filter(|f| **f != 0.0).map(|f| f.is_sign_positive()).collect::<Vec<_>>();
+    let changes = signs.windows(2).filter(|w| w[0] != w[1]).count();
+    if changes == 0 {
+        return Err(FinanceError::NoSignChange);
+    }
+    let poly = DensePoly::normalized(flows.to_vec());
+    if changes == 1 {
+        let root = solve_single(&poly)?;
+        return Ok(IrrOutcome { roots: vec![root], chosen: Some(root), ambiguous: false });
+    }
+    Ok(outcome_from_roots(all_roots(&poly)?))
+}
+
+#[cfg(test)]
+mod tests {
+    #![expect(clippy::unwrap_used)]
+    use super::*;
+    use crate::finance::{irr, npv};
+    use proptest::prelude::*;
+    use rust_decimal::Decimal;
+    use rust_decimal::prelude::{FromPrimitive, ToPrimitive};
+
+    proptest! {
+        // The f64 paths agree with the Decimal functions the pages use.
+        #[test]
+        fn agrees_with_the_decimal_functions(
+            flows in prop::collection::vec(-1.0e6f64..1.0e6, 2..130), rate in 0.0f64..0.5,
+        ) {
+            let dec: Vec<Decimal> = flows.iter().map(|f| Decimal::from_f64(*f).unwrap()).collect();
+            let exact = npv(rate, &dec).unwrap().to_f64().unwrap();
+            let scale: f64 = flows.iter().map(|f| f.abs()).sum::<f64>().max(1.0);
+            prop_assert!((npv_f64(rate, &flows).unwrap() - exact).abs() <= 1e-12 * scale);
+            match (irr(&dec), irr_f64(&flows)) {
+                (Ok(a), Ok(b)) => {
+                    prop_assert_eq!(a.roots.len(), b.roots.len());
+                    for (x, y) in a.roots.iter().zip(&b.roots) {
+                        prop_assert!((x - y).abs() <= 1e-9 * x.abs().max(1.0));
+                    }
+                }
+                (Err(a), Err(b)) => prop_assert_eq!(a, b),
+                (a, b) => prop_assert!(false, "{a:?} vs {b:?}"),
+            }
+        }
+    }
+
+    #[test]
+    fn batch_keeps_order_and_reports_errors() {
+        let series = vec![vec![-100.0, 110.0], vec![-100.0, 121.0, 0.0]];
+        let v = npv_batch(0.1, &series).unwrap();
+        assert!(v[0].abs() < 1e-12 && (v[1] - 10.0).abs() < 1e-12);
+        assert_eq!(npv_batch(0.1, &[vec![]]), Err(FinanceError::EmptyFlows));
+        assert!(npv_f64(-1.0, &[1.0]).is_err());
+        assert_eq!(irr_f64(&[1.0, 2.0]).unwrap_err(), FinanceError::NoSignChange);
+    }
+}
