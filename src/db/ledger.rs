@@ -224,6 +224,118 @@ struct Row_<'a> {
 }
 
 async fn insert_row(conn: &mut SqliteConnection, r: &Row_<'_>) -> DbResult<i64> {
+    let id = insert_entry(conn, r).await?;
+    let item = match (r.driver_id, r.cost_id) {
+        (Some(d), _) => format!("driver:{d}"),
+        (None, Some(c)) => format!("cost:{c}"),
+        (None, None) => return Ok(id),
+    };
+    add_to_totals(conn, r.zone_id, &item, r.amount, r.quantity.unwrap_or_default(), r.period).await?;
+    Ok(id)
+}
+
+/// Add one entry to its item's running totals (same transaction as the entry).
+async fn add_to_totals(
+    conn: &mut SqliteConnection,
+    zone_id: i64,
+    item: &str,
+    amount: Decimal,
+    quantity: Decimal,
+    period: Month,
+) -> DbResult<()> {
+    let row =
+        sqlx::query("SELECT amount, quantity, entries, last_period FROM ledger_totals WHERE zone_id = ? AND item = ?")
+            .bind(zone_id)
+            .bind(item)
+            .fetch_optional(&mut *conn)
+            .await?;
+    let (sum, qty, entries, last) = match row {
+        Some(r) => (
+            decimal("amount", r.try_get("amount")?)?,
+            decimal("quantity", r.try_get("quantity")?)?,
+            r.try_get::<i64, _>("entries")?,
+            parsed("last_period", r.try_get("last_period")?, Month::parse)?,
+        ),
+        None => (Decimal::ZERO, Decimal::ZERO, 0, period),
+    };
+    sqlx::query(
+        "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
+         ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
+             entries = excluded.entries, last_period = excluded.last_period",
+    )
+    .bind(zone_id)
+    .bind(item)
+    .bind((sum + amount).normalize().to_string())
+    .bind((qty + quantity).normalize().to_string())
+    .bind(entries + 1)
+    .bind(last.max(period).to_string())
+    .execute(conn)
+    .await?;
+    Ok(())
+}
+
+/// Rebuild `ledger_totals` from the entries when it is empty but the ledger is not (a database
+/// from before migration 0005). Sums in Rust, in one transaction.
+pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
+    let (totals, entries): (i64, i64) =
+        sqlx::query_as("SELECT (SELECT COUNT(*) FROM ledger_totals), (SELECT COUNT(*) FROM ledger_entries)")
+            .fetch_one(pool)
+            .await?;
+    if totals > 0 || entries == 0 {
+        return Ok(());
+    }
+    let mut tx = super::begin_write(pool).await?;
+    let rows =
+        sqlx::query("SELECT zone_id, driver_id, cost_id, amount, quantity, period FROM ledger_entries ORDER BY id")
+            .fetch_all(&mut *tx)
+            .await?;
+    let mut sums: std::collections::BTreeMap<(i64, String), (Decimal, Decimal, i64, Month)> = Default::default();
+    for r in rows {
+        let item = match (r.try_get::<Option<i64>, _>("driver_id")?, r.try_get::<Option<i64>, _>("cost_id")?) {
+            (Some(d), _) => format!("driver:{d}"),
+            (None, Some(c)) => format!("cost:{c}"),
+            (None, None) => continue,
+        };
+        let amount = decimal("amount", r.try_get("amount")?)?;
+        let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
+        let period = parsed("period", r.try_get("period")?, Month::parse)?;
+        let e = sums.entry((r.try_get("zone_id")?, item)).or_insert((Decimal::ZERO, Decimal::ZERO, 0, period));
+        e.0 += amount;
+        e.1 += quantity.unwrap_or_default();
+        e.2 += 1;
+        e.3 = e.3.max(period);
+    }
+    for ((zone, item), (amount, quantity, n, last)) in sums {
+        sqlx::query("INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)")
+            .bind(zone)
+            .bind(item)
+            .bind(amount.normalize().to_string())
+            .bind(quantity.normalize().to_string())
+            .bind(n)
+            .bind(last.to_string())
+            .execute(&mut *tx)
+            .await?;
+    }
+    tx.commit().await?;
+    Ok(())
+}
+
+/// Each baseline item's booked totals for every zone, and each zone's latest booked month.
+pub(super) async fn all_totals_in(conn: &mut SqliteConnection) -> DbResult<Vec<(i64, String, Decimal, Month)>> {
+    let rows = sqlx::query("SELECT zone_id, item, amount, last_period FROM ledger_totals").fetch_all(conn).await?;
+    rows.iter()
+        .map(|r| {
+            Ok((
+                r.try_get("zone_id")?,
+                r.try_get("item")?,
+                decimal("amount", r.try_get("amount")?)?,
+                parsed("last_period", r.try_get("last_period")?, Month::parse)?,
+            ))
+        })
+        .collect()
+}
+
+async fn insert_entry(conn: &mut SqliteConnection, r: &Row_<'_>) -> DbResult<i64> {
     let text = |d: Option<Decimal>| d.map(|d| d.normalize().to_string());
     sqlx::query_scalar(
         "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, cost_id, period, method, quantity, unit_value, amount,

@@ -74,7 +74,7 @@ pub async fn connect(url: &str) -> DbResult<SqlitePool> {
 /// Apply the embedded migrations in `migrations/` (append-only).
 pub async fn migrate(pool: &SqlitePool) -> DbResult<()> {
     sqlx::migrate!("./migrations").run(pool).await?;
-    Ok(())
+    ledger::rebuild_totals_if_missing(pool).await
 }
 
 /// Start a write transaction holding the write lock.
@@ -126,7 +126,7 @@ pub use cases::{
     add_cost, add_driver, approve_case, baseline_item_by_label, baseline_of, case_full, copy_case, delete_cost,
     delete_driver, insert_case, list_cases, set_state, submit_case, update_header,
 };
-pub use portfolio::zone_data;
+pub use portfolio::{Snapshot, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};
 pub use users::{

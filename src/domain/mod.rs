@@ -24,16 +24,15 @@ pub use figures::{CaseFigures, View, case_figures};
 pub use ledger::{Booking, BookingInput, EntryKind, LedgerEntry, Measurement};
 pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
 pub use portfolio::{
-    BudgetChoice, CaseParts, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow, RankBy, Standing, ValueBasis,
-    ZoneData, ZoneFigures, build_portfolio, calibration_of, zone_figures,
+    BaseFigures, BudgetChoice, CaseParts, LedgerTotals, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
+    RankBy, Standing, ValueBasis, ZoneBase, ZoneData, build_portfolio, calibration_of, zone_base,
 };
 pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
 pub use uncertainty::{
-    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, History, Trials, case_uncertainty, reference_class,
-    risk_adjusted_npv,
+    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, risk_adjusted_npv,
 };
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 

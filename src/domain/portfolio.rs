@@ -10,17 +10,22 @@
 //! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
 //! changes the money figures.
 
-use super::uncertainty::{Calibration, CaseUncertainty, History, Trials, case_uncertainty, reference_class};
+use super::uncertainty::{Calibration, Trials, risk_adjusted_npv};
 use super::{
-    CaseFigures, CaseHeader, Criterion, FieldErrors, LedgerEntry, NewBenefitDriver, NewCostItem, Readiness,
-    SiteSettings, Zone, ZoneStatus, case_figures, parse_decimal, realized_view,
+    CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, Readiness, SiteSettings,
+    Zone, ZoneStatus, finance_input, parse_decimal,
 };
+use crate::finance::calibration::Evidence;
+use crate::finance::linear::{LinearNpv, to_decimal};
+use crate::finance::montecarlo::{Simulation, Triangular, simulate};
 use crate::finance::selection::{Item, greedy_in_order, knapsack};
+use crate::finance::{CaseMetrics, build_schedule, case_metrics};
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
 use serde::Deserialize;
 use std::cmp::Ordering;
 use std::collections::HashMap;
+use std::sync::Arc;
 
 /// What the table is sorted by.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -225,6 +230,16 @@ pub struct CaseParts {
     pub drivers: Vec<(i64, NewBenefitDriver)>,
 }
 
+/// A zone's ledger as running totals: what each baseline driver booked, and the latest month
+/// booked on any item (kept in the booking's transaction, see `db::ledger`).
+#[derive(Debug, Clone, Default)]
+pub struct LedgerTotals {
+    /// Latest booked month.
+    pub latest: Option<Month>,
+    /// Booked money per driver id.
+    pub drivers: HashMap<i64, Decimal>,
+}
+
 /// One zone with what the portfolio computes from.
 #[derive(Debug, Clone)]
 pub struct ZoneData {
@@ -232,10 +247,127 @@ pub struct ZoneData {
     pub zone: Zone,
     /// Its baseline, or else its newest version.
     pub case: Option<CaseParts>,
-    /// Its ledger.
-    pub entries: Vec<LedgerEntry>,
+    /// Its ledger totals.
+    pub ledger: LedgerTotals,
     /// Readiness scores (criterion id -> 1..5).
     pub scores: HashMap<i64, u8>,
+}
+
+/// A zone's case figures that do not depend on other zones: computed once per change of the
+/// zone (the web layer caches them) and combined per request with the calibration.
+#[derive(Debug, Clone)]
+pub struct BaseFigures {
+    /// Pre-tax metrics.
+    pub metrics: CaseMetrics,
+    /// NPV as a straight line in the quantities.
+    pub model: LinearNpv,
+    /// Kind of each driver, in case order.
+    pub kinds: Vec<DriverKind>,
+    /// Monte Carlo of NPV.
+    pub simulation: Simulation,
+    /// Probability of technical success.
+    pub success_probability: Decimal,
+}
+
+/// Everything the portfolio keeps of one zone between requests.
+#[derive(Debug, Clone)]
+pub struct ZoneBase {
+    /// The zone.
+    pub zone: Zone,
+    /// The case the figures come from (id, version, label, baseline).
+    pub case: Option<(i64, u32, String, bool)>,
+    /// Readiness scores.
+    pub scores: HashMap<i64, u8>,
+    /// Figures, or why there are none.
+    pub figures: Result<BaseFigures, String>,
+    /// Savings realization to date, for a baseline with bookings.
+    pub realization: Option<f64>,
+    /// Per driver of the baseline: its kind and its record, for calibration.
+    pub evidence: Vec<(DriverKind, Evidence)>,
+}
+
+fn month_index(start: Month, m: Month) -> i64 {
+    i64::from(m.year - start.year) * 12 + i64::from(m.month) - i64::from(start.month)
+}
+
+/// Compute a zone's base figures (see [`ZoneBase`]).
+pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials) -> ZoneBase {
+    let hurdle = site.hurdle_f64();
+    let (figures, realization, evidence) = match &data.case {
+        None => (Err("no business case yet".to_string()), None, Vec::new()),
+        Some(c) => {
+            let figures = base_figures(c, hurdle, trials);
+            let (realization, evidence) = match (c.baseline, data.ledger.latest) {
+                (true, Some(latest)) => realized(c, &data.ledger, latest, hurdle),
+                _ => (None, Vec::new()),
+            };
+            (figures, realization, evidence)
+        }
+    };
+    ZoneBase {
+        case: data.case.as_ref().map(|c| (c.id, c.version, c.header.label.clone(), c.baseline)),
+        zone: data.zone,
+        scores: data.scores,
+        figures,
+        realization,
+        evidence,
+    }
+}
+
+fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigures, String> {
+    let input = finance_input(&c.header, c.costs.iter().map(|(_, x)| x), c.drivers.iter().map(|(_, d)| d), None);
+    let schedule = build_schedule(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
+    let metrics = case_metrics(&schedule);
+    let model = LinearNpv::new(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
+    let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);
+    let ranges = c
+        .drivers
+        .iter()
+        .map(|(_, d)| Triangular::new(f(&d.qty_low), f(&d.qty_likely), f(&d.qty_high)))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
+    let simulation = simulate(&model, &ranges, trials.count, trials.seed)
+        .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
+    Ok(BaseFigures {
+        metrics,
+        model,
+        kinds: c.drivers.iter().map(|(_, d)| d.kind).collect(),
+        simulation,
+        success_probability: c.header.success_probability,
+    })
+}
+
+/// Realization to date and per-driver evidence from the ledger totals: months count from the
+/// baseline's start through the latest booked month (as on the ledger page).
+fn realized(
+    c: &CaseParts,
+    ledger: &LedgerTotals,
+    latest: Month,
+    hurdle: f64,
+) -> (Option<f64>, Vec<(DriverKind, Evidence)>) {
+    let elapsed = usize::try_from(month_index(c.header.start_month, latest) + 1)
+        .unwrap_or(0)
+        .min(c.header.horizon_months as usize);
+    let (mut expected_all, mut measured_all) = (Decimal::ZERO, Decimal::ZERO);
+    let mut evidence = Vec::with_capacity(c.drivers.len());
+    for (id, d) in &c.drivers {
+        let Ok(schedule) = build_schedule(&finance_input(&c.header, [], [d], None), hurdle) else { continue };
+        let expected: Decimal = schedule.rows.iter().take(elapsed).map(|r| r.benefits).sum();
+        let months = schedule.rows.iter().take(elapsed).filter(|r| r.benefits > Decimal::ZERO).count();
+        let measured = ledger.drivers.get(id).copied().unwrap_or_default();
+        expected_all += expected;
+        measured_all += measured;
+        evidence.push((
+            d.kind,
+            Evidence {
+                expected: expected.to_f64().unwrap_or(0.0),
+                measured: measured.to_f64().unwrap_or(0.0),
+                months: u32::try_from(months).unwrap_or(u32::MAX),
+            },
+        ));
+    }
+    let rate = (expected_all > Decimal::ZERO).then(|| (measured_all / expected_all).to_f64().unwrap_or(0.0));
+    (rate, evidence)
 }
 
 /// Where a zone stands in the budget choice.
@@ -266,26 +398,15 @@ impl Standing {
     }
 }
 
-/// A zone's figures on the portfolio.
-#[derive(Debug, Clone)]
-pub struct ZoneFigures {
-    /// The case's pre-tax figures.
-    pub figures: CaseFigures,
-    /// Uncertainty, risk and calibration.
-    pub uncertainty: CaseUncertainty,
-}
-
 /// One row of the portfolio.
 #[derive(Debug, Clone)]
 pub struct PortfolioRow {
-    /// The zone.
-    pub zone: Zone,
-    /// The case the figures come from (id, version, label, baseline).
-    pub case: Option<(i64, u32, String, bool)>,
-    /// Figures, or why there are none.
-    pub figures: Result<ZoneFigures, String>,
-    /// Savings realization to date (measured / expected), for zones with a ledger.
-    pub realization: Option<f64>,
+    /// The zone's cached figures.
+    pub base: Arc<ZoneBase>,
+    /// Risk-adjusted NPV.
+    pub risk_adjusted: Option<Decimal>,
+    /// Calibrated NPV.
+    pub calibrated: Option<Decimal>,
     /// Weighted readiness.
     pub readiness: Option<Readiness>,
     /// Budget standing (without a budget: committed, candidate rows as left out).
@@ -295,28 +416,47 @@ pub struct PortfolioRow {
 }
 
 impl PortfolioRow {
+    /// The zone.
+    pub fn zone(&self) -> &Zone {
+        &self.base.zone
+    }
+
+    /// The figures, when the case can be computed.
+    pub fn figures(&self) -> Option<&BaseFigures> {
+        self.base.figures.as_ref().ok()
+    }
+
+    /// Why there are no figures.
+    pub fn problem(&self) -> Option<&str> {
+        self.base.figures.as_ref().err().map(String::as_str)
+    }
+
+    /// NPV at the likely quantities.
+    pub fn npv(&self) -> Option<Decimal> {
+        self.figures().map(|f| f.metrics.npv)
+    }
+
     /// Investment (one-off costs, undiscounted).
     pub fn investment(&self) -> Option<Decimal> {
-        self.figures.as_ref().ok().map(|f| f.figures.pre_tax.metrics.total_one_off)
+        self.figures().map(|f| f.metrics.total_one_off)
     }
 
     /// The value the budget choice uses.
     pub fn value(&self, basis: ValueBasis) -> Option<Decimal> {
-        self.figures.as_ref().ok().map(|f| match basis {
-            ValueBasis::Npv => f.uncertainty.npv,
-            ValueBasis::RiskAdjusted => f.uncertainty.risk_adjusted,
-            ValueBasis::Calibrated => f.uncertainty.calibrated,
-        })
+        match basis {
+            ValueBasis::Npv => self.npv(),
+            ValueBasis::RiskAdjusted => self.risk_adjusted,
+            ValueBasis::Calibrated => self.calibrated,
+        }
     }
 
     /// The ranking key: larger is better (payback is negated), `None` sorts last.
     fn key(&self, rank: RankBy) -> Option<f64> {
-        let f = self.figures.as_ref().ok()?;
-        let m = &f.figures.pre_tax.metrics;
+        let m = &self.figures()?.metrics;
         match rank {
-            RankBy::Npv => f.uncertainty.npv.to_f64(),
-            RankBy::RiskAdjusted => f.uncertainty.risk_adjusted.to_f64(),
-            RankBy::Calibrated => f.uncertainty.calibrated.to_f64(),
+            RankBy::Npv => m.npv.to_f64(),
+            RankBy::RiskAdjusted => self.risk_adjusted.and_then(|v| v.to_f64()),
+            RankBy::Calibrated => self.calibrated.and_then(|v| v.to_f64()),
             RankBy::Irr => m.irr_annual,
             RankBy::Payback => m.payback_months.as_ref().and_then(|p| p.periods.to_f64()).map(|p| -p),
             RankBy::ProfitabilityIndex => m.profitability_index.and_then(|p| p.to_f64()),
@@ -371,63 +511,46 @@ fn from_cents(c: i64) -> Decimal {
     Decimal::new(c, 2)
 }
 
-/// A zone's figures and uncertainty, or why they cannot be computed.
-pub fn zone_figures(
-    case: &CaseParts,
-    site: &SiteSettings,
-    calibration: &Calibration,
-    trials: Trials,
-) -> Result<ZoneFigures, String> {
-    let costs: Vec<&NewCostItem> = case.costs.iter().map(|(_, c)| c).collect();
-    let drivers: Vec<&NewBenefitDriver> = case.drivers.iter().map(|(_, d)| d).collect();
-    let figures = case_figures(&case.header, costs.iter().copied(), drivers.iter().copied(), site)
-        .map_err(|e| format!("the case cannot be computed: {e}"))?;
-    let uncertainty =
-        case_uncertainty(&case.header, &costs, &drivers, site, &figures.pre_tax.metrics, calibration, trials)
-            .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
-    Ok(ZoneFigures { figures, uncertainty })
+/// The reference class for calibration: the evidence of measuring and closed zones, measured
+/// against their approved baselines (see [`crate::finance::calibration`]).
+pub fn calibration_of<'a>(zones: impl IntoIterator<Item = &'a ZoneBase>) -> Calibration {
+    let mut evidence: HashMap<DriverKind, Vec<Evidence>> = HashMap::new();
+    let mut sources = Vec::new();
+    for z in zones {
+        if !matches!(z.zone.status, ZoneStatus::Measuring | ZoneStatus::Closed) || z.evidence.is_empty() {
+            continue;
+        }
+        sources.push(z.zone.code.clone());
+        for (kind, e) in &z.evidence {
+            evidence.entry(*kind).or_default().push(*e);
+        }
+    }
+    sources.sort();
+    Calibration::from_evidence(evidence, sources)
 }
 
-/// The reference class for calibration: measuring and closed zones, measured against their
-/// approved baselines.
-pub fn calibration_of(zones: &[ZoneData], site: &SiteSettings) -> Calibration {
-    let histories: Vec<History<'_>> = zones
-        .iter()
-        .filter(|z| matches!(z.zone.status, ZoneStatus::Measuring | ZoneStatus::Closed))
-        .filter_map(|z| {
-            z.case.as_ref().filter(|c| c.baseline).map(|c| History {
-                code: &z.zone.code,
-                header: &c.header,
-                costs: &c.costs,
-                drivers: &c.drivers,
-                entries: &z.entries,
-            })
-        })
-        .collect();
-    reference_class(&histories, site)
-}
-
-/// Build the portfolio (see the [module docs](self) for the budget rule).
+/// Build the portfolio from each zone's base figures (see the [module docs](self) for the
+/// budget rule).
 pub fn build_portfolio(
-    zones: Vec<ZoneData>,
-    site: &SiteSettings,
+    zones: Vec<Arc<ZoneBase>>,
     criteria: &[Criterion],
     calibration: &Calibration,
     params: PortfolioParams,
 ) -> Portfolio {
     let mut rows: Vec<PortfolioRow> = zones
         .into_iter()
-        .map(|z| {
-            let figures = match &z.case {
-                Some(c) => zone_figures(c, site, calibration, params.trials),
-                None => Err("no business case yet".into()),
-            };
-            let realization = z.case.as_ref().filter(|c| c.baseline && !z.entries.is_empty()).and_then(|c| {
-                realized_view(&c.header, &c.costs, &c.drivers, &z.entries, site).ok().and_then(|v| v.savings.rate)
+        .map(|base| {
+            let f = base.figures.as_ref().ok();
+            let risk_adjusted = f.map(|f| risk_adjusted_npv(&f.metrics, f.success_probability));
+            let calibrated = f.map(|f| {
+                let factors: Vec<f64> = f.kinds.iter().map(|k| calibration.factor(*k).factor).collect();
+                // Shift the exact NPV by the calibration's change, so factors of 1 give the NPV.
+                let shift = f.model.npv_scaled(&factors) - f.model.npv();
+                f.metrics.npv.saturating_add(to_decimal(shift))
             });
-            let readiness = Readiness::weighted(criteria, &z.scores);
-            let standing = match z.zone.status {
-                _ if figures.is_err() => Standing::NotInChoice,
+            let readiness = Readiness::weighted(criteria, &base.scores);
+            let standing = match base.zone.status {
+                _ if f.is_none() => Standing::NotInChoice,
                 ZoneStatus::Approved | ZoneStatus::Piloting | ZoneStatus::Measuring => Standing::Committed,
                 ZoneStatus::Candidate => match (params.min_readiness, readiness) {
                     (Some(min), r) if r.is_none_or(|r| Decimal::try_from(r.score).unwrap_or_default() < min) => {
@@ -437,24 +560,16 @@ pub fn build_portfolio(
                 },
                 ZoneStatus::Closed | ZoneStatus::Shelved => Standing::NotInChoice,
             };
-            PortfolioRow {
-                case: z.case.as_ref().map(|c| (c.id, c.version, c.header.label.clone(), c.baseline)),
-                zone: z.zone,
-                figures,
-                realization,
-                readiness,
-                standing,
-                in_greedy: false,
-            }
+            PortfolioRow { base, risk_adjusted, calibrated, readiness, standing, in_greedy: false }
         })
         .collect();
     let choice = params.budget.map(|budget| choose(&mut rows, budget, params.basis));
     let rank = params.rank;
     rows.sort_by(|a, b| match (a.key(rank), b.key(rank)) {
-        (Some(x), Some(y)) => y.total_cmp(&x).then_with(|| a.zone.code.cmp(&b.zone.code)),
+        (Some(x), Some(y)) => y.total_cmp(&x).then_with(|| a.zone().code.cmp(&b.zone().code)),
         (Some(_), None) => Ordering::Less,
         (None, Some(_)) => Ordering::Greater,
-        (None, None) => a.zone.code.cmp(&b.zone.code),
+        (None, None) => a.zone().code.cmp(&b.zone().code),
     });
     Portfolio { rows, choice, params }
 }
@@ -476,10 +591,8 @@ fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> Budg
     // Profitability index, best first; a case without one-off cost (no index) goes first.
     let pi = |k: usize| {
         rows[candidates[k]]
-            .figures
-            .as_ref()
-            .ok()
-            .and_then(|f| f.figures.pre_tax.metrics.profitability_index)
+            .figures()
+            .and_then(|f| f.metrics.profitability_index)
             .and_then(|p| p.to_f64())
             .unwrap_or(f64::INFINITY)
     };
@@ -492,7 +605,7 @@ fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> Budg
     for &k in &greedy.chosen {
         rows[candidates[k]].in_greedy = true;
     }
-    let code = |k: usize| rows[candidates[k]].zone.code.clone();
+    let code = |k: usize| rows[candidates[k]].zone().code.clone();
     let only_recommended = best.chosen.iter().filter(|k| !greedy.chosen.contains(k)).map(|&k| code(k)).collect();
     let only_greedy = greedy.chosen.iter().filter(|k| !best.chosen.contains(k)).map(|&k| code(k)).collect();
     let unspent = cents(available) - best.cost;

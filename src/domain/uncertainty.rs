@@ -1,8 +1,7 @@
 //! A case's uncertainty: tornado, break-even, Monte Carlo, risk-adjusted and calibrated NPV, all
 //! from the straight-line NPV of [`crate::finance::linear`] (pre-tax, the headline view).
 
-use super::realized_view;
-use super::{CaseHeader, DriverKind, LedgerEntry, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
+use super::{CaseHeader, DriverKind, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
 use crate::finance::calibration::{Evidence, Factor, factor};
 use crate::finance::linear::{BreakEven, LinearNpv, to_decimal};
 use crate::finance::montecarlo::{Simulation, Triangular, simulate};
@@ -44,44 +43,11 @@ impl Calibration {
     }
 }
 
-/// One measured zone's history for the reference class.
-pub struct History<'a> {
-    /// Zone code (shown as a source).
-    pub code: &'a str,
-    /// Baseline header.
-    pub header: &'a CaseHeader,
-    /// Baseline cost items with ids.
-    pub costs: &'a [(i64, NewCostItem)],
-    /// Baseline drivers with ids.
-    pub drivers: &'a [(i64, NewBenefitDriver)],
-    /// Ledger entries.
-    pub entries: &'a [LedgerEntry],
-}
-
-/// Calibration factors from measuring and closed zones' baselines and ledgers: per driver kind,
-/// expected and measured money to date and the months with an expected benefit so far, combined
-/// by [`crate::finance::calibration::factor`]. A zone whose realized view cannot be computed is
-/// skipped.
-pub fn reference_class(histories: &[History<'_>], site: &SiteSettings) -> Calibration {
-    let mut evidence: HashMap<DriverKind, Vec<Evidence>> = HashMap::new();
-    let mut zones = Vec::new();
-    for h in histories {
-        let Ok(view) = realized_view(h.header, h.costs, h.drivers, h.entries, site) else { continue };
-        if view.elapsed == 0 {
-            continue;
-        }
-        zones.push(h.code.to_string());
-        for d in &view.drivers {
-            let Some((_, driver)) = h.drivers.iter().find(|(id, _)| *id == d.id) else { continue };
-            let months = d.expected.iter().take(view.elapsed).filter(|e| **e > Decimal::ZERO).count();
-            evidence.entry(driver.kind).or_default().push(Evidence {
-                expected: d.realization.expected_to_date.to_f64().unwrap_or(0.0),
-                measured: d.realization.measured_to_date.to_f64().unwrap_or(0.0),
-                months: u32::try_from(months).unwrap_or(u32::MAX),
-            });
-        }
+impl Calibration {
+    /// Factors from the evidence of each kind, with the zones it came from.
+    pub fn from_evidence(evidence: HashMap<DriverKind, Vec<Evidence>>, zones: Vec<String>) -> Self {
+        Calibration { by_kind: evidence.into_iter().map(|(k, ev)| (k, factor(&ev))).collect(), zones }
     }
-    Calibration { by_kind: evidence.into_iter().map(|(k, ev)| (k, factor(&ev))).collect(), zones }
 }
 
 /// One driver's sensitivity figures.

@@ -153,7 +153,8 @@ pub async fn view(
             }
         },
     };
-    let calibration = calibration_of(&db::zone_data(&state.pool).await?, &site);
+    let bases = state.figures.bases(&state.pool, &site, Trials::default()).await?;
+    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
     let header = &full.case.header;
     let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
     let drivers: Vec<&NewBenefitDriver> = full.drivers.iter().map(|d| &d.driver).collect();

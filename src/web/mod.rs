@@ -7,6 +7,7 @@ pub mod auth;
 mod cases;
 mod chart;
 mod error;
+mod figures;
 mod ledger;
 mod metrics;
 mod pages;
@@ -50,6 +51,8 @@ pub struct AppState {
     pub throttle: Arc<Throttle>,
     /// Whether cookies carry `Secure` (set when served over TLS).
     pub secure_cookies: bool,
+    /// Derived figures per zone, recomputed when a zone changes.
+    pub figures: Arc<figures::FigureCache>,
     permissions: Arc<HashMap<(Method, String), Permission>>,
 }
 
@@ -57,7 +60,14 @@ impl AppState {
     /// State for `pool` with the given clock.
     pub fn new(pool: SqlitePool, clock: Arc<dyn Clock>, secure_cookies: bool) -> Self {
         let permissions = routes().into_iter().map(|r| ((r.method, r.path.to_string()), r.permission)).collect();
-        Self { pool, clock, throttle: Arc::default(), secure_cookies, permissions: Arc::new(permissions) }
+        Self {
+            pool,
+            clock,
+            throttle: Arc::default(),
+            secure_cookies,
+            figures: Arc::default(),
+            permissions: Arc::new(permissions),
+        }
     }
 }
 

@@ -23,9 +23,9 @@ use serde_json::{Value, json};
 async fn compute(state: &AppState, params: PortfolioParams) -> Result<(SiteSettings, Portfolio), AppError> {
     let site = db::get_site(&state.pool).await?;
     let criteria = db::readiness::criteria(&state.pool).await?;
-    let zones = db::zone_data(&state.pool).await?;
-    let calibration = calibration_of(&zones, &site);
-    Ok((site.clone(), build_portfolio(zones, &site, &criteria, &calibration, params)))
+    let bases = state.figures.bases(&state.pool, &site, params.trials).await?;
+    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
+    Ok((site, build_portfolio(bases, &criteria, &calibration, params)))
 }
 
 fn standing_class(s: Standing) -> &'static str {
@@ -68,35 +68,35 @@ pub struct RowView {
 const DASH: &str = "–";
 
 fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
-    let f = r.figures.as_ref().ok();
-    let m = f.map(|f| &f.figures.pre_tax.metrics);
-    let u = f.map(|f| &f.uncertainty);
+    let f = r.figures();
+    let m = f.map(|f| &f.metrics);
+    let u = f.map(|f| &f.simulation);
     let money = |d: Option<Decimal>| d.map_or_else(|| DASH.to_string(), |d| Money(d).to_string());
     let sim_money = |v: Option<f64>| money(v.and_then(Decimal::from_f64_retain));
     RowView {
         rank,
-        zone_id: r.zone.id,
-        code: r.zone.code.clone(),
-        name: r.zone.name.clone(),
-        status: r.zone.status.as_str(),
+        zone_id: r.zone().id,
+        code: r.zone().code.clone(),
+        name: r.zone().name.clone(),
+        status: r.zone().status.as_str(),
         standing: r.standing.label(),
         class: standing_class(r.standing),
-        case: r.case.as_ref().map(|(id, v, label, _)| (*id, format!("v{v} {label}"))),
+        case: r.base.case.as_ref().map(|(id, v, label, _)| (*id, format!("v{v} {label}"))),
         investment: money(r.investment()),
-        npv: money(u.map(|u| u.npv)),
-        npv_negative: u.is_some_and(|u| u.npv < Decimal::ZERO),
-        risk_adjusted: money(u.map(|u| u.risk_adjusted)),
-        calibrated: money(u.map(|u| u.calibrated)),
+        npv: money(r.npv()),
+        npv_negative: r.npv().is_some_and(|v| v < Decimal::ZERO),
+        risk_adjusted: money(r.risk_adjusted),
+        calibrated: money(r.calibrated),
         irr: m.and_then(|m| m.irr_annual).map_or_else(|| DASH.into(), |i| Percent(i).to_string()),
         payback: m
             .and_then(|m| m.payback_months.as_ref())
             .map_or_else(|| "not reached".into(), |p| format!("{} mo", p.periods.round_dp(1))),
         pi: m.and_then(|m| m.profitability_index).map_or_else(|| DASH.into(), |p| p.round_dp(2).to_string()),
-        prob_negative: u.map_or_else(|| DASH.into(), |u| Percent(u.simulation.prob_negative).to_string()),
-        p10: sim_money(u.map(|u| u.simulation.p10)),
-        p50: sim_money(u.map(|u| u.simulation.p50)),
-        p90: sim_money(u.map(|u| u.simulation.p90)),
-        realization: r.realization.map_or_else(|| DASH.into(), |v| Percent(v).to_string()),
+        prob_negative: u.map_or_else(|| DASH.into(), |u| Percent(u.prob_negative).to_string()),
+        p10: sim_money(u.map(|u| u.p10)),
+        p50: sim_money(u.map(|u| u.p50)),
+        p90: sim_money(u.map(|u| u.p90)),
+        realization: r.base.realization.map_or_else(|| DASH.into(), |v| Percent(v).to_string()),
         readiness: r.readiness.map_or_else(
             || "not scored".into(),
             |x| {
@@ -108,7 +108,7 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
             },
         ),
         in_greedy: r.in_greedy,
-        problem: r.figures.as_ref().err().cloned(),
+        problem: r.problem().map(str::to_string),
     }
 }
 
@@ -124,8 +124,8 @@ struct Charts {
 }
 
 fn charts(p: &Portfolio, currency: &str) -> Charts {
-    let ok: Vec<&PortfolioRow> = p.rows.iter().filter(|r| r.figures.is_ok()).collect();
-    let npv = |r: &PortfolioRow| r.figures.as_ref().map_or(0.0, |f| f64_of(f.uncertainty.npv));
+    let ok: Vec<&PortfolioRow> = p.rows.iter().filter(|r| r.figures().is_some()).collect();
+    let npv = |r: &PortfolioRow| r.npv().map_or(0.0, f64_of);
     let bar_class = |r: &PortfolioRow| match r.standing {
         Standing::Committed => "bar-committed",
         Standing::Recommended => "bar-recommended",
@@ -134,9 +134,9 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
     let bars = ok
         .iter()
         .map(|r| {
-            let s = r.figures.as_ref().ok().map(|f| &f.uncertainty.simulation);
+            let s = r.figures().map(|f| &f.simulation);
             RangeInput {
-                label: r.zone.code.clone(),
+                label: r.zone().code.clone(),
                 from: 0.0,
                 to: npv(r),
                 whisker: s.map(|s| (s.p10, s.p90)),
@@ -150,7 +150,7 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
             }
         })
         .collect();
-    let best = ok.first().map(|r| r.zone.code.as_str()).unwrap_or("none");
+    let best = ok.first().map(|r| r.zone().code.as_str()).unwrap_or("none");
     let npv_chart = RangeBars::new(
         bars,
         0.0,
@@ -169,7 +169,7 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
             .map(|r| ScatterPoint {
                 x: r.investment().map_or(0.0, f64_of),
                 y: npv(r),
-                label: r.zone.code.clone(),
+                label: r.zone().code.clone(),
                 class: point_class(r),
             })
             .collect(),
@@ -186,7 +186,7 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
             .map(|r| ScatterPoint {
                 x: r.readiness.map_or(0.0, |x| x.score),
                 y: npv(r),
-                label: r.zone.code.clone(),
+                label: r.zone().code.clone(),
                 class: point_class(r),
             })
             .collect(),
@@ -221,7 +221,8 @@ struct ChoiceView {
 }
 
 fn choice_view(c: &BudgetChoice, rows: &[PortfolioRow]) -> ChoiceView {
-    let codes = |f: &dyn Fn(&PortfolioRow) -> bool| rows.iter().filter(|r| f(r)).map(|r| r.zone.code.clone()).collect();
+    let codes =
+        |f: &dyn Fn(&PortfolioRow) -> bool| rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect();
     ChoiceView {
         budget: Money(c.budget),
         committed: Money(c.committed),
@@ -409,38 +410,38 @@ fn opt_rate(r: Option<f64>) -> Value {
 
 /// One row as JSON: money and rates as decimal strings, probabilities as strings too.
 fn row_json(rank: usize, r: &PortfolioRow) -> Value {
-    let f = r.figures.as_ref().ok();
-    let m = f.map(|f| &f.figures.pre_tax.metrics);
-    let u = f.map(|f| &f.uncertainty);
+    let f = r.figures();
+    let m = f.map(|f| &f.metrics);
+    let u = f.map(|f| &f.simulation);
     let sim = |g: fn(&crate::finance::montecarlo::Simulation) -> f64| {
-        opt_money(u.and_then(|u| Decimal::from_f64_retain(g(&u.simulation))).map(|d| d.round_dp(2)))
+        opt_money(u.and_then(|u| Decimal::from_f64_retain(g(u))).map(|d| d.round_dp(2)))
     };
     json!({
         "rank": rank,
-        "zone_id": r.zone.id,
-        "code": r.zone.code,
-        "name": r.zone.name,
-        "status": r.zone.status.as_str(),
+        "zone_id": r.zone().id,
+        "code": r.zone().code,
+        "name": r.zone().name,
+        "status": r.zone().status.as_str(),
         "standing": r.standing.label(),
         "in_pi_order_set": r.in_greedy,
-        "case": r.case.as_ref().map(|(id, v, label, baseline)| json!({
+        "case": r.base.case.as_ref().map(|(id, v, label, baseline)| json!({
             "id": id, "version": v, "label": format!("v{v} {label}"), "baseline": baseline
         })),
         "investment": opt_money(r.investment()),
-        "npv": opt_money(u.map(|u| u.npv)),
-        "risk_adjusted_npv": opt_money(u.map(|u| u.risk_adjusted)),
-        "calibrated_npv": opt_money(u.map(|u| u.calibrated)),
+        "npv": opt_money(r.npv()),
+        "risk_adjusted_npv": opt_money(r.risk_adjusted),
+        "calibrated_npv": opt_money(r.calibrated),
         "irr": opt_rate(m.and_then(|m| m.irr_annual)),
         "payback_months": opt_money(m.and_then(|m| m.payback_months.as_ref()).map(|p| p.periods)),
         "profitability_index": opt_money(m.and_then(|m| m.profitability_index)),
-        "probability_npv_below_zero": opt_rate(u.map(|u| u.simulation.prob_negative)),
+        "probability_npv_below_zero": opt_rate(u.map(|u| u.prob_negative)),
         "mean_npv": sim(|s| s.mean),
         "p10_npv": sim(|s| s.p10),
         "p50_npv": sim(|s| s.p50),
         "p90_npv": sim(|s| s.p90),
-        "realization_to_date": opt_rate(r.realization),
+        "realization_to_date": opt_rate(r.base.realization),
         "readiness": r.readiness.map(|x| json!({ "score": x.score, "scored": x.rated, "of": x.of })),
-        "problem": r.figures.as_ref().err(),
+        "problem": r.problem(),
     })
 }
 
@@ -450,7 +451,7 @@ pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
     let (site, p) = compute(&state, params).await?;
     let choice = p.choice.as_ref().map(|c| {
         let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
-            p.rows.iter().filter(|r| f(r)).map(|r| r.zone.code.clone()).collect()
+            p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()
         };
         json!({
             "budget": money_text(c.budget),

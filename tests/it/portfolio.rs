@@ -365,3 +365,44 @@ async fn scenario_readiness_and_ledger_errors_name_the_path_and_store_nothing() 
     let entries: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
     assert_eq!((zones, entries), (0, 0), "all or nothing");
 }
+
+#[tokio::test]
+async fn cached_figures_follow_every_booking_and_totals_can_be_rebuilt() {
+    let t = test_app(true).await;
+    let before = t.get("/api/v1/portfolio").await.json();
+    let press = zone(&before, "PRESS-2");
+    let id = press["zone_id"].as_i64().unwrap();
+    let driver: i64 = sqlx::query_scalar(
+        "SELECT d.id FROM benefit_drivers d JOIN case_versions c ON c.id = d.case_id
+         WHERE c.zone_id = ? AND c.state = 'approved' ORDER BY d.id LIMIT 1",
+    )
+    .bind(id)
+    .fetch_one(&t.pool)
+    .await
+    .unwrap();
+    let controller = t.as_role(Some(Role::Controller));
+    let body = json!({"kind": "saving", "method": "direct", "item": driver, "period": "2026-11",
+                      "quantity": "500", "evidence": "extra count"});
+    let booked = controller.post_json(&format!("/api/v1/zones/{id}/ledger"), &body.to_string()).await;
+    assert_eq!(booked.status, StatusCode::CREATED, "{}", booked.text);
+    let after = t.get("/api/v1/portfolio").await.json();
+    // 500 more pieces at the driver's unit value raise the realization to date.
+    assert!(dec(&zone(&after, "PRESS-2")["realization_to_date"]) > dec(&press["realization_to_date"]));
+    // Calibration moved for every zone with a scrap driver, PAINT-1 included.
+    assert_ne!(zone(&after, "PAINT-1")["calibrated_npv"], zone(&before, "PAINT-1")["calibrated_npv"]);
+
+    // The running totals equal a rebuild from the entries.
+    let totals = || async {
+        sqlx::query_as::<_, (i64, String, String, String, i64, String)>(
+            "SELECT zone_id, item, amount, quantity, entries, last_period FROM ledger_totals ORDER BY zone_id, item",
+        )
+        .fetch_all(&t.pool)
+        .await
+        .unwrap()
+    };
+    let kept = totals().await;
+    assert!(!kept.is_empty());
+    sqlx::query("DELETE FROM ledger_totals").execute(&t.pool).await.unwrap();
+    pilot_ledger::db::migrate(&t.pool).await.unwrap();
+    assert_eq!(totals().await, kept);
+}
