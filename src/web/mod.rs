@@ -35,6 +35,20 @@ use tower_http::set_header::SetResponseHeaderLayer;
 use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::TraceLayer;
 
+/// Requests served at once; beyond that a request is refused at once with 503 and
+/// `Retry-After: 1` instead of queueing (so an overload cannot pile up memory or latency). Two
+/// cores and one SQLite writer are saturated well below this.
+pub const MAX_IN_FLIGHT: usize = 64;
+
+/// The answer to a request shed by the concurrency limit.
+async fn overloaded(_: tower::BoxError) -> axum::response::Response {
+    axum::response::IntoResponse::into_response((
+        StatusCode::SERVICE_UNAVAILABLE,
+        [(header::RETRY_AFTER, "1")],
+        "busy: try again in a second",
+    ))
+}
+
 /// Largest request body accepted (a scenario or CSV upload goes through the CLI instead).
 pub const BODY_LIMIT_BYTES: usize = 2 * 1024 * 1024;
 /// A request taking longer than this is answered 408 and dropped.
@@ -176,6 +190,12 @@ pub fn app(state: AppState) -> Router {
         .layer(CompressionLayer::new())
         .layer(RequestBodyLimitLayer::new(BODY_LIMIT_BYTES))
         .layer(TimeoutLayer::with_status_code(StatusCode::REQUEST_TIMEOUT, REQUEST_TIMEOUT))
+        .layer(
+            tower::ServiceBuilder::new()
+                .layer(axum::error_handling::HandleErrorLayer::new(overloaded))
+                .load_shed()
+                .concurrency_limit(MAX_IN_FLIGHT),
+        )
         .layer(TraceLayer::new_for_http())
 }
 
