@@ -10,14 +10,14 @@
 //! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
 //! changes the money figures.
 
-use super::uncertainty::{Calibration, Trials, risk_adjusted_npv};
+use super::uncertainty::{Calibration, Trials, calibrated_npv, quantity_ranges, risk_adjusted_npv};
 use super::{
     CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, Readiness, SiteSettings,
     Zone, ZoneStatus, finance_input, parse_decimal,
 };
 use crate::finance::calibration::Evidence;
-use crate::finance::linear::{LinearNpv, to_decimal};
-use crate::finance::montecarlo::{Simulation, Triangular, simulate};
+use crate::finance::linear::LinearNpv;
+use crate::finance::montecarlo::{Simulation, simulate};
 use crate::finance::selection::{Item, greedy_in_order, knapsack};
 use crate::finance::{CaseMetrics, build_schedule, case_metrics};
 use rust_decimal::Decimal;
@@ -319,12 +319,7 @@ fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigure
     let schedule = build_schedule(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
     let metrics = case_metrics(&schedule);
     let model = LinearNpv::new(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
-    let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);
-    let ranges = c
-        .drivers
-        .iter()
-        .map(|(_, d)| Triangular::new(f(&d.qty_low), f(&d.qty_likely), f(&d.qty_high)))
-        .collect::<Result<Vec<_>, _>>()
+    let ranges = quantity_ranges(c.drivers.iter().map(|(_, d)| d))
         .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
     let simulation = simulate(&model, &ranges, trials.count, trials.seed)
         .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
@@ -542,12 +537,7 @@ pub fn build_portfolio(
         .map(|base| {
             let f = base.figures.as_ref().ok();
             let risk_adjusted = f.map(|f| risk_adjusted_npv(&f.metrics, f.success_probability));
-            let calibrated = f.map(|f| {
-                let factors: Vec<f64> = f.kinds.iter().map(|k| calibration.factor(*k).factor).collect();
-                // Shift the exact NPV by the calibration's change, so factors of 1 give the NPV.
-                let shift = f.model.npv_scaled(&factors) - f.model.npv();
-                f.metrics.npv.saturating_add(to_decimal(shift))
-            });
+            let calibrated = f.map(|f| calibrated_npv(f.metrics.npv, &f.model, f.kinds.iter().copied(), calibration));
             let readiness = Readiness::weighted(criteria, &base.scores);
             let standing = match base.zone.status {
                 _ if f.is_none() => Standing::NotInChoice,

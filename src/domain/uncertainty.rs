@@ -100,6 +100,26 @@ pub fn risk_adjusted_npv(metrics: &CaseMetrics, success_probability: Decimal) ->
     success_probability.saturating_mul(metrics.pv_benefits).saturating_sub(metrics.pv_costs)
 }
 
+/// Each driver's triangular range of yearly quantities (low, likely, high).
+pub(crate) fn quantity_ranges<'a>(
+    drivers: impl Iterator<Item = &'a NewBenefitDriver>,
+) -> Result<Vec<Triangular>, FinanceError> {
+    let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);
+    drivers.map(|d| Triangular::new(f(&d.qty_low), f(&d.qty_likely), f(&d.qty_high))).collect()
+}
+
+/// Calibrated NPV: the exact `npv` shifted by what the kinds' calibration factors change on the
+/// straight line, so factors of 1 give the NPV itself.
+pub fn calibrated_npv(
+    npv: Decimal,
+    model: &LinearNpv,
+    kinds: impl Iterator<Item = DriverKind>,
+    calibration: &Calibration,
+) -> Decimal {
+    let factors: Vec<f64> = kinds.map(|k| calibration.factor(k).factor).collect();
+    npv.saturating_add(to_decimal(model.npv_scaled(&factors) - model.npv()))
+}
+
 /// Compute a case's uncertainty figures (pre-tax).
 pub fn case_uncertainty(
     header: &CaseHeader,
@@ -115,19 +135,10 @@ pub fn case_uncertainty(
     let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);
     let lows: Vec<f64> = drivers.iter().map(|d| f(&d.qty_low)).collect();
     let highs: Vec<f64> = drivers.iter().map(|d| f(&d.qty_high)).collect();
-    let ranges = drivers
-        .iter()
-        .map(|d| Triangular::new(f(&d.qty_low), f(&d.qty_likely), f(&d.qty_high)))
-        .collect::<Result<Vec<_>, _>>()?;
+    let ranges = quantity_ranges(drivers.iter().copied())?;
     let simulation = simulate(&model, &ranges, trials.count, trials.seed)?;
     let swings = model.tornado(&lows, &highs);
     let factors: Vec<Factor> = drivers.iter().map(|d| calibration.factor(d.kind)).collect();
-    // Shift the exact NPV by the calibration's change, so factors of 1 give the NPV itself.
-    let shift: f64 = factors
-        .iter()
-        .zip(model.unit_pv.iter().zip(&model.quantities))
-        .map(|(k, (u, q))| (k.factor - 1.0) * u * q)
-        .sum();
     let npv = metrics.npv;
     let out_drivers = drivers
         .iter()
@@ -151,7 +162,7 @@ pub fn case_uncertainty(
     Ok(CaseUncertainty {
         npv,
         risk_adjusted: risk_adjusted_npv(metrics, header.success_probability),
-        calibrated: npv.saturating_add(to_decimal(shift)),
+        calibrated: calibrated_npv(npv, &model, drivers.iter().map(|d| d.kind), calibration),
         drivers: out_drivers,
         tornado: swings.iter().map(|s| s.driver).collect(),
         simulation,
