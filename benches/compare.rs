@@ -3,13 +3,13 @@
 //! results, so the script can check agreement before comparing times.
 #![expect(clippy::unwrap_used, clippy::expect_used, reason = "a benchmark binary, not a request path")]
 
-use pilot_ledger::domain::{Scenario, finance_input};
+use pilot_ledger::domain::{Scenario, finance_input, quantity_ranges};
 use pilot_ledger::finance::float::{npv_batch, npv_f64};
 use pilot_ledger::finance::linear::LinearNpv;
-use pilot_ledger::finance::montecarlo::{DEFAULT_TRIALS, Triangular, simulate};
+use pilot_ledger::finance::montecarlo::{DEFAULT_TRIALS, simulate};
 use pilot_ledger::finance::{irr, npv, xirr};
 use rust_decimal::Decimal;
-use rust_decimal::prelude::{FromPrimitive, ToPrimitive};
+use rust_decimal::prelude::FromPrimitive;
 use serde::Deserialize;
 use serde_json::json;
 use std::hint::black_box;
@@ -71,9 +71,7 @@ fn main() {
     let zone = scenario.zones.iter().find(|z| z.zone.code == "PAINT-1").unwrap();
     let case = &zone.cases[0];
     let model = LinearNpv::new(&finance_input(&case.header, &case.costs, &case.drivers, None), 0.09).unwrap();
-    let f = |x: Decimal| x.to_f64().unwrap_or(0.0);
-    let ranges: Vec<Triangular> =
-        case.drivers.iter().map(|d| Triangular::new(f(d.qty_low), f(d.qty_likely), f(d.qty_high)).unwrap()).collect();
+    let ranges = quantity_ranges(case.drivers.iter()).unwrap();
     let mut seed = 0;
     let (t_mc, _) = best_of(50, || {
         seed += 1;

@@ -5,15 +5,15 @@
 //! `python3 benches/compare.py` (see README, Performance).
 
 use criterion::{BatchSize, Criterion, criterion_group, criterion_main};
-use pilot_ledger::domain::{Scenario, finance_input};
+use pilot_ledger::domain::{Scenario, finance_input, quantity_ranges};
 use pilot_ledger::finance::float::{irr_f64, npv_batch, npv_f64};
 use pilot_ledger::finance::linear::LinearNpv;
-use pilot_ledger::finance::montecarlo::{DEFAULT_TRIALS, Triangular, simulate};
+use pilot_ledger::finance::montecarlo::{DEFAULT_TRIALS, simulate};
 use pilot_ledger::finance::{irr, npv, xirr};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rust_decimal::Decimal;
-use rust_decimal::prelude::{FromPrimitive, ToPrimitive};
+use rust_decimal::prelude::FromPrimitive;
 use std::hint::black_box;
 use time::{Date, Duration, Month};
 
@@ -81,14 +81,7 @@ fn bench(c: &mut Criterion) {
     let case = &zone.cases[0];
     let input = finance_input(&case.header, &case.costs, &case.drivers, None);
     let model = LinearNpv::new(&input, 0.09).unwrap_or_else(|e| panic!("{e}"));
-    let ranges: Vec<Triangular> = case
-        .drivers
-        .iter()
-        .map(|d| {
-            let f = |x: Decimal| x.to_f64().unwrap_or(0.0);
-            Triangular::new(f(d.qty_low), f(d.qty_likely), f(d.qty_high)).unwrap_or_else(|e| panic!("{e}"))
-        })
-        .collect();
+    let ranges = quantity_ranges(case.drivers.iter()).unwrap_or_else(|e| panic!("{e}"));
     c.bench_function("monte carlo 10,000 trials of a demo case", |b| {
         b.iter_batched(
             || next(1 << 30) as u64,

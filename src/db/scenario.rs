@@ -17,8 +17,7 @@ pub struct LoadSummary {
 
 /// The calendar month now: a scenario may not book later months either.
 fn this_month() -> Month {
-    let today = time::OffsetDateTime::now_utc().date();
-    Month { year: today.year(), month: u8::from(today.month()) }
+    Month::of(time::OffsetDateTime::now_utc().date())
 }
 
 /// Store one zone's readiness scores and ledger; errors name the scenario's JSON path.

@@ -53,6 +53,11 @@ impl Month {
         Ok(Self { year, month })
     }
 
+    /// The month a date falls in.
+    pub fn of(date: time::Date) -> Self {
+        Self { year: date.year(), month: u8::from(date.month()) }
+    }
+
     /// The month `n` months later.
     pub fn plus(self, n: u32) -> Self {
         let index = self.year * 12 + i32::from(self.month) - 1 + n as i32;

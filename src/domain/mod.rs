@@ -32,7 +32,8 @@ pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
 pub use uncertainty::{
-    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, risk_adjusted_npv,
+    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, parse_seed, quantity_ranges,
+    risk_adjusted_npv,
 };
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 

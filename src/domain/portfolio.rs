@@ -10,7 +10,8 @@
 //! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
 //! changes the money figures.
 
-use super::uncertainty::{Calibration, Trials, calibrated_npv, quantity_ranges, risk_adjusted_npv};
+use super::realized::{driver_benefits, month_index};
+use super::uncertainty::{Calibration, Trials, calibrated_npv, parse_seed, quantity_ranges, risk_adjusted_npv};
 use super::{
     CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, Readiness, SiteSettings,
     Zone, ZoneStatus, finance_input, parse_decimal,
@@ -22,7 +23,7 @@ use crate::finance::selection::{Item, greedy_in_order, knapsack};
 use crate::finance::{CaseMetrics, build_schedule, case_metrics};
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use std::cmp::Ordering;
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -129,18 +130,23 @@ impl ValueBasis {
 }
 
 /// The portfolio query as the page form, the CSV link and the API give it.
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
 #[serde(default)]
 pub struct PortfolioQuery {
     /// Capital budget for one-off investment; empty for no choice.
+    #[serde(skip_serializing_if = "String::is_empty")]
     pub budget: String,
     /// Ranking metric ([`RankBy::as_str`]).
+    #[serde(skip_serializing_if = "String::is_empty")]
     pub rank: String,
     /// Value the choice maximises ([`ValueBasis::as_str`]).
+    #[serde(skip_serializing_if = "String::is_empty")]
     pub basis: String,
     /// Minimum weighted readiness (1 to 5) for a candidate to be chosen; empty for none.
+    #[serde(skip_serializing_if = "String::is_empty")]
     pub min_readiness: String,
     /// Monte Carlo seed; empty for the default.
+    #[serde(skip_serializing_if = "String::is_empty")]
     pub seed: String,
 }
 
@@ -196,14 +202,7 @@ impl PortfolioParams {
                 }),
             )
         };
-        let seed = if q.seed.trim().is_empty() {
-            Some(Trials::default().seed)
-        } else {
-            e.take(
-                "seed",
-                q.seed.trim().parse::<u64>().map_err(|_| "a whole number from 0 to 18446744073709551615".into()),
-            )
-        };
+        let seed = e.take("seed", parse_seed(&q.seed));
         match (rank, basis, seed) {
             (Some(rank), Some(basis), Some(seed)) if e.is_empty() => {
                 Ok(Self { budget, rank, basis, min_readiness, trials: Trials { seed, ..Trials::default() } })
@@ -286,10 +285,6 @@ pub struct ZoneBase {
     pub evidence: Vec<(DriverKind, Evidence)>,
 }
 
-fn month_index(start: Month, m: Month) -> i64 {
-    i64::from(m.year - start.year) * 12 + i64::from(m.month) - i64::from(start.month)
-}
-
 /// Compute a zone's base figures (see [`ZoneBase`]).
 pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials) -> ZoneBase {
     let hurdle = site.hurdle_f64();
@@ -340,15 +335,13 @@ fn realized(
     latest: Month,
     hurdle: f64,
 ) -> (Option<f64>, Vec<(DriverKind, Evidence)>) {
-    let elapsed = usize::try_from(month_index(c.header.start_month, latest) + 1)
-        .unwrap_or(0)
-        .min(c.header.horizon_months as usize);
+    let elapsed = month_index(c.header.start_month, latest).map_or(0, |i| i + 1).min(c.header.horizon_months as usize);
     let (mut expected_all, mut measured_all) = (Decimal::ZERO, Decimal::ZERO);
     let mut evidence = Vec::with_capacity(c.drivers.len());
     for (id, d) in &c.drivers {
-        let Ok(schedule) = build_schedule(&finance_input(&c.header, [], [d], None), hurdle) else { continue };
-        let expected: Decimal = schedule.rows.iter().take(elapsed).map(|r| r.benefits).sum();
-        let months = schedule.rows.iter().take(elapsed).filter(|r| r.benefits > Decimal::ZERO).count();
+        let Ok(benefits) = driver_benefits(&c.header, d, hurdle) else { continue };
+        let expected: Decimal = benefits.iter().take(elapsed).sum();
+        let months = benefits.iter().take(elapsed).filter(|b| **b > Decimal::ZERO).count();
         let measured = ledger.drivers.get(id).copied().unwrap_or_default();
         expected_all += expected;
         measured_all += measured;

@@ -59,7 +59,17 @@ pub fn month_end(m: Month) -> Option<time::Date> {
     time::Date::from_calendar_date(next.year, month, 1).ok()?.previous_day()
 }
 
-fn month_index(start: Month, m: Month) -> Option<usize> {
+/// Expected benefits of one driver alone, month by month over the case's horizon.
+pub(crate) fn driver_benefits(
+    header: &CaseHeader,
+    driver: &NewBenefitDriver,
+    hurdle: f64,
+) -> Result<Vec<Decimal>, FinanceError> {
+    Ok(build_schedule(&finance_input(header, [], [driver], None), hurdle)?.rows.iter().map(|r| r.benefits).collect())
+}
+
+/// Months from the case's start month to `m` (`None` before the start).
+pub(crate) fn month_index(start: Month, m: Month) -> Option<usize> {
     let i = (m.year - start.year) * 12 + i32::from(m.month) - i32::from(start.month);
     usize::try_from(i).ok()
 }
@@ -74,10 +84,6 @@ pub fn realized_view(
 ) -> Result<RealizedView, FinanceError> {
     let n = header.horizon_months as usize;
     let hurdle = site.hurdle_f64();
-    let benefits_of = |d: &NewBenefitDriver| -> Result<Vec<Decimal>, FinanceError> {
-        let input = finance_input(header, [], [d], None);
-        Ok(build_schedule(&input, hurdle)?.rows.iter().map(|r| r.benefits).collect())
-    };
     let expected_net: Vec<Decimal> = build_schedule(
         &finance_input(header, costs.iter().map(|(_, c)| c), drivers.iter().map(|(_, d)| d), None),
         hurdle,
@@ -100,7 +106,7 @@ pub fn realized_view(
     let mut out_drivers = Vec::with_capacity(drivers.len());
     let (mut all_expected, mut all_measured) = (vec![Decimal::ZERO; n], vec![Decimal::ZERO; n]);
     for (id, d) in drivers {
-        let expected = benefits_of(d)?;
+        let expected = driver_benefits(header, d, hurdle)?;
         let mut measured = vec![Decimal::ZERO; n];
         let mut measured_quantity = Decimal::ZERO;
         for e in entries.iter().filter(|e| e.driver_id == Some(*id)) {

@@ -28,6 +28,14 @@ impl Default for Trials {
     }
 }
 
+/// A Monte Carlo seed as typed: empty for [`DEFAULT_SEED`], else a whole number.
+pub fn parse_seed(value: &str) -> Result<u64, String> {
+    match value.trim() {
+        "" => Ok(DEFAULT_SEED),
+        s => s.parse().map_err(|_| "a whole number from 0 to 18446744073709551615".into()),
+    }
+}
+
 /// Calibration factors per driver kind, from the reference class of measured zones.
 #[derive(Debug, Clone, Default)]
 pub struct Calibration {
@@ -101,7 +109,10 @@ pub fn risk_adjusted_npv(metrics: &CaseMetrics, success_probability: Decimal) ->
 }
 
 /// Each driver's triangular range of yearly quantities (low, likely, high).
-pub(crate) fn quantity_ranges<'a>(
+///
+/// # Errors
+/// [`FinanceError::InvalidInput`] when a driver's quantities are not `low <= likely <= high`.
+pub fn quantity_ranges<'a>(
     drivers: impl Iterator<Item = &'a NewBenefitDriver>,
 ) -> Result<Vec<Triangular>, FinanceError> {
     let f = |d: &Decimal| d.to_f64().unwrap_or(0.0);

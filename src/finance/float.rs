@@ -5,7 +5,7 @@
 
 use rayon::prelude::*;
 
-use super::irr::{DensePoly, all_roots, outcome_from_roots, solve_single};
+use super::irr::{DensePoly, all_roots, outcome_from_roots, sign_changes, signum, solve_single};
 use super::rate::check_rate;
 use super::{FinanceError, IrrOutcome};
 
@@ -107,8 +107,7 @@ pub fn irr_f64(flows: &[f64]) -> Result<IrrOutcome, FinanceError> {
     if flows.iter().any(|f| !f.is_finite()) {
         return Err(FinanceError::NotRepresentable);
     }
-    let signs = flows.iter().filter(|f| **f != 0.0).map(|f| f.is_sign_positive()).collect::<Vec<_>>();
-    let changes = signs.windows(2).filter(|w| w[0] != w[1]).count();
+    let changes = sign_changes(flows.iter().map(|&f| signum(f)));
     if changes == 0 {
         return Err(FinanceError::NoSignChange);
     }

@@ -403,7 +403,7 @@ pub(crate) fn all_roots<S: Series>(series: &S) -> Result<Vec<FoundRoot>, Finance
     Ok(roots)
 }
 
-fn signum(v: f64) -> i8 {
+pub(crate) fn signum(v: f64) -> i8 {
     if v > 0.0 {
         1
     } else if v < 0.0 {

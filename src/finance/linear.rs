@@ -19,7 +19,7 @@ use rust_decimal::prelude::{FromPrimitive, ToPrimitive};
 
 use super::FinanceError;
 use super::rate::monthly_from_annual;
-use super::schedule::{CaseInput, build_schedule};
+use super::schedule::{CaseInput, build_schedule, validate};
 
 /// A case's NPV as `base + sum_i q_i * unit_pv_i`, in f64 (see the [module docs](self)).
 #[derive(Debug, Clone, PartialEq)]
@@ -102,8 +102,8 @@ impl LinearNpv {
         for d in &mut costs_only.drivers {
             d.quantity_per_year = Decimal::ZERO;
         }
-        // Validates everything (the drivers too: only their quantities were zeroed).
-        build_schedule(case, annual_hurdle)?;
+        // The case as given (quantities included); the costs-only schedule checks the rest.
+        validate(case)?;
         let base_schedule = build_schedule(&costs_only, annual_hurdle)?;
         let base = base_schedule.rows.last().map_or(Decimal::ZERO, |r| r.cumulative_discounted);
         let v = 1.0 / (1.0 + monthly_from_annual(annual_hurdle)?);

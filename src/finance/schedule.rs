@@ -169,7 +169,7 @@ fn escalated(escalation: Decimal, months_since: u32) -> Result<Decimal, FinanceE
 }
 
 /// Checks every input and names the first bad one.
-fn validate(case: &CaseInput) -> Result<(), FinanceError> {
+pub(crate) fn validate(case: &CaseInput) -> Result<(), FinanceError> {
     if case.horizon_months == 0 || case.horizon_months > MAX_HORIZON_MONTHS {
         return Err(invalid("horizon (months)".into(), "must be between 1 and 1200 months"));
     }

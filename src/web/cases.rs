@@ -9,7 +9,7 @@ use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
     FieldErrors, Money, NewBenefitDriver, NewCostItem, Percent, RateStyle, SiteSettings, Trials, Zone, calibration_of,
-    case_figures, case_uncertainty,
+    case_figures, case_uncertainty, parse_seed,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -144,14 +144,9 @@ pub async fn view(
 ) -> Result<Response, AppError> {
     let site = db::get_site(&state.pool).await?;
     let (full, figures) = load_figures(&state, id, &site).await?;
-    let (seed, seed_error) = match q.seed.trim() {
-        "" => (DEFAULT_SEED, None),
-        s => match s.parse::<u64>() {
-            Ok(v) => (v, None),
-            Err(_) => {
-                (DEFAULT_SEED, Some(format!("{s:?} is not a seed: use a whole number from 0 to 18446744073709551615")))
-            }
-        },
+    let (seed, seed_error) = match parse_seed(&q.seed) {
+        Ok(v) => (v, None),
+        Err(why) => (DEFAULT_SEED, Some(format!("{:?} is not a seed: use {why}", q.seed.trim()))),
     };
     let bases = state.figures.bases(&state.pool, &site, Trials::default()).await?;
     let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));

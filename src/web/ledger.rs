@@ -36,8 +36,7 @@ pub const CSV_COLUMNS: [&str; 10] = [
 
 /// The month the clock is in: nothing later can be booked.
 fn current_month(state: &AppState) -> Month {
-    let d = state.clock.now().date();
-    Month { year: d.year(), month: u8::from(d.month()) }
+    Month::of(state.clock.now().date())
 }
 
 /// Realization and its parts, formatted.

@@ -37,6 +37,18 @@ fn standing_class(s: Standing) -> &'static str {
     }
 }
 
+/// The CSS class of a zone's bar (`dot = false`) or point in the charts.
+fn chart_class(s: Standing, dot: bool) -> &'static str {
+    match (s, dot) {
+        (Standing::Committed, false) => "bar-committed",
+        (Standing::Recommended, false) => "bar-recommended",
+        (_, false) => "bar-other",
+        (Standing::Committed, true) => "dot-committed",
+        (Standing::Recommended, true) => "dot-recommended",
+        (_, true) => "dot-other",
+    }
+}
+
 /// A row formatted for the page and the CSV.
 pub struct RowView {
     rank: usize,
@@ -126,11 +138,6 @@ struct Charts {
 fn charts(p: &Portfolio, currency: &str) -> Charts {
     let ok: Vec<&PortfolioRow> = p.rows.iter().filter(|r| r.figures().is_some()).collect();
     let npv = |r: &PortfolioRow| r.npv().map_or(0.0, f64_of);
-    let bar_class = |r: &PortfolioRow| match r.standing {
-        Standing::Committed => "bar-committed",
-        Standing::Recommended => "bar-recommended",
-        _ => "bar-other",
-    };
     let bars = ok
         .iter()
         .map(|r| {
@@ -141,7 +148,7 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
                 to: npv(r),
                 whisker: s.map(|s| (s.p10, s.p90)),
                 split: None,
-                class: bar_class(r),
+                class: chart_class(r.standing, false),
                 note: format!(
                     "{} · {}",
                     Money(Decimal::from_f64_retain(npv(r)).unwrap_or_default().round()),
@@ -159,18 +166,13 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
             "NPV of each zone in {currency}, in ranking order (first: {best}); the thin line spans P10 to P90 of the Monte Carlo."
         ),
     );
-    let point_class = |r: &PortfolioRow| match r.standing {
-        Standing::Committed => "dot-committed",
-        Standing::Recommended => "dot-recommended",
-        _ => "dot-other",
-    };
     let investment = Scatter::new(
         ok.iter()
             .map(|r| ScatterPoint {
                 x: r.investment().map_or(0.0, f64_of),
                 y: npv(r),
                 label: r.zone().code.clone(),
-                class: point_class(r),
+                class: chart_class(r.standing, true),
             })
             .collect(),
         Axis::Money,
@@ -187,7 +189,7 @@ fn charts(p: &Portfolio, currency: &str) -> Charts {
                 x: r.readiness.map_or(0.0, |x| x.score),
                 y: npv(r),
                 label: r.zone().code.clone(),
-                class: point_class(r),
+                class: chart_class(r.standing, true),
             })
             .collect(),
         Axis::Score(1.0, 5.0),
@@ -264,21 +266,8 @@ struct PortfolioPage {
 
 /// The query string of the current settings, for the CSV and print links.
 fn query_string(q: &PortfolioQuery) -> String {
-    let pairs = [
-        ("budget", &q.budget),
-        ("rank", &q.rank),
-        ("basis", &q.basis),
-        ("min_readiness", &q.min_readiness),
-        ("seed", &q.seed),
-    ];
-    pairs
-        .iter()
-        .filter(|(_, v)| !v.trim().is_empty())
-        .map(|(k, v)| {
-            format!("{k}={}", v.trim().replace(|c: char| !c.is_ascii_alphanumeric() && c != '.' && c != '_', ""))
-        })
-        .collect::<Vec<_>>()
-        .join("&")
+    // Strings only: serialization cannot fail.
+    serde_urlencoded::to_string(q).unwrap_or_default()
 }
 
 /// Query parameters of the page: the portfolio query plus the print view switch.

@@ -257,7 +257,7 @@ pub async fn new_case(
 ) -> Result<Redirect, AppError> {
     let site = db::get_site(&state.pool).await?;
     let today = time::OffsetDateTime::now_utc().date();
-    let start = Month { year: today.year(), month: u8::from(today.month()) }.plus(1);
+    let start = Month::of(today).plus(1);
     let horizon = site.default_horizon_months;
     let spec = CaseSpec {
         header: CaseHeader {

@@ -85,14 +85,14 @@ fn runner() -> TestRunner {
 const COLUMNS: &str =
     "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence";
 
+/// One CSV cell, quoted when it holds a comma, a quote or a line break (RFC 4180).
+fn csv_cell(c: &str) -> String {
+    if c.contains([',', '"', '\n']) { format!("\"{}\"", c.replace('"', "\"\"")) } else { c.to_string() }
+}
+
 fn csv_text() -> impl Strategy<Value = String> {
-    let row = prop::collection::vec(nasty(), 0..12).prop_map(|cells| {
-        cells
-            .iter()
-            .map(|c| if c.contains([',', '"', '\n']) { format!("\"{}\"", c.replace('"', "\"\"")) } else { c.clone() })
-            .collect::<Vec<_>>()
-            .join(",")
-    });
+    let row = prop::collection::vec(nasty(), 0..12)
+        .prop_map(|cells| cells.iter().map(|c| csv_cell(c)).collect::<Vec<_>>().join(","));
     // A valid row of PRESS-2, with one cell sometimes swapped for a nasty value.
     let good = (1u32..10, 1u32..500, prop::option::weighted(0.3, (0usize..10, nasty()))).prop_map(|(m, q, swap)| {
         let mut cells: Vec<String> = format!("2026-0{m},saving,Split and wrinkled blanks,direct,{q},,,,,shift report")
@@ -100,7 +100,7 @@ fn csv_text() -> impl Strategy<Value = String> {
             .map(str::to_string)
             .collect();
         if let Some((i, v)) = swap {
-            cells[i] = if v.contains([',', '"', '\n']) { format!("\"{}\"", v.replace('"', "\"\"")) } else { v };
+            cells[i] = csv_cell(&v);
         }
         cells.join(",")
     });
