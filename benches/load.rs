@@ -2,6 +2,7 @@
 //! the scale data and passes its address, token and database here through the environment):
 //!
 //! 1. single requests: the portfolio page, its API and a zone page, sequentially (p50, p99);
+//!    then the API right after a booking each time (the answer is recomputed);
 //! 2. mixed load: `LOAD_CONNECTIONS` keep-alive connections for `LOAD_SECONDS`, each request a
 //!    portfolio read (API) or a ledger booking with its own idempotency key;
 //! 3. overload: four times the server's concurrency limit, portfolio reads for 10 s: excess
@@ -115,6 +116,24 @@ async fn main() {
         report(label, times, start.elapsed().as_secs_f64());
     }
 
+    // 1b. A read right after each booking: the answer is recomputed every time.
+    let run = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap().as_secs();
+    let (zone, driver) = ctx.zones[1];
+    let mut times = Vec::new();
+    let start = Instant::now();
+    for i in 0..100 {
+        let body = format!(
+            r#"{{"kind": "saving", "method": "direct", "item": {driver}, "period": "2026-06", "quantity": "1", "evidence": "load test"}}"#
+        );
+        let (s, _) =
+            ctx.send("POST", &format!("/api/v1/zones/{zone}/ledger"), Some((format!("probe-{run}-{i}"), body))).await;
+        assert_eq!(s, 201);
+        let (s, t) = ctx.send("GET", "/api/v1/portfolio?budget=5000000", None).await;
+        assert_eq!(s, 200);
+        times.push(t);
+    }
+    report("portfolio API after a booking, one at a time", times, start.elapsed().as_secs_f64());
+
     // 2. Mixed load.
     let acked = Arc::new(Mutex::new(Vec::<String>::new()));
     let reads = Arc::new(Mutex::new(Vec::new()));
@@ -135,7 +154,7 @@ async fn main() {
                         if s == 200 { reads.lock().unwrap().push(t) } else { errors.lock().unwrap().push(s) }
                     } else {
                         let (zone, driver) = ctx.zones[(i as usize * 7 + c * 13) % ctx.zones.len()];
-                        let key = format!("load-{c}-{i}");
+                        let key = format!("load-{run}-{c}-{i}");
                         let body = format!(
                             r#"{{"kind": "saving", "method": "direct", "item": {driver}, "period": "2026-{:02}", "quantity": "{}", "evidence": "load test"}}"#,
                             1 + i % 11,
@@ -162,7 +181,11 @@ async fn main() {
     report("mixed: ledger bookings", writes.lock().unwrap().clone(), took);
     let errs = errors.lock().unwrap().clone();
     let five = errs.iter().filter(|s| **s >= 500 || **s == 0).count();
-    println!("mixed: {} non-success answers, of them {five} 5xx or failed connections", errs.len());
+    let mut by_status = std::collections::BTreeMap::<u16, usize>::new();
+    for s in &errs {
+        *by_status.entry(*s).or_default() += 1;
+    }
+    println!("mixed: {} non-success answers {by_status:?}, of them {five} 5xx or failed connections", errs.len());
 
     // 3. Overload.
     let over = 4 * limit;

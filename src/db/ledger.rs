@@ -320,9 +320,20 @@ pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
     Ok(())
 }
 
-/// Each baseline item's booked totals for every zone, and each zone's latest booked month.
-pub(super) async fn all_totals_in(conn: &mut SqliteConnection) -> DbResult<Vec<(i64, String, Decimal, Month)>> {
-    let rows = sqlx::query("SELECT zone_id, item, amount, last_period FROM ledger_totals").fetch_all(conn).await?;
+/// Each baseline item's booked totals and latest booked month, for every zone or for one.
+pub(super) async fn totals_in(
+    conn: &mut SqliteConnection,
+    zone: Option<i64>,
+) -> DbResult<Vec<(i64, String, Decimal, Month)>> {
+    let rows = match zone {
+        None => sqlx::query("SELECT zone_id, item, amount, last_period FROM ledger_totals").fetch_all(conn).await?,
+        Some(id) => {
+            sqlx::query("SELECT zone_id, item, amount, last_period FROM ledger_totals WHERE zone_id = ?")
+                .bind(id)
+                .fetch_all(conn)
+                .await?
+        }
+    };
     rows.iter()
         .map(|r| {
             Ok((

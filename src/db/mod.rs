@@ -126,7 +126,7 @@ pub use cases::{
     add_cost, add_driver, approve_case, baseline_item_by_label, baseline_of, case_full, copy_case, delete_cost,
     delete_driver, insert_case, list_cases, set_state, submit_case, update_header,
 };
-pub use portfolio::{Snapshot, snapshot};
+pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, put_site};
 pub use users::{
@@ -134,5 +134,5 @@ pub use users::{
     insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,
     user_for_token,
 };
-use zones::list_zones_in;
 pub use zones::{get_zone, insert_zone, list_zones, update_zone};
+use zones::{get_zone_in, list_zones_in};

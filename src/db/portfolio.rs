@@ -2,9 +2,10 @@
 //! zones whose counter moved, the case the figures come from, the ledger totals and the
 //! readiness scores, all read in one transaction so the page is one consistent snapshot.
 
-use super::{DbResult, case_full_in, ledger, list_zones_in, readiness};
-use crate::domain::{CaseState, LedgerTotals, ZoneData};
-use sqlx::SqlitePool;
+use super::{DbResult, case_full_in, get_zone_in, ledger, list_zones_in, readiness};
+use crate::domain::{CaseState, LedgerTotals, Month, Zone, ZoneData};
+use rust_decimal::Decimal;
+use sqlx::{SqliteConnection, SqlitePool};
 use std::collections::HashMap;
 
 /// What [`snapshot`] read.
@@ -17,6 +18,21 @@ pub struct Snapshot {
     pub stale: Vec<(i64, ZoneData)>,
 }
 
+/// A number that grows with every change any zone's or the site's counter records: the sum
+/// of all counters (each only ever grows, and zones are never deleted). Equal numbers mean
+/// the portfolio has not changed.
+pub async fn generation(pool: &SqlitePool) -> DbResult<i64> {
+    Ok(sqlx::query_scalar(
+        "SELECT (SELECT n FROM site_changes WHERE id = 1) + (SELECT COALESCE(SUM(n), 0) FROM zone_changes)",
+    )
+    .fetch_one(pool)
+    .await?)
+}
+
+/// Up to this many stale zones are read one by one; more (a cold cache, a site change) read
+/// whole tables once.
+const FEW: usize = 32;
+
 /// Read the counters, and the data of every zone for which `fresh(zone_id, zone_counter,
 /// site_counter)` is false.
 pub async fn snapshot(pool: &SqlitePool, fresh: impl Fn(i64, i64, i64) -> bool) -> DbResult<Snapshot> {
@@ -26,41 +42,55 @@ pub async fn snapshot(pool: &SqlitePool, fresh: impl Fn(i64, i64, i64) -> bool) 
         sqlx::query_as("SELECT zone_id, n FROM zone_changes ORDER BY zone_id").fetch_all(&mut *tx).await?;
     let stale_ids: HashMap<i64, i64> = counters.iter().copied().filter(|&(id, n)| !fresh(id, n, site)).collect();
     let mut stale = Vec::with_capacity(stale_ids.len());
-    if !stale_ids.is_empty() {
-        let scores = readiness::all_scores_in(&mut tx).await?;
-        let mut totals: HashMap<i64, LedgerTotals> = HashMap::new();
-        for (zone, item, amount, last) in ledger::all_totals_in(&mut tx).await? {
-            if !stale_ids.contains_key(&zone) {
-                continue;
-            }
-            let t = totals.entry(zone).or_default();
-            t.latest = Some(t.latest.map_or(last, |l| l.max(last)));
-            if let Some(id) = item.strip_prefix("driver:").and_then(|d| d.parse::<i64>().ok()) {
-                t.drivers.insert(id, amount);
-            }
-        }
+    if stale_ids.len() > FEW {
+        let mut scores = readiness::scores_in(&mut tx, None).await?;
+        let mut totals = totals_by_zone(ledger::totals_in(&mut tx, None).await?);
         for zone in list_zones_in(&mut tx).await? {
             let Some(&n) = stale_ids.get(&zone.id) else { continue };
-            let versions: Vec<(i64, String)> =
-                sqlx::query_as("SELECT id, state FROM case_versions WHERE zone_id = ? ORDER BY version")
-                    .bind(zone.id)
-                    .fetch_all(&mut *tx)
-                    .await?;
-            let pick =
-                versions.iter().find(|(_, s)| s == CaseState::Approved.as_str()).or(versions.last()).map(|(id, _)| *id);
-            let case = match pick {
-                Some(id) => Some(case_full_in(&mut tx, id).await?.parts()),
-                None => None,
-            };
-            let data = ZoneData {
-                scores: scores.get(&zone.id).cloned().unwrap_or_default(),
-                ledger: totals.remove(&zone.id).unwrap_or_default(),
-                zone,
-                case,
-            };
-            stale.push((n, data));
+            let (scores, ledger) = (scores.remove(&zone.id), totals.remove(&zone.id));
+            stale.push((n, zone_data(&mut tx, zone, scores, ledger).await?));
+        }
+    } else {
+        for (&id, &n) in &stale_ids {
+            let zone = get_zone_in(&mut tx, id).await?;
+            let scores = readiness::scores_in(&mut tx, Some(id)).await?.remove(&id);
+            let ledger = totals_by_zone(ledger::totals_in(&mut tx, Some(id)).await?).remove(&id);
+            stale.push((n, zone_data(&mut tx, zone, scores, ledger).await?));
         }
     }
     tx.commit().await?;
     Ok(Snapshot { site, counters, stale })
+}
+
+/// Group `ledger_totals` rows by zone: driver amounts and the latest booked month.
+fn totals_by_zone(rows: Vec<(i64, String, Decimal, Month)>) -> HashMap<i64, LedgerTotals> {
+    let mut totals: HashMap<i64, LedgerTotals> = HashMap::new();
+    for (zone, item, amount, last) in rows {
+        let t = totals.entry(zone).or_default();
+        t.latest = Some(t.latest.map_or(last, |l| l.max(last)));
+        if let Some(id) = item.strip_prefix("driver:").and_then(|d| d.parse::<i64>().ok()) {
+            t.drivers.insert(id, amount);
+        }
+    }
+    totals
+}
+
+/// A zone with the case its figures come from: the approved baseline, or else the newest version.
+async fn zone_data(
+    conn: &mut SqliteConnection,
+    zone: Zone,
+    scores: Option<HashMap<i64, u8>>,
+    ledger: Option<LedgerTotals>,
+) -> DbResult<ZoneData> {
+    let versions: Vec<(i64, String)> =
+        sqlx::query_as("SELECT id, state FROM case_versions WHERE zone_id = ? ORDER BY version")
+            .bind(zone.id)
+            .fetch_all(&mut *conn)
+            .await?;
+    let pick = versions.iter().find(|(_, s)| s == CaseState::Approved.as_str()).or(versions.last()).map(|(id, _)| *id);
+    let case = match pick {
+        Some(id) => Some(case_full_in(conn, id).await?.parts()),
+        None => None,
+    };
+    Ok(ZoneData { scores: scores.unwrap_or_default(), ledger: ledger.unwrap_or_default(), zone, case })
 }

@@ -39,9 +39,20 @@ pub async fn set_weights(conn: &mut SqliteConnection, weights: &[(i64, u8)], act
     Ok(())
 }
 
-/// Scores of every zone, in the caller's transaction: zone id -> (criterion id -> score).
-pub(super) async fn all_scores_in(conn: &mut SqliteConnection) -> DbResult<HashMap<i64, HashMap<i64, u8>>> {
-    let rows = sqlx::query("SELECT zone_id, criterion_id, score FROM readiness_scores").fetch_all(conn).await?;
+/// Scores of every zone, or of one, in the caller's transaction: zone id -> (criterion id -> score).
+pub(super) async fn scores_in(
+    conn: &mut SqliteConnection,
+    zone: Option<i64>,
+) -> DbResult<HashMap<i64, HashMap<i64, u8>>> {
+    let rows = match zone {
+        None => sqlx::query("SELECT zone_id, criterion_id, score FROM readiness_scores").fetch_all(conn).await?,
+        Some(id) => {
+            sqlx::query("SELECT zone_id, criterion_id, score FROM readiness_scores WHERE zone_id = ?")
+                .bind(id)
+                .fetch_all(conn)
+                .await?
+        }
+    };
     let mut out: HashMap<i64, HashMap<i64, u8>> = HashMap::new();
     for r in rows {
         let score = u8::try_from(r.try_get::<i64, _>("score")?).unwrap_or(0);

@@ -43,7 +43,12 @@ pub(super) async fn list_zones_in(conn: &mut SqliteConnection) -> DbResult<Vec<Z
 
 /// One zone.
 pub async fn get_zone(pool: &SqlitePool, id: i64) -> DbResult<Zone> {
-    let row = sqlx::query(select_zone!("FROM zones WHERE id = ?")).bind(id).fetch_optional(pool).await?;
+    get_zone_in(&mut *pool.acquire().await?, id).await
+}
+
+/// [`get_zone`] inside the caller's transaction.
+pub(super) async fn get_zone_in(conn: &mut SqliteConnection, id: i64) -> DbResult<Zone> {
+    let row = sqlx::query(select_zone!("FROM zones WHERE id = ?")).bind(id).fetch_optional(conn).await?;
     row.as_ref().map(zone_from).transpose()?.ok_or(DbError::NotFound("zone"))
 }
 

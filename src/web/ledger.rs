@@ -493,7 +493,7 @@ fn csv_of(entries: &[LedgerEntry], zone_codes: &std::collections::HashMap<i64, S
     String::from_utf8(bytes).map_err(|e| AppError::Internal(e.into()))
 }
 
-pub(super) fn csv_response(name: &str, body: String) -> Response {
+pub(super) fn csv_response(name: &str, body: impl IntoResponse) -> Response {
     (
         [
             (header::CONTENT_TYPE, "text/csv; charset=utf-8".to_string()),

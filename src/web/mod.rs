@@ -2,6 +2,7 @@
 //! one file per area.
 
 pub mod admin;
+mod answers;
 mod api;
 pub mod auth;
 mod cases;
@@ -67,6 +68,8 @@ pub struct AppState {
     pub secure_cookies: bool,
     /// Derived figures per zone, recomputed when a zone changes.
     pub figures: Arc<figures::FigureCache>,
+    /// Rendered portfolio answers, recomputed when the database has changed.
+    pub answers: Arc<answers::AnswerCache>,
     permissions: Arc<HashMap<(Method, String), Permission>>,
 }
 
@@ -80,6 +83,7 @@ impl AppState {
             throttle: Arc::default(),
             secure_cookies,
             figures: Arc::default(),
+            answers: Arc::default(),
             permissions: Arc::new(permissions),
         }
     }

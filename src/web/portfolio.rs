@@ -11,13 +11,13 @@ use crate::domain::{
     SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of,
 };
 use askama::Template;
-use axum::Json;
 use axum::extract::{Query, State};
-use axum::http::StatusCode;
+use axum::http::{StatusCode, header};
 use axum::response::{Html, IntoResponse, Response};
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
-use serde_json::{Value, json};
+use serde::Serialize;
+use serde_json::json;
 
 /// Compute the portfolio for a valid query.
 async fn compute(state: &AppState, params: PortfolioParams) -> Result<(SiteSettings, Portfolio), AppError> {
@@ -257,11 +257,20 @@ struct PortfolioPage {
     basis: ValueBasis,
     seed: u64,
     trials: usize,
+    /// The rendered [`PortfolioFigures`], shared by every reader of this query.
+    figures: Option<super::answers::Answer>,
+    print_view: bool,
+}
+
+/// The computed part of the page: the choice, the charts and the table.
+#[derive(Template)]
+#[template(path = "portfolio/_figures.html")]
+struct PortfolioFigures {
+    basis: ValueBasis,
     rows: Vec<RowView>,
     charts: Option<Charts>,
     choice: Option<ChoiceView>,
     query: String,
-    print_view: bool,
 }
 
 /// The query string of the current settings, for the CSV and print links.
@@ -290,10 +299,10 @@ pub async fn page(
         Ok(p) => (Some(p), FieldErrors::default()),
         Err(e) => (None, e),
     };
+    let query = query_string(&q);
     let mut page = PortfolioPage {
         nav: Nav::from(&me),
         site: db::get_site(&state.pool).await?,
-        query: query_string(&q),
         form: q,
         errors,
         ranks: RankBy::ALL,
@@ -302,9 +311,7 @@ pub async fn page(
         basis: ValueBasis::Npv,
         seed: crate::domain::DEFAULT_SEED,
         trials: 0,
-        rows: Vec::new(),
-        charts: None,
-        choice: None,
+        figures: None,
         print_view: pq.view == "print",
     };
     let Some(params) = params else {
@@ -314,17 +321,35 @@ pub async fn page(
     page.basis = params.basis;
     page.seed = params.trials.seed;
     page.trials = params.trials.count;
-    let (site, portfolio) = compute(&state, params).await?;
-    page.charts = Some(charts(&portfolio, &site.currency));
-    page.choice = portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows));
-    page.rows = portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect();
+    let figures = state
+        .answers
+        .get(&state.pool, format!("page?{query}"), || async {
+            let basis = params.basis;
+            let (site, portfolio) = compute(&state, params).await?;
+            let figures = PortfolioFigures {
+                basis,
+                charts: Some(charts(&portfolio, &site.currency)),
+                choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
+                rows: portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
+                query,
+            };
+            Ok(figures.render()?)
+        })
+        .await?;
+    page.figures = Some(figures);
     Ok(Html(page.render()?).into_response())
 }
 
 /// GET /portfolio.csv: the table as the page shows it, one row per zone.
 pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, AppError> {
     let params = PortfolioParams::parse(&q)?;
-    let (site, portfolio) = compute(&state, params).await?;
+    let key = format!("csv?{}", query_string(&q));
+    let body = state.answers.get(&state.pool, key, || csv_text(&state, params)).await?;
+    Ok(super::ledger::csv_response("portfolio.csv", body.body()))
+}
+
+async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
+    let (site, portfolio) = compute(state, params).await?;
     let mut w = csv::Writer::from_writer(Vec::new());
     let cur = &site.currency;
     let header = [
@@ -354,90 +379,131 @@ pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
     w.write_record(&header).map_err(internal)?;
     for (i, r) in portfolio.rows.iter().enumerate() {
         let j = row_json(i + 1, r);
-        let s = |k: &str| match &j[k] {
-            Value::Null => String::new(),
-            Value::String(s) => s.clone(),
-            v => v.to_string(),
-        };
+        let text = |v: &Option<String>| v.clone().unwrap_or_default();
         let record = [
-            s("rank"),
-            s("code"),
-            s("name"),
-            s("status"),
-            s("standing"),
-            s("in_pi_order_set"),
-            j["case"]["label"].as_str().unwrap_or_default().to_string(),
-            s("investment"),
-            s("npv"),
-            s("risk_adjusted_npv"),
-            s("calibrated_npv"),
-            s("irr"),
-            s("payback_months"),
-            s("profitability_index"),
-            s("probability_npv_below_zero"),
-            s("p10_npv"),
-            s("p50_npv"),
-            s("p90_npv"),
-            s("realization_to_date"),
-            j["readiness"]["score"].as_f64().map(|v| format!("{v:.2}")).unwrap_or_default(),
-            s("problem"),
+            j.rank.to_string(),
+            j.code.to_string(),
+            j.name.to_string(),
+            j.status.to_string(),
+            j.standing.to_string(),
+            j.in_pi_order_set.to_string(),
+            j.case.map(|c| c.label).unwrap_or_default(),
+            text(&j.investment),
+            text(&j.npv),
+            text(&j.risk_adjusted_npv),
+            text(&j.calibrated_npv),
+            text(&j.irr),
+            text(&j.payback_months),
+            text(&j.profitability_index),
+            text(&j.probability_npv_below_zero),
+            text(&j.p10_npv),
+            text(&j.p50_npv),
+            text(&j.p90_npv),
+            text(&j.realization_to_date),
+            j.readiness.map(|x| format!("{:.2}", x.score)).unwrap_or_default(),
+            j.problem.unwrap_or_default().to_string(),
         ];
         w.write_record(&record).map_err(internal)?;
     }
     let bytes = w.into_inner().map_err(|e| AppError::Internal(anyhow::anyhow!("csv: {e}")))?;
-    let body = String::from_utf8(bytes).map_err(|e| AppError::Internal(e.into()))?;
-    Ok(super::ledger::csv_response("portfolio.csv", body))
+    String::from_utf8(bytes).map_err(|e| AppError::Internal(e.into()))
 }
 
-fn opt_money(d: Option<Decimal>) -> Value {
-    d.map_or(Value::Null, |d| Value::String(money_text(d)))
+/// The case a row's figures come from.
+#[derive(Serialize)]
+struct CaseJson {
+    id: i64,
+    version: u32,
+    label: String,
+    baseline: bool,
 }
 
-fn opt_rate(r: Option<f64>) -> Value {
-    r.map_or(Value::Null, |r| Value::String(rate_text(r)))
+/// A zone's weighted readiness.
+#[derive(Serialize)]
+struct ReadinessJson {
+    score: f64,
+    scored: usize,
+    of: usize,
 }
 
-/// One row as JSON: money and rates as decimal strings, probabilities as strings too.
-fn row_json(rank: usize, r: &PortfolioRow) -> Value {
+/// One row of the API and the CSV: money and rates as decimal strings, probabilities too.
+/// Serialized straight from this struct (no intermediate JSON tree: 1,000 rows per answer).
+#[derive(Serialize)]
+struct RowJson<'a> {
+    rank: usize,
+    zone_id: i64,
+    code: &'a str,
+    name: &'a str,
+    status: &'static str,
+    standing: &'static str,
+    in_pi_order_set: bool,
+    case: Option<CaseJson>,
+    investment: Option<String>,
+    npv: Option<String>,
+    risk_adjusted_npv: Option<String>,
+    calibrated_npv: Option<String>,
+    irr: Option<String>,
+    payback_months: Option<String>,
+    profitability_index: Option<String>,
+    probability_npv_below_zero: Option<String>,
+    mean_npv: Option<String>,
+    p10_npv: Option<String>,
+    p50_npv: Option<String>,
+    p90_npv: Option<String>,
+    realization_to_date: Option<String>,
+    readiness: Option<ReadinessJson>,
+    problem: Option<&'a str>,
+}
+
+fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
     let f = r.figures();
     let m = f.map(|f| &f.metrics);
     let u = f.map(|f| &f.simulation);
     let sim = |g: fn(&crate::finance::montecarlo::Simulation) -> f64| {
-        opt_money(u.and_then(|u| Decimal::from_f64_retain(g(u))).map(|d| d.round_dp(2)))
+        u.and_then(|u| Decimal::from_f64_retain(g(u))).map(|d| money_text(d.round_dp(2)))
     };
-    json!({
-        "rank": rank,
-        "zone_id": r.zone().id,
-        "code": r.zone().code,
-        "name": r.zone().name,
-        "status": r.zone().status.as_str(),
-        "standing": r.standing.label(),
-        "in_pi_order_set": r.in_greedy,
-        "case": r.base.case.as_ref().map(|(id, v, label, baseline)| json!({
-            "id": id, "version": v, "label": format!("v{v} {label}"), "baseline": baseline
-        })),
-        "investment": opt_money(r.investment()),
-        "npv": opt_money(r.npv()),
-        "risk_adjusted_npv": opt_money(r.risk_adjusted),
-        "calibrated_npv": opt_money(r.calibrated),
-        "irr": opt_rate(m.and_then(|m| m.irr_annual)),
-        "payback_months": opt_money(m.and_then(|m| m.payback_months.as_ref()).map(|p| p.periods)),
-        "profitability_index": opt_money(m.and_then(|m| m.profitability_index)),
-        "probability_npv_below_zero": opt_rate(u.map(|u| u.prob_negative)),
-        "mean_npv": sim(|s| s.mean),
-        "p10_npv": sim(|s| s.p10),
-        "p50_npv": sim(|s| s.p50),
-        "p90_npv": sim(|s| s.p90),
-        "realization_to_date": opt_rate(r.base.realization),
-        "readiness": r.readiness.map(|x| json!({ "score": x.score, "scored": x.rated, "of": x.of })),
-        "problem": r.problem(),
-    })
+    RowJson {
+        rank,
+        zone_id: r.zone().id,
+        code: &r.zone().code,
+        name: &r.zone().name,
+        status: r.zone().status.as_str(),
+        standing: r.standing.label(),
+        in_pi_order_set: r.in_greedy,
+        case: r.base.case.as_ref().map(|(id, v, label, baseline)| CaseJson {
+            id: *id,
+            version: *v,
+            label: format!("v{v} {label}"),
+            baseline: *baseline,
+        }),
+        investment: r.investment().map(money_text),
+        npv: r.npv().map(money_text),
+        risk_adjusted_npv: r.risk_adjusted.map(money_text),
+        calibrated_npv: r.calibrated.map(money_text),
+        irr: m.and_then(|m| m.irr_annual).map(rate_text),
+        payback_months: m.and_then(|m| m.payback_months.as_ref()).map(|p| money_text(p.periods)),
+        profitability_index: m.and_then(|m| m.profitability_index).map(money_text),
+        probability_npv_below_zero: u.map(|u| rate_text(u.prob_negative)),
+        mean_npv: sim(|s| s.mean),
+        p10_npv: sim(|s| s.p10),
+        p50_npv: sim(|s| s.p50),
+        p90_npv: sim(|s| s.p90),
+        realization_to_date: r.base.realization.map(rate_text),
+        readiness: r.readiness.map(|x| ReadinessJson { score: x.score, scored: x.rated, of: x.of }),
+        problem: r.problem(),
+    }
 }
 
 /// GET /api/v1/portfolio?budget=&rank=&basis=&min_readiness=&seed=
-pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Json<Value>, ApiError> {
+pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, ApiError> {
     let params = PortfolioParams::parse(&q).map_err(AppError::from)?;
-    let (site, p) = compute(&state, params).await?;
+    let key = format!("api?{}", query_string(&q));
+    let body = state.answers.get(&state.pool, key, || api_json(&state, params)).await?;
+    Ok(([(header::CONTENT_TYPE, "application/json")], body.body()).into_response())
+}
+
+async fn api_json(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
+    let (site, p) = compute(state, params).await?;
     let choice = p.choice.as_ref().map(|c| {
         let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
             p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()
@@ -458,7 +524,7 @@ pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
             "proven_optimal": c.proven,
         })
     });
-    Ok(Json(json!({
+    let answer = json!({
         "currency": site.currency,
         "rank": p.params.rank.as_str(),
         "basis": p.params.basis.as_str(),
@@ -467,5 +533,6 @@ pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
         "trials": p.params.trials.count,
         "choice": choice,
         "zones": p.rows.iter().enumerate().map(|(i, r)| row_json(i + 1, r)).collect::<Vec<_>>(),
-    })))
+    });
+    serde_json::to_string(&answer).map_err(|e| AppError::Internal(e.into()))
 }

@@ -1,0 +1,86 @@
+//! Rendered portfolio answers (the page's figures, the CSV, the API's JSON), shared by
+//! concurrent readers.
+//!
+//! # Invalidation
+//! An answer is stored with the database's [`db::generation`] read just before it was
+//! computed; a request reads the generation first and takes a stored answer only if it is at
+//! least that new, so a reader always sees every change committed before its request began.
+//! One computation per answer runs at a time: readers arriving meanwhile wait for it and then
+//! either take its result or, if something committed after it started, compute the next one
+//! for everyone queued behind them. Under a stream of bookings each computation thus serves
+//! all the reads that arrived while the previous one ran.
+
+use super::AppError;
+use crate::db;
+use sqlx::SqlitePool;
+use std::collections::HashMap;
+use std::future::Future;
+use std::sync::{Arc, Mutex, PoisonError};
+
+/// A stored answer: shared text, sent as a response body without copying.
+#[derive(Clone)]
+pub struct Answer(Arc<str>);
+
+impl Answer {
+    /// The text as a response body.
+    pub fn body(&self) -> axum::body::Body {
+        axum::body::Body::from(axum::body::Bytes::from_owner(self.clone()))
+    }
+}
+
+impl AsRef<[u8]> for Answer {
+    fn as_ref(&self) -> &[u8] {
+        self.0.as_bytes()
+    }
+}
+
+impl std::fmt::Display for Answer {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+/// One answer: the generation it was computed at, and the answer.
+type Slot = Arc<tokio::sync::Mutex<Option<(i64, Answer)>>>;
+
+/// More distinct queries than this and idle answers are dropped.
+const MAX_ANSWERS: usize = 64;
+
+/// Query text -> its latest answer.
+#[derive(Default)]
+pub struct AnswerCache {
+    slots: Mutex<HashMap<String, Slot>>,
+}
+
+impl AnswerCache {
+    /// The answer for `key`, computed by `render` unless one at least as new as the database
+    /// is stored.
+    pub async fn get<F, Fut>(&self, pool: &SqlitePool, key: String, render: F) -> Result<Answer, AppError>
+    where
+        F: FnOnce() -> Fut,
+        Fut: Future<Output = Result<String, AppError>>,
+    {
+        let asked_at = db::generation(pool).await?;
+        let slot = self.slot(key);
+        let mut answer = slot.lock().await;
+        if let Some((generation, text)) = answer.as_ref()
+            && *generation >= asked_at
+        {
+            return Ok(text.clone());
+        }
+        // Read again: whatever committed while this request waited is in the new answer.
+        let generation = db::generation(pool).await?;
+        let text = Answer(render().await?.into());
+        *answer = Some((generation, text.clone()));
+        Ok(text)
+    }
+
+    fn slot(&self, key: String) -> Slot {
+        // A panic while holding the lock leaves a usable map: answers carry their generation.
+        let mut slots = self.slots.lock().unwrap_or_else(PoisonError::into_inner);
+        if slots.len() >= MAX_ANSWERS && !slots.contains_key(&key) {
+            slots.retain(|_, slot| Arc::strong_count(slot) > 1);
+        }
+        slots.entry(key).or_default().clone()
+    }
+}
