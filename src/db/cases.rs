@@ -237,24 +237,6 @@ pub async fn baseline_of(pool: &SqlitePool, zone_id: i64) -> DbResult<Option<Cas
     }
 }
 
-/// The id of the driver (`driver = true`) or cost item with this label in the zone's approved
-/// baseline; scenario files name ledger items by label.
-pub async fn baseline_item_by_label(
-    conn: &mut SqliteConnection,
-    zone_id: i64,
-    driver: bool,
-    label: &str,
-) -> DbResult<Option<i64>> {
-    let sql = if driver {
-        "SELECT d.id FROM benefit_drivers d JOIN case_versions c ON c.id = d.case_id
-         WHERE c.zone_id = ? AND c.state = 'approved' AND d.label = ? ORDER BY d.id LIMIT 1"
-    } else {
-        "SELECT i.id FROM cost_items i JOIN case_versions c ON c.id = i.case_id
-         WHERE c.zone_id = ? AND c.state = 'approved' AND i.label = ? ORDER BY i.id LIMIT 1"
-    };
-    Ok(sqlx::query_scalar(sql).bind(zone_id).bind(label).fetch_optional(conn).await?)
-}
-
 /// Submit a draft for approval.
 pub async fn submit_case(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
     ensure_editable(conn, case_id).await?;

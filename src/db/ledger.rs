@@ -1,10 +1,10 @@
 //! The ledger: append-only bookings against a zone's approved baseline.
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
-use crate::domain::{Booking, EntryKind, FieldErrors, LedgerEntry, Measurement, Month};
+use crate::domain::{Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry};
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
-use sqlx::{Row, SqliteConnection, SqlitePool};
+use sqlx::{QueryBuilder, Row, Sqlite, SqliteConnection, SqlitePool};
 
 macro_rules! select_entry {
     ($rest:literal) => {
@@ -68,31 +68,44 @@ async fn entry_in(conn: &mut SqliteConnection, id: i64) -> DbResult<Option<Ledge
     row.as_ref().map(entry_from).transpose()
 }
 
-/// The baseline a booking is measured against: case id, start month and horizon.
-struct Baseline {
-    case_id: i64,
-    start: Month,
-    horizon: u32,
-}
-
-async fn baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<Baseline> {
-    let zone: Option<i64> =
-        sqlx::query_scalar("SELECT id FROM zones WHERE id = ?").bind(zone_id).fetch_optional(&mut *conn).await?;
-    zone.ok_or(DbError::NotFound("zone"))?;
+/// The zone's approved baseline with its items, to check bookings against (two queries).
+pub async fn booking_baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<BookingBaseline> {
     let row = sqlx::query(
-        "SELECT id, start_month, horizon_months FROM case_versions WHERE zone_id = ? AND state = 'approved'",
+        "SELECT c.id, c.start_month, c.horizon_months
+         FROM zones z LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved' WHERE z.id = ?",
     )
     .bind(zone_id)
-    .fetch_optional(conn)
+    .fetch_optional(&mut *conn)
     .await?
-    .ok_or_else(|| {
-        DbError::Conflict("the zone has no approved business case to measure against: approve one first".into())
-    })?;
-    Ok(Baseline {
-        case_id: row.try_get("id")?,
+    .ok_or(DbError::NotFound("zone"))?;
+    let Some(case_id) = row.try_get::<Option<i64>, _>("id")? else {
+        return Err(DbError::Conflict(
+            "the zone has no approved business case to measure against: approve one first".into(),
+        ));
+    };
+    let mut baseline = BookingBaseline {
+        case_id,
         start: parsed("start_month", row.try_get("start_month")?, Month::parse)?,
         horizon: count("horizon_months", row.try_get("horizon_months")?)?,
-    })
+        drivers: Vec::new(),
+        costs: Vec::new(),
+    };
+    let items = sqlx::query(
+        "SELECT 'driver' AS item, id, label, unit_value FROM benefit_drivers WHERE case_id = ?
+         UNION ALL SELECT 'cost', id, label, NULL FROM cost_items WHERE case_id = ? ORDER BY 1, 2",
+    )
+    .bind(case_id)
+    .bind(case_id)
+    .fetch_all(conn)
+    .await?;
+    for r in items {
+        let (id, label): (i64, String) = (r.try_get("id")?, r.try_get("label")?);
+        match r.try_get::<Option<String>, _>("unit_value")? {
+            Some(v) => baseline.drivers.push((id, label, decimal("unit_value", v)?)),
+            None => baseline.costs.push((id, label)),
+        }
+    }
+    Ok(baseline)
 }
 
 /// The outcome of a booking request.
@@ -101,6 +114,18 @@ pub enum Booked {
     New(LedgerEntry),
     /// The idempotency key was seen before: the entry first booked with it.
     Replayed(LedgerEntry),
+}
+
+/// Who wrote a set of entries, and how they relate to others.
+pub struct Tag<'a> {
+    /// The user booking.
+    pub actor: &'a str,
+    /// Makes a retried request book once (single entries only).
+    pub key: Option<&'a str>,
+    /// The CSV import the entries came from.
+    pub import_id: Option<i64>,
+    /// The entry a reversal reverses.
+    pub reverses_id: Option<i64>,
 }
 
 /// Book one entry in the caller's transaction. Checks against the baseline are reported as
@@ -113,7 +138,6 @@ pub async fn book(
     current_month: Month,
     actor: &str,
     key: Option<&str>,
-    import_id: Option<i64>,
 ) -> DbResult<Booked> {
     if let Some(key) = key {
         let existing: Option<i64> = sqlx::query_scalar("SELECT id FROM ledger_entries WHERE idempotency_key = ?")
@@ -124,153 +148,99 @@ pub async fn book(
             return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
         }
     }
-    let base = baseline(conn, zone_id).await?;
-    let mut e = FieldErrors::default();
-    let last = base.start.plus(base.horizon - 1);
-    if b.period < base.start || b.period > last {
-        e.push("period", format!("a month of the baseline's horizon: {} to {last}", base.start));
-    } else if b.period > current_month {
-        e.push(
-            "period",
-            format!("{} is in the future; the latest month that can be booked is {current_month}", b.period),
-        );
-    }
-    let (driver_id, cost_id, unit_value) = match b.kind {
-        EntryKind::Saving => {
-            let v: Option<String> =
-                sqlx::query_scalar("SELECT unit_value FROM benefit_drivers WHERE id = ? AND case_id = ?")
-                    .bind(b.item_id)
-                    .bind(base.case_id)
-                    .fetch_optional(&mut *conn)
-                    .await?;
-            if v.is_none() {
-                e.push("item", format!("driver {} is not a benefit driver of the zone's baseline", b.item_id));
-            }
-            (Some(b.item_id), None, v.map(|v| decimal("unit_value", v)).transpose()?)
-        }
-        EntryKind::Spending => {
-            let c: Option<i64> = sqlx::query_scalar("SELECT id FROM cost_items WHERE id = ? AND case_id = ?")
-                .bind(b.item_id)
-                .bind(base.case_id)
-                .fetch_optional(&mut *conn)
-                .await?;
-            if c.is_none() {
-                e.push("item", format!("cost item {} is not a cost item of the zone's baseline", b.item_id));
-            }
-            (None, Some(b.item_id), None)
-        }
-    };
-    if !e.is_empty() {
-        return Err(DbError::Invalid(e));
-    }
-    let (quantity, amount, inputs) = match &b.measurement {
-        Measurement::Direct { quantity } => {
-            (Some(*quantity), *quantity * unit_value.unwrap_or_default(), [None, None, None])
-        }
-        Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
-            let q = crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
-                .map_err(|err| DbError::Invalid(FieldErrors::one("baseline_intensity", err.to_string())))?;
-            (
-                Some(q),
-                q * unit_value.unwrap_or_default(),
-                [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)],
-            )
-        }
-        Measurement::Spend { amount } => (None, -*amount, [None, None, None]),
-    };
-    let id = insert_row(
-        conn,
-        &Row_ {
-            zone_id,
-            case_id: base.case_id,
-            kind: b.kind,
-            driver_id,
-            cost_id,
-            period: b.period,
-            method: b.measurement.method(),
-            quantity,
-            unit_value,
-            amount,
-            inputs,
-            evidence: &b.evidence,
-            reverses_id: None,
-            key,
-            import_id,
-            actor,
-        },
-    )
-    .await?;
-    entry_in(conn, id).await?.map(Booked::New).ok_or(DbError::NotFound("ledger entry"))
+    let entry = booking_baseline(conn, zone_id).await?.check(b, current_month).map_err(DbError::Invalid)?;
+    let tag = Tag { actor, key, import_id: None, reverses_id: None };
+    Ok(Booked::New(insert_one(conn, zone_id, entry, &tag).await?))
 }
 
-/// Fields of a row to insert.
-struct Row_<'a> {
-    zone_id: i64,
-    case_id: i64,
-    kind: EntryKind,
-    driver_id: Option<i64>,
-    cost_id: Option<i64>,
-    period: Month,
-    method: &'a str,
-    quantity: Option<Decimal>,
-    unit_value: Option<Decimal>,
-    amount: Decimal,
-    inputs: [Option<Decimal>; 3],
-    evidence: &'a str,
-    reverses_id: Option<i64>,
-    key: Option<&'a str>,
-    import_id: Option<i64>,
-    actor: &'a str,
+/// Insert one checked entry with its totals; the stored entry is built from what was written.
+async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag: &Tag<'_>) -> DbResult<LedgerEntry> {
+    let at = now();
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &at).await?;
+    add_to_totals(conn, zone_id, std::slice::from_ref(&e)).await?;
+    let [baseline_intensity, reporting_volume, measured_consumption] = e.inputs.map(|d| d.map(|d| d.normalize()));
+    Ok(LedgerEntry {
+        id,
+        zone_id,
+        case_id: e.case_id,
+        kind: e.kind,
+        driver_id: e.driver_id,
+        cost_id: e.cost_id,
+        period: e.period,
+        method: e.method,
+        quantity: e.quantity.map(|d| d.normalize()),
+        unit_value: e.unit_value.map(|d| d.normalize()),
+        amount: e.amount.normalize(),
+        baseline_intensity,
+        reporting_volume,
+        measured_consumption,
+        evidence: e.evidence,
+        reverses_id: tag.reverses_id,
+        reversed_by: None,
+        booked_at: at,
+        booked_by: tag.actor.to_string(),
+    })
 }
 
-async fn insert_row(conn: &mut SqliteConnection, r: &Row_<'_>) -> DbResult<i64> {
-    let id = insert_entry(conn, r).await?;
-    let item = match (r.driver_id, r.cost_id) {
-        (Some(d), _) => format!("driver:{d}"),
-        (None, Some(c)) => format!("cost:{c}"),
-        (None, None) => return Ok(id),
-    };
-    add_to_totals(conn, r.zone_id, &item, r.amount, r.quantity.unwrap_or_default(), r.period).await?;
-    Ok(id)
-}
-
-/// Add one entry to its item's running totals (same transaction as the entry).
-async fn add_to_totals(
+/// Insert many checked entries of one zone in the caller's transaction (a CSV import, a
+/// scenario's ledger): several rows per statement, and each item's totals updated once.
+pub async fn insert_checked(
     conn: &mut SqliteConnection,
     zone_id: i64,
-    item: &str,
-    amount: Decimal,
-    quantity: Decimal,
-    period: Month,
+    entries: &[NewEntry],
+    tag: &Tag<'_>,
 ) -> DbResult<()> {
-    let row =
-        sqlx::query("SELECT amount, quantity, entries, last_period FROM ledger_totals WHERE zone_id = ? AND item = ?")
-            .bind(zone_id)
-            .bind(item)
-            .fetch_optional(&mut *conn)
-            .await?;
-    let (sum, qty, entries, last) = match row {
-        Some(r) => (
-            decimal("amount", r.try_get("amount")?)?,
-            decimal("quantity", r.try_get("quantity")?)?,
-            r.try_get::<i64, _>("entries")?,
-            parsed("last_period", r.try_get("last_period")?, Month::parse)?,
-        ),
-        None => (Decimal::ZERO, Decimal::ZERO, 0, period),
-    };
-    sqlx::query(
-        "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
-         ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
-             entries = excluded.entries, last_period = excluded.last_period",
-    )
-    .bind(zone_id)
-    .bind(item)
-    .bind((sum + amount).normalize().to_string())
-    .bind((qty + quantity).normalize().to_string())
-    .bind(entries + 1)
-    .bind(last.max(period).to_string())
-    .execute(conn)
-    .await?;
+    let at = now();
+    // 19 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
+    for chunk in entries.chunks(500) {
+        insert_rows(conn, zone_id, chunk, tag, &at).await?;
+    }
+    add_to_totals(conn, zone_id, entries).await
+}
+
+/// Add entries to their items' running totals (same transaction as the entries): one read and
+/// one write per item.
+async fn add_to_totals(conn: &mut SqliteConnection, zone_id: i64, entries: &[NewEntry]) -> DbResult<()> {
+    let mut sums: std::collections::BTreeMap<String, (Decimal, Decimal, i64, Month)> = Default::default();
+    for e in entries {
+        let Some(item) = e.item_key() else { continue };
+        let s = sums.entry(item).or_insert((Decimal::ZERO, Decimal::ZERO, 0, e.period));
+        s.0 += e.amount;
+        s.1 += e.quantity.unwrap_or_default();
+        s.2 += 1;
+        s.3 = s.3.max(e.period);
+    }
+    for (item, (amount, quantity, n, period)) in sums {
+        let row = sqlx::query(
+            "SELECT amount, quantity, entries, last_period FROM ledger_totals WHERE zone_id = ? AND item = ?",
+        )
+        .bind(zone_id)
+        .bind(&item)
+        .fetch_optional(&mut *conn)
+        .await?;
+        let (sum, qty, entries, last) = match row {
+            Some(r) => (
+                decimal("amount", r.try_get("amount")?)?,
+                decimal("quantity", r.try_get("quantity")?)?,
+                r.try_get::<i64, _>("entries")?,
+                parsed("last_period", r.try_get("last_period")?, Month::parse)?,
+            ),
+            None => (Decimal::ZERO, Decimal::ZERO, 0, period),
+        };
+        sqlx::query(
+            "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
+             ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
+                 entries = excluded.entries, last_period = excluded.last_period",
+        )
+        .bind(zone_id)
+        .bind(item)
+        .bind((sum + amount).normalize().to_string())
+        .bind((qty + quantity).normalize().to_string())
+        .bind(entries + n)
+        .bind(last.max(period).to_string())
+        .execute(&mut *conn)
+        .await?;
+    }
     Ok(())
 }
 
@@ -346,44 +316,52 @@ pub(super) async fn totals_in(
         .collect()
 }
 
-async fn insert_entry(conn: &mut SqliteConnection, r: &Row_<'_>) -> DbResult<i64> {
+/// Insert rows in one statement; returns the last row's id.
+async fn insert_rows(
+    conn: &mut SqliteConnection,
+    zone_id: i64,
+    rows: &[NewEntry],
+    tag: &Tag<'_>,
+    at: &str,
+) -> DbResult<i64> {
     let text = |d: Option<Decimal>| d.map(|d| d.normalize().to_string());
-    sqlx::query_scalar(
+    let mut q = QueryBuilder::<Sqlite>::new(
         "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, cost_id, period, method, quantity, unit_value, amount,
                                      baseline_intensity, reporting_volume, measured_consumption, evidence, reverses_id,
-                                     idempotency_key, import_id, booked_at, booked_by)
-         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
-    )
-    .bind(r.zone_id)
-    .bind(r.case_id)
-    .bind(r.kind.as_str())
-    .bind(r.driver_id)
-    .bind(r.cost_id)
-    .bind(r.period.to_string())
-    .bind(r.method)
-    .bind(text(r.quantity))
-    .bind(text(r.unit_value))
-    .bind(r.amount.normalize().to_string())
-    .bind(text(r.inputs[0]))
-    .bind(text(r.inputs[1]))
-    .bind(text(r.inputs[2]))
-    .bind(r.evidence)
-    .bind(r.reverses_id)
-    .bind(r.key)
-    .bind(r.import_id)
-    .bind(now())
-    .bind(r.actor)
-    .fetch_one(conn)
-    .await
-    .map_err(|e| match &e {
-        sqlx::Error::Database(db) if db.is_unique_violation() && r.reverses_id.is_some() => {
-            DbError::Conflict(format!("entry {} has already been reversed", r.reverses_id.unwrap_or_default()))
+                                     idempotency_key, import_id, booked_at, booked_by) ",
+    );
+    q.push_values(rows, |mut b, r| {
+        b.push_bind(zone_id)
+            .push_bind(r.case_id)
+            .push_bind(r.kind.as_str())
+            .push_bind(r.driver_id)
+            .push_bind(r.cost_id)
+            .push_bind(r.period.to_string())
+            .push_bind(r.method.clone())
+            .push_bind(text(r.quantity))
+            .push_bind(text(r.unit_value))
+            .push_bind(r.amount.normalize().to_string())
+            .push_bind(text(r.inputs[0]))
+            .push_bind(text(r.inputs[1]))
+            .push_bind(text(r.inputs[2]))
+            .push_bind(r.evidence.clone())
+            .push_bind(tag.reverses_id)
+            .push_bind(tag.key.map(str::to_string))
+            .push_bind(tag.import_id)
+            .push_bind(at.to_string())
+            .push_bind(tag.actor.to_string());
+    });
+    q.push(" RETURNING id");
+    let ids: Vec<i64> = q.build_query_scalar().fetch_all(conn).await.map_err(|e| match &e {
+        sqlx::Error::Database(db) if db.is_unique_violation() && tag.reverses_id.is_some() => {
+            DbError::Conflict(format!("entry {} has already been reversed", tag.reverses_id.unwrap_or_default()))
         }
         sqlx::Error::Database(db) if db.message().contains("cannot be reversed") => {
             DbError::Conflict("a reversing entry cannot be reversed: book a new entry instead".into())
         }
         _ => DbError::Sqlx(e),
-    })
+    })?;
+    ids.into_iter().max().ok_or(DbError::NotFound("ledger entry"))
 }
 
 /// Book the reversal of entry `id` (negated quantity and amount, same month and item), with
@@ -403,29 +381,20 @@ pub async fn reverse(
     if original.reverses_id.is_some() {
         return Err(DbError::Conflict("a reversing entry cannot be reversed: book a new entry instead".into()));
     }
-    let new_id = insert_row(
-        conn,
-        &Row_ {
-            zone_id: original.zone_id,
-            case_id: original.case_id,
-            kind: original.kind,
-            driver_id: original.driver_id,
-            cost_id: original.cost_id,
-            period: original.period,
-            method: &original.method,
-            quantity: original.quantity.map(|q| -q),
-            unit_value: original.unit_value,
-            amount: -original.amount,
-            inputs: [original.baseline_intensity, original.reporting_volume, original.measured_consumption],
-            evidence,
-            reverses_id: Some(id),
-            key: None,
-            import_id: None,
-            actor,
-        },
-    )
-    .await?;
-    entry_in(conn, new_id).await?.ok_or(DbError::NotFound("ledger entry"))
+    let entry = NewEntry {
+        case_id: original.case_id,
+        kind: original.kind,
+        driver_id: original.driver_id,
+        cost_id: original.cost_id,
+        period: original.period,
+        method: original.method,
+        quantity: original.quantity.map(|q| -q),
+        unit_value: original.unit_value,
+        amount: -original.amount,
+        inputs: [original.baseline_intensity, original.reporting_volume, original.measured_consumption],
+        evidence: evidence.to_string(),
+    };
+    insert_one(conn, zone_id, entry, &Tag { actor, key: None, import_id: None, reverses_id: Some(id) }).await
 }
 
 /// Record an imported file; the same content twice is refused.

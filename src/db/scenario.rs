@@ -1,6 +1,6 @@
 //! Loading a whole scenario file in one transaction.
 
-use super::{DbError, DbResult, baseline_item_by_label, begin_write, insert_case, insert_zone, ledger, put_site};
+use super::{DbError, DbResult, begin_write, insert_case, insert_zone, ledger, put_site};
 use crate::domain::{EntryKind, FieldErrors, Month, Scenario};
 use sqlx::{SqliteConnection, SqlitePool};
 
@@ -43,29 +43,36 @@ async fn load_zone_extras(
         scores.push((id, Some(*score)));
     }
     super::readiness::set_scores(conn, zone_id, &scores, actor).await?;
+    if z.ledger.is_empty() {
+        return Ok(0);
+    }
+    let baseline = ledger::booking_baseline(conn, zone_id).await.map_err(|err| match err {
+        DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one(format!("zones[{i}].ledger"), msg)),
+        other => other,
+    })?;
     let now = this_month();
+    let mut errors = FieldErrors::default();
+    let mut entries = Vec::with_capacity(z.ledger.len());
     for (j, entry) in z.ledger.iter().enumerate() {
         let prefix = format!("zones[{i}].ledger[{j}].");
-        let driver = entry.booking.kind == EntryKind::Saving;
-        let id = baseline_item_by_label(conn, zone_id, driver, &entry.item_label).await?.ok_or_else(|| {
-            let field = if driver { "driver" } else { "cost" };
-            DbError::Invalid(FieldErrors::one(
-                format!("{prefix}{field}"),
-                "no item of the approved case has this label",
-            ))
-        })?;
+        let saving = entry.booking.kind == EntryKind::Saving;
+        let Some(&id) = baseline.items_labelled(saving, &entry.item_label).first() else {
+            let field = if saving { "driver" } else { "cost" };
+            errors.push(format!("{prefix}{field}"), "no item of the approved case has this label");
+            continue;
+        };
         let mut booking = entry.booking.clone();
         booking.item_id = id;
-        ledger::book(conn, zone_id, &booking, now, actor, None, None).await.map_err(|err| match err {
-            DbError::Invalid(fe) => {
-                let mut e = FieldErrors::default();
-                e.extend_prefixed(&prefix, fe);
-                DbError::Invalid(e)
-            }
-            DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one(format!("{prefix}item"), msg)),
-            other => other,
-        })?;
+        match baseline.check(&booking, now) {
+            Ok(e) => entries.push(e),
+            Err(fe) => errors.extend_prefixed(&prefix, fe),
+        }
     }
+    if !errors.is_empty() {
+        return Err(DbError::Invalid(errors));
+    }
+    let tag = ledger::Tag { actor, key: None, import_id: None, reverses_id: None };
+    ledger::insert_checked(conn, zone_id, &entries, &tag).await?;
     Ok(z.ledger.len())
 }
 

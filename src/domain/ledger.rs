@@ -246,3 +246,124 @@ pub struct LedgerEntry {
     /// Who booked it.
     pub booked_by: String,
 }
+
+/// What bookings are checked against: the zone's approved baseline, its horizon and items.
+#[derive(Debug, Clone)]
+pub struct BookingBaseline {
+    /// The approved case version.
+    pub case_id: i64,
+    /// Its first month.
+    pub start: Month,
+    /// Its horizon in months.
+    pub horizon: u32,
+    /// Benefit drivers: id, label, unit value; by id.
+    pub drivers: Vec<(i64, String, Decimal)>,
+    /// Cost items: id, label; by id.
+    pub costs: Vec<(i64, String)>,
+}
+
+/// A booking checked against the baseline, with its amount: ready to store.
+#[derive(Debug, Clone)]
+pub struct NewEntry {
+    /// The baseline case version.
+    pub case_id: i64,
+    /// Saving or spending.
+    pub kind: EntryKind,
+    /// Driver (saving).
+    pub driver_id: Option<i64>,
+    /// Cost item (spending).
+    pub cost_id: Option<i64>,
+    /// Month booked.
+    pub period: Month,
+    /// `direct`, `normalized` or `spend`.
+    pub method: String,
+    /// Avoided quantity (savings).
+    pub quantity: Option<Decimal>,
+    /// Unit value frozen at booking (savings).
+    pub unit_value: Option<Decimal>,
+    /// Signed money flow.
+    pub amount: Decimal,
+    /// Normalized inputs: baseline intensity, reporting volume, measured consumption.
+    pub inputs: [Option<Decimal>; 3],
+    /// Evidence note.
+    pub evidence: String,
+}
+
+impl NewEntry {
+    /// The totals key of its item: `driver:<id>` or `cost:<id>`.
+    pub fn item_key(&self) -> Option<String> {
+        match (self.driver_id, self.cost_id) {
+            (Some(d), _) => Some(format!("driver:{d}")),
+            (None, Some(c)) => Some(format!("cost:{c}")),
+            (None, None) => None,
+        }
+    }
+}
+
+impl BookingBaseline {
+    /// Ids of the drivers (`saving`) or cost items with this exact label, in id order.
+    pub fn items_labelled(&self, saving: bool, label: &str) -> Vec<i64> {
+        if saving {
+            self.drivers.iter().filter(|(_, l, _)| l == label).map(|(id, _, _)| *id).collect()
+        } else {
+            self.costs.iter().filter(|(_, l)| l == label).map(|(id, _)| *id).collect()
+        }
+    }
+
+    /// Check a booking: its item must belong to the baseline, its month must lie inside the
+    /// horizon and not after `current_month`. Savings are valued at the driver's unit value.
+    pub fn check(&self, b: &Booking, current_month: Month) -> Result<NewEntry, FieldErrors> {
+        let mut e = FieldErrors::default();
+        let last = self.start.plus(self.horizon.saturating_sub(1));
+        if b.period < self.start || b.period > last {
+            e.push("period", format!("a month of the baseline's horizon: {} to {last}", self.start));
+        } else if b.period > current_month {
+            e.push(
+                "period",
+                format!("{} is in the future; the latest month that can be booked is {current_month}", b.period),
+            );
+        }
+        let (driver_id, cost_id, unit_value) = match b.kind {
+            EntryKind::Saving => {
+                let v = self.drivers.iter().find(|(id, _, _)| *id == b.item_id).map(|(_, _, v)| *v);
+                if v.is_none() {
+                    e.push("item", format!("driver {} is not a benefit driver of the zone's baseline", b.item_id));
+                }
+                (Some(b.item_id), None, v)
+            }
+            EntryKind::Spending => {
+                if !self.costs.iter().any(|(id, _)| *id == b.item_id) {
+                    e.push("item", format!("cost item {} is not a cost item of the zone's baseline", b.item_id));
+                }
+                (None, Some(b.item_id), None)
+            }
+        };
+        if !e.is_empty() {
+            return Err(e);
+        }
+        let value = unit_value.unwrap_or_default();
+        let (quantity, amount, inputs) = match &b.measurement {
+            Measurement::Direct { quantity } => (Some(*quantity), *quantity * value, [None, None, None]),
+            Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+                let q =
+                    crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
+                        .map_err(|err| FieldErrors::one("baseline_intensity", err.to_string()))?;
+                (Some(q), q * value, [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)])
+            }
+            Measurement::Spend { amount } => (None, -*amount, [None, None, None]),
+        };
+        Ok(NewEntry {
+            case_id: self.case_id,
+            kind: b.kind,
+            driver_id,
+            cost_id,
+            period: b.period,
+            method: b.measurement.method().to_string(),
+            quantity,
+            unit_value,
+            amount,
+            inputs,
+            evidence: b.evidence.clone(),
+        })
+    }
+}

@@ -17,9 +17,10 @@ mod uncertainty;
 mod zones;
 
 pub use error::{ApiError, AppError};
+pub use ledger::IMPORT_MAX_BYTES;
 
 use crate::auth::{Clock, Permission, Throttle};
-use axum::extract::{FromRequest, Request};
+use axum::extract::{DefaultBodyLimit, FromRequest, Request};
 use axum::http::{HeaderValue, Method, StatusCode, header};
 use axum::routing::{MethodRouter, get, post};
 use axum::{Form, Json, Router};
@@ -50,7 +51,7 @@ async fn overloaded(_: tower::BoxError) -> axum::response::Response {
     ))
 }
 
-/// Largest request body accepted (a scenario or CSV upload goes through the CLI instead).
+/// Largest request body accepted, except by the CSV import (a scenario goes through the CLI).
 pub const BODY_LIMIT_BYTES: usize = 2 * 1024 * 1024;
 /// A request taking longer than this is answered 408 and dropped.
 pub const REQUEST_TIMEOUT: Duration = Duration::from_secs(30);
@@ -98,11 +99,21 @@ pub struct Route {
     /// What the caller must hold.
     pub permission: Permission,
     handler: MethodRouter<AppState>,
+    /// Largest request body.
+    pub body_limit: usize,
+}
+
+impl Route {
+    /// Accept bodies up to `bytes` on this route.
+    fn body_limit(mut self, bytes: usize) -> Self {
+        self.body_limit = bytes;
+        self
+    }
 }
 
 /// A route of the table: nothing can be routed without naming its permission.
 fn route(method: Method, path: &'static str, permission: Permission, handler: MethodRouter<AppState>) -> Route {
-    Route { method, path, permission, handler }
+    Route { method, path, permission, handler, body_limit: BODY_LIMIT_BYTES }
 }
 
 /// Every route of the application with its permission: the router is built from this list,
@@ -137,7 +148,9 @@ pub fn routes() -> Vec<Route> {
         route(g.clone(), "/zones/{id}/ledger", Read, get(ledger::show)),
         route(p.clone(), "/zones/{id}/ledger", Ledger, post(ledger::book)),
         route(p.clone(), "/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::reverse)),
-        route(p.clone(), "/zones/{id}/ledger/import", Ledger, post(ledger::import)),
+        // The file plus room for the multipart framing.
+        route(p.clone(), "/zones/{id}/ledger/import", Ledger, post(ledger::import))
+            .body_limit(ledger::IMPORT_MAX_BYTES + 64 * 1024),
         route(g.clone(), "/zones/{id}/ledger.csv", Read, get(ledger::export_zone)),
         route(g.clone(), "/ledger.csv", Read, get(ledger::export_all)),
         route(g.clone(), "/portfolio", Read, get(portfolio::page)),
@@ -170,7 +183,8 @@ pub fn app(state: AppState) -> Router {
     let static_dir = concat!(env!("CARGO_MANIFEST_DIR"), "/static");
     let mut router = Router::new();
     for r in routes() {
-        router = router.route(r.path, r.handler);
+        // axum's extractors (form, JSON, multipart) stop reading at the route's limit with a 413.
+        router = router.route(r.path, r.handler.layer(DefaultBodyLimit::max(r.body_limit)));
     }
     router
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), auth::authorize))
@@ -192,7 +206,8 @@ pub fn app(state: AppState) -> Router {
         .layer(SetResponseHeaderLayer::if_not_present(header::REFERRER_POLICY, HeaderValue::from_static("same-origin")))
         .layer(SetResponseHeaderLayer::if_not_present(header::CACHE_CONTROL, HeaderValue::from_static("no-store")))
         .layer(CompressionLayer::new())
-        .layer(RequestBodyLimitLayer::new(BODY_LIMIT_BYTES))
+        // Above every route's own limit: refuses a declared oversized body before it is read.
+        .layer(RequestBodyLimitLayer::new(ledger::IMPORT_MAX_BYTES + 1024 * 1024))
         .layer(TimeoutLayer::with_status_code(StatusCode::REQUEST_TIMEOUT, REQUEST_TIMEOUT))
         .layer(
             tower::ServiceBuilder::new()

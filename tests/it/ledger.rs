@@ -154,6 +154,12 @@ async fn a_reversal_nets_to_exactly_zero_and_happens_once() {
     let entries = ledger["entries"].as_array().unwrap();
     assert_eq!(entries.len(), 3, "the history shows the original, the spend and the reversal");
     assert_eq!(entries[0]["reversed_by"], rev_id);
+    // The answers to the bookings are what was stored (built from the written row, not re-read).
+    let mut answered = first["entry"].clone();
+    answered["reversed_by"] = json!(rev_id);
+    assert_eq!(entries[0], answered);
+    assert_eq!(entries[1], s["entry"]);
+    assert_eq!(entries[2], rev.json()["entry"]);
 }
 
 #[tokio::test]
@@ -386,4 +392,39 @@ async fn backup_is_a_consistent_copy() {
     let ok: String = sqlx::query_scalar("PRAGMA integrity_check").fetch_one(&copy).await.unwrap();
     assert_eq!(ok, "ok");
     assert!(pilot_ledger::db::backup(&t.pool, &path).await.is_err(), "an existing file is not overwritten");
+}
+
+#[tokio::test]
+async fn a_large_import_is_booked_whole_with_its_totals() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "BIG-1").await;
+    let header =
+        "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence";
+    // 40,000 rows, about 2.6 MB: more than the 2 MiB other requests may carry.
+    let rows: Vec<String> = (0..40_000)
+        .map(|i| format!("2025-{:02},saving,Energy,direct,{},,,,,meter M1 row {i}", i % 12 + 1, i % 50))
+        .collect();
+    let csv = format!("{header}\n{}\n", rows.join("\n"));
+    assert!(csv.len() > 2 * 1024 * 1024);
+    let a = import(&t, z.id, "year.csv", &csv).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", &a.text[..a.text.len().min(400)]);
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 40_000);
+    // Quantities 0..49 repeat 800 times: 800 x 1,225 = 980,000 kWh, x 0.20 EUR/kWh = 196,000 EUR.
+    let (amount, quantity, entries): (String, String, i64) =
+        sqlx::query_as("SELECT amount, quantity, entries FROM ledger_totals WHERE zone_id = ? AND item = ?")
+            .bind(z.id)
+            .bind(format!("driver:{}", z.energy))
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+    assert_eq!((amount.as_str(), quantity.as_str(), entries), ("196000", "980000", 40_000));
+
+    // Beyond the import limit the upload is refused before anything is read.
+    let huge = format!("{header}\n{}", "2025-01,saving,Energy,direct,1,,,,,x\n".repeat(500_000));
+    assert!(huge.len() > pilot_ledger::web::IMPORT_MAX_BYTES + 64 * 1024);
+    let a = import(&t, z.id, "huge.csv", &huge).await;
+    assert_eq!(a.status, StatusCode::PAYLOAD_TOO_LARGE);
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 40_000);
 }
