@@ -21,7 +21,10 @@ pub use cases::{CaseFull, CaseVersion};
 use rust_decimal::Decimal;
 use sqlx::sqlite::{SqliteConnectOptions, SqliteJournalMode, SqlitePool, SqlitePoolOptions, SqliteSynchronous};
 use sqlx::{Sqlite, Transaction};
+use std::collections::HashMap;
+use std::path::PathBuf;
 use std::str::FromStr;
+use std::sync::{Arc, LazyLock, Mutex, PoisonError};
 use std::time::Duration;
 
 /// A database failure, classified where the query was made.
@@ -77,9 +80,45 @@ pub async fn migrate(pool: &SqlitePool) -> DbResult<()> {
     ledger::rebuild_totals_if_missing(pool).await
 }
 
+/// A write transaction holding this process's turn to write to its database file.
+pub struct WriteTx {
+    tx: Transaction<'static, Sqlite>,
+    _turn: tokio::sync::OwnedMutexGuard<()>,
+}
+
+impl std::ops::Deref for WriteTx {
+    type Target = sqlx::SqliteConnection;
+    fn deref(&self) -> &Self::Target {
+        &self.tx
+    }
+}
+
+impl std::ops::DerefMut for WriteTx {
+    fn deref_mut(&mut self) -> &mut Self::Target {
+        &mut self.tx
+    }
+}
+
+impl WriteTx {
+    /// Commit; dropping without it rolls back.
+    pub async fn commit(self) -> DbResult<()> {
+        Ok(self.tx.commit().await?)
+    }
+}
+
+/// The turn to write to the pool's database file. Writers of one process queue here in
+/// order instead of in SQLite's busy handler, which sleeps up to 100 ms between retries;
+/// other processes (the CLI) still meet the busy timeout.
+fn write_turn(pool: &SqlitePool) -> Arc<tokio::sync::Mutex<()>> {
+    static TURNS: LazyLock<Mutex<HashMap<PathBuf, Arc<tokio::sync::Mutex<()>>>>> = LazyLock::new(Default::default);
+    let file = pool.connect_options().get_filename().to_path_buf();
+    TURNS.lock().unwrap_or_else(PoisonError::into_inner).entry(file).or_default().clone()
+}
+
 /// Start a write transaction holding the write lock.
-pub async fn begin_write(pool: &SqlitePool) -> DbResult<Transaction<'static, Sqlite>> {
-    Ok(pool.begin_with("BEGIN IMMEDIATE").await?)
+pub async fn begin_write(pool: &SqlitePool) -> DbResult<WriteTx> {
+    let turn = write_turn(pool).lock_owned().await;
+    Ok(WriteTx { tx: pool.begin_with("BEGIN IMMEDIATE").await?, _turn: turn })
 }
 
 /// Write a consistent copy of the live database to `path` (SQLite's `VACUUM INTO`, which

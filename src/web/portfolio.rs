@@ -427,7 +427,6 @@ struct ReadinessJson {
 }
 
 /// One row of the API and the CSV: money and rates as decimal strings, probabilities too.
-/// Serialized straight from this struct (no intermediate JSON tree: 1,000 rows per answer).
 #[derive(Serialize)]
 struct RowJson<'a> {
     rank: usize,
@@ -502,6 +501,19 @@ pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
     Ok(([(header::CONTENT_TYPE, "application/json")], body.body()).into_response())
 }
 
+/// The API's answer, serialized straight from the rows (no intermediate JSON tree).
+#[derive(Serialize)]
+struct ApiAnswer<'a> {
+    currency: &'a str,
+    rank: &'static str,
+    basis: &'static str,
+    min_readiness: Option<String>,
+    seed: String,
+    trials: usize,
+    choice: Option<serde_json::Value>,
+    zones: Vec<RowJson<'a>>,
+}
+
 async fn api_json(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
     let (site, p) = compute(state, params).await?;
     let choice = p.choice.as_ref().map(|c| {
@@ -524,15 +536,15 @@ async fn api_json(state: &AppState, params: PortfolioParams) -> Result<String, A
             "proven_optimal": c.proven,
         })
     });
-    let answer = json!({
-        "currency": site.currency,
-        "rank": p.params.rank.as_str(),
-        "basis": p.params.basis.as_str(),
-        "min_readiness": p.params.min_readiness.map(money_text),
-        "seed": p.params.trials.seed.to_string(),
-        "trials": p.params.trials.count,
-        "choice": choice,
-        "zones": p.rows.iter().enumerate().map(|(i, r)| row_json(i + 1, r)).collect::<Vec<_>>(),
-    });
+    let answer = ApiAnswer {
+        currency: &site.currency,
+        rank: p.params.rank.as_str(),
+        basis: p.params.basis.as_str(),
+        min_readiness: p.params.min_readiness.map(money_text),
+        seed: p.params.trials.seed.to_string(),
+        trials: p.params.trials.count,
+        choice,
+        zones: p.rows.iter().enumerate().map(|(i, r)| row_json(i + 1, r)).collect(),
+    };
     serde_json::to_string(&answer).map_err(|e| AppError::Internal(e.into()))
 }
