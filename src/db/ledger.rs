@@ -79,9 +79,7 @@ pub async fn booking_baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbRe
     .await?
     .ok_or(DbError::NotFound("zone"))?;
     let Some(case_id) = row.try_get::<Option<i64>, _>("id")? else {
-        return Err(DbError::Conflict(
-            "the zone has no approved business case to measure against: approve one first".into(),
-        ));
+        return Err(no_baseline());
     };
     let mut baseline = BookingBaseline {
         case_id,
@@ -131,6 +129,9 @@ pub struct Tag<'a> {
 /// Book one entry in the caller's transaction. Checks against the baseline are reported as
 /// field errors: unknown driver or cost item, a month outside the horizon or in the future.
 /// `key` makes a retried request book once.
+///
+/// The hot path of the API: one query reads the replayed entry's id, the baseline, the item
+/// and its running totals; then the insert, the totals and (the caller's) audit row.
 pub async fn book(
     conn: &mut SqliteConnection,
     zone_id: i64,
@@ -139,18 +140,60 @@ pub async fn book(
     actor: &str,
     key: Option<&str>,
 ) -> DbResult<Booked> {
-    if let Some(key) = key {
-        let existing: Option<i64> = sqlx::query_scalar("SELECT id FROM ledger_entries WHERE idempotency_key = ?")
-            .bind(key)
-            .fetch_optional(&mut *conn)
-            .await?;
-        if let Some(id) = existing {
-            return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
-        }
+    let saving = b.kind == EntryKind::Saving;
+    let item = if saving { format!("driver:{}", b.item_id) } else { format!("cost:{}", b.item_id) };
+    let row = sqlx::query(
+        "SELECT (SELECT id FROM ledger_entries WHERE idempotency_key = ?) AS replay,
+                c.id AS case_id, c.start_month, c.horizon_months,
+                d.id AS driver_id, d.label AS driver_label, d.unit_value, k.id AS cost_id, k.label AS cost_label,
+                t.amount, t.quantity, t.entries, t.last_period
+         FROM zones z
+         LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved'
+         LEFT JOIN benefit_drivers d ON d.case_id = c.id AND d.id = ? AND ?
+         LEFT JOIN cost_items k ON k.case_id = c.id AND k.id = ? AND NOT ?
+         LEFT JOIN ledger_totals t ON t.zone_id = z.id AND t.item = ?
+         WHERE z.id = ?",
+    )
+    .bind(key)
+    .bind(b.item_id)
+    .bind(saving)
+    .bind(b.item_id)
+    .bind(saving)
+    .bind(&item)
+    .bind(zone_id)
+    .fetch_optional(&mut *conn)
+    .await?
+    .ok_or(DbError::NotFound("zone"))?;
+    if let Some(id) = row.try_get::<Option<i64>, _>("replay")? {
+        return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
     }
-    let entry = booking_baseline(conn, zone_id).await?.check(b, current_month).map_err(DbError::Invalid)?;
+    let Some(case_id) = row.try_get::<Option<i64>, _>("case_id")? else {
+        return Err(no_baseline());
+    };
+    let mut baseline = BookingBaseline {
+        case_id,
+        start: parsed("start_month", row.try_get("start_month")?, Month::parse)?,
+        horizon: count("horizon_months", row.try_get("horizon_months")?)?,
+        drivers: Vec::new(),
+        costs: Vec::new(),
+    };
+    if let Some(id) = row.try_get::<Option<i64>, _>("driver_id")? {
+        baseline.drivers.push((id, row.try_get("driver_label")?, decimal("unit_value", row.try_get("unit_value")?)?));
+    }
+    if let Some(id) = row.try_get::<Option<i64>, _>("cost_id")? {
+        baseline.costs.push((id, row.try_get("cost_label")?));
+    }
+    let e = baseline.check(b, current_month).map_err(DbError::Invalid)?;
     let tag = Tag { actor, key, import_id: None, reverses_id: None };
-    Ok(Booked::New(insert_one(conn, zone_id, entry, &tag).await?))
+    let at = now();
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at).await?;
+    let added = Totals { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period };
+    write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &added).await?;
+    Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
+}
+
+fn no_baseline() -> DbError {
+    DbError::Conflict("the zone has no approved business case to measure against: approve one first".into())
 }
 
 /// Insert one checked entry with its totals; the stored entry is built from what was written.
@@ -158,8 +201,13 @@ async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag:
     let at = now();
     let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &at).await?;
     add_to_totals(conn, zone_id, std::slice::from_ref(&e)).await?;
+    Ok(stored(id, zone_id, e, tag, at))
+}
+
+/// The entry as stored: what was written, normalized as it reads back.
+fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> LedgerEntry {
     let [baseline_intensity, reporting_volume, measured_consumption] = e.inputs.map(|d| d.map(|d| d.normalize()));
-    Ok(LedgerEntry {
+    LedgerEntry {
         id,
         zone_id,
         case_id: e.case_id,
@@ -179,7 +227,7 @@ async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag:
         reversed_by: None,
         booked_at: at,
         booked_by: tag.actor.to_string(),
-    })
+    }
 }
 
 /// Insert many checked entries of one zone in the caller's transaction (a CSV import, a
@@ -201,16 +249,13 @@ pub async fn insert_checked(
 /// Add entries to their items' running totals (same transaction as the entries): one read and
 /// one write per item.
 async fn add_to_totals(conn: &mut SqliteConnection, zone_id: i64, entries: &[NewEntry]) -> DbResult<()> {
-    let mut sums: std::collections::BTreeMap<String, (Decimal, Decimal, i64, Month)> = Default::default();
+    let mut sums: std::collections::BTreeMap<String, Totals> = Default::default();
     for e in entries {
         let Some(item) = e.item_key() else { continue };
-        let s = sums.entry(item).or_insert((Decimal::ZERO, Decimal::ZERO, 0, e.period));
-        s.0 += e.amount;
-        s.1 += e.quantity.unwrap_or_default();
-        s.2 += 1;
-        s.3 = s.3.max(e.period);
+        let s = sums.entry(item).or_insert(Totals::empty(e.period));
+        s.add(&Totals { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period });
     }
-    for (item, (amount, quantity, n, period)) in sums {
+    for (item, added) in sums {
         let row = sqlx::query(
             "SELECT amount, quantity, entries, last_period FROM ledger_totals WHERE zone_id = ? AND item = ?",
         )
@@ -218,29 +263,68 @@ async fn add_to_totals(conn: &mut SqliteConnection, zone_id: i64, entries: &[New
         .bind(&item)
         .fetch_optional(&mut *conn)
         .await?;
-        let (sum, qty, entries, last) = match row {
-            Some(r) => (
-                decimal("amount", r.try_get("amount")?)?,
-                decimal("quantity", r.try_get("quantity")?)?,
-                r.try_get::<i64, _>("entries")?,
-                parsed("last_period", r.try_get("last_period")?, Month::parse)?,
-            ),
-            None => (Decimal::ZERO, Decimal::ZERO, 0, period),
-        };
-        sqlx::query(
-            "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
-             ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
-                 entries = excluded.entries, last_period = excluded.last_period",
-        )
-        .bind(zone_id)
-        .bind(item)
-        .bind((sum + amount).normalize().to_string())
-        .bind((qty + quantity).normalize().to_string())
-        .bind(entries + n)
-        .bind(last.max(period).to_string())
-        .execute(&mut *conn)
-        .await?;
+        let before = row.as_ref().map(Totals::from_row).transpose()?.flatten();
+        write_totals(conn, zone_id, &item, before, &added).await?;
     }
+    Ok(())
+}
+
+/// One item's running totals.
+struct Totals {
+    amount: Decimal,
+    quantity: Decimal,
+    entries: i64,
+    last: Month,
+}
+
+impl Totals {
+    fn empty(period: Month) -> Self {
+        Self { amount: Decimal::ZERO, quantity: Decimal::ZERO, entries: 0, last: period }
+    }
+
+    fn add(&mut self, other: &Totals) {
+        self.amount += other.amount;
+        self.quantity += other.quantity;
+        self.entries += other.entries;
+        self.last = self.last.max(other.last);
+    }
+
+    /// The `amount, quantity, entries, last_period` columns of a row; `None` when they are
+    /// NULL (a LEFT JOIN that found no totals yet).
+    fn from_row(r: &SqliteRow) -> DbResult<Option<Self>> {
+        let Some(amount) = r.try_get::<Option<String>, _>("amount")? else { return Ok(None) };
+        Ok(Some(Self {
+            amount: decimal("amount", amount)?,
+            quantity: decimal("quantity", r.try_get("quantity")?)?,
+            entries: r.try_get("entries")?,
+            last: parsed("last_period", r.try_get("last_period")?, Month::parse)?,
+        }))
+    }
+}
+
+/// Store `before + added` as the item's totals.
+async fn write_totals(
+    conn: &mut SqliteConnection,
+    zone_id: i64,
+    item: &str,
+    before: Option<Totals>,
+    added: &Totals,
+) -> DbResult<()> {
+    let mut t = before.unwrap_or(Totals::empty(added.last));
+    t.add(added);
+    sqlx::query(
+        "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
+         ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
+             entries = excluded.entries, last_period = excluded.last_period",
+    )
+    .bind(zone_id)
+    .bind(item)
+    .bind(t.amount.normalize().to_string())
+    .bind(t.quantity.normalize().to_string())
+    .bind(t.entries)
+    .bind(t.last.to_string())
+    .execute(conn)
+    .await?;
     Ok(())
 }
 
