@@ -213,7 +213,7 @@ impl PortfolioParams {
 }
 
 /// A case's parts as the portfolio needs them (ids kept for the realized view).
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct CaseParts {
     /// Case version id.
     pub id: i64,
@@ -283,15 +283,23 @@ pub struct ZoneBase {
     pub realization: Option<f64>,
     /// Per driver of the baseline: its kind and its record, for calibration.
     pub evidence: Vec<(DriverKind, Evidence)>,
+    /// What the figures were computed from: the case, the hurdle rate and the trials.
+    inputs: Option<(CaseParts, f64, Trials)>,
 }
 
-/// Compute a zone's base figures (see [`ZoneBase`]).
-pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials) -> ZoneBase {
+/// Compute a zone's base figures (see [`ZoneBase`]). When `previous` was computed from the
+/// same case, hurdle rate and trials (a booking or a readiness score changed, not the case),
+/// its figures are reused: the schedule and the Monte Carlo are the costly part.
+pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials, previous: Option<&ZoneBase>) -> ZoneBase {
     let hurdle = site.hurdle_f64();
+    let inputs = data.case.clone().map(|c| (c, hurdle, trials));
     let (figures, realization, evidence) = match &data.case {
         None => (Err("no business case yet".to_string()), None, Vec::new()),
         Some(c) => {
-            let figures = base_figures(c, hurdle, trials);
+            let figures = match previous {
+                Some(p) if p.inputs.is_some() && p.inputs == inputs => p.figures.clone(),
+                _ => base_figures(c, hurdle, trials),
+            };
             let (realization, evidence) = match (c.baseline, data.ledger.latest) {
                 (true, Some(latest)) => realized(c, &data.ledger, latest, hurdle),
                 _ => (None, Vec::new()),
@@ -306,6 +314,7 @@ pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials) -> ZoneBas
         figures,
         realization,
         evidence,
+        inputs,
     }
 }
 

@@ -7,8 +7,10 @@
 //! counter in the same transaction as any change to the zone, its cases and items, its ledger or
 //! its readiness scores, and the site counter for site settings, readiness weights and new
 //! zones. Every request reads the counters (one small query) and recomputes only the zones
-//! whose counters moved, in parallel. Only the default Monte Carlo seed is cached; another seed
-//! computes every zone for that request.
+//! whose counters moved, in parallel. A recomputed zone whose case, hurdle rate and trials are
+//! those of its cached figures (a booking or a score moved its counter) keeps its schedule
+//! metrics and Monte Carlo and recomputes only realization and evidence. Only the default
+//! Monte Carlo seed is cached; another seed computes every zone for that request.
 
 use super::AppError;
 use crate::db;
@@ -46,10 +48,23 @@ impl FigureCache {
             db::snapshot(pool, move |id, n, s| known.get(&id) == Some(&(n, s))).await?
         };
         let site_n = snapshot.site;
-        let stale = snapshot.stale;
+        let stale: Vec<_> = {
+            let map = self.lock();
+            snapshot
+                .stale
+                .into_iter()
+                .map(|(n, data)| {
+                    let previous = if cached { map.get(&data.zone.id).map(|e| e.2.clone()) } else { None };
+                    (n, data, previous)
+                })
+                .collect()
+        };
         let site = site.clone();
         let computed: Vec<(i64, Arc<ZoneBase>)> = tokio::task::spawn_blocking(move || {
-            stale.into_par_iter().map(|(n, data)| (n, Arc::new(zone_base(data, &site, trials)))).collect()
+            stale
+                .into_par_iter()
+                .map(|(n, data, previous)| (n, Arc::new(zone_base(data, &site, trials, previous.as_deref()))))
+                .collect()
         })
         .await
         .map_err(|e| AppError::Internal(e.into()))?;

@@ -390,6 +390,21 @@ async fn cached_figures_follow_every_booking_and_totals_can_be_rebuilt() {
     assert!(dec(&zone(&after, "PRESS-2")["realization_to_date"]) > dec(&press["realization_to_date"]));
     // Calibration moved for every zone with a scrap driver, PAINT-1 included.
     assert_ne!(zone(&after, "PAINT-1")["calibrated_npv"], zone(&before, "PAINT-1")["calibrated_npv"]);
+    // The booking left PRESS-2's case alone: its case figures (reused, not recomputed) are the same.
+    for field in ["npv", "irr", "p10_npv", "p90_npv", "probability_npv_below_zero"] {
+        assert_eq!(zone(&after, "PRESS-2")[field], press[field], "{field}");
+    }
+    // A new case version of a zone without a baseline is picked up at once.
+    let lead = t.as_role(Some(Role::Lead));
+    let paint = zone(&after, "PAINT-1");
+    let paint_id = paint["zone_id"].as_i64().unwrap();
+    let mut case = crate::api::simple_case();
+    case["label"] = json!("Smaller kit");
+    let created = lead.post_json(&format!("/api/v1/zones/{paint_id}/cases"), &case.to_string()).await;
+    assert_eq!(created.status, StatusCode::CREATED, "{}", created.text);
+    let newer = t.get("/api/v1/portfolio").await.json();
+    assert_ne!(zone(&newer, "PAINT-1")["npv"], paint["npv"]);
+    assert!(zone(&newer, "PAINT-1")["case"]["label"].as_str().unwrap().ends_with("Smaller kit"));
 
     // The running totals equal a rebuild from the entries.
     let totals = || async {
