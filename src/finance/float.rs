@@ -68,7 +68,7 @@ pub fn npv_f64(rate: f64, flows: &[f64]) -> Result<f64, FinanceError> {
 /// not divide the flows; [`FinanceError::NotRepresentable`] when a result overflows.
 pub fn npv_batch(rate: f64, flows: &[f64], width: usize) -> Result<Vec<f64>, FinanceError> {
     check_rate(rate)?;
-    if width == 0 || flows.len() % width != 0 {
+    if width == 0 || !flows.len().is_multiple_of(width) {
         return Err(FinanceError::EmptyFlows);
     }
     let v = 1.0 / (1.0 + rate);
