@@ -119,20 +119,25 @@ async fn main() {
     // 1b. A read right after each booking: the answer is recomputed every time.
     let run = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap().as_secs();
     let (zone, driver) = ctx.zones[1];
-    let mut times = Vec::new();
-    let start = Instant::now();
-    for i in 0..100 {
-        let body = format!(
-            r#"{{"kind": "saving", "method": "direct", "item": {driver}, "period": "2026-06", "quantity": "1", "evidence": "load test"}}"#
-        );
-        let (s, _) =
-            ctx.send("POST", &format!("/api/v1/zones/{zone}/ledger"), Some((format!("probe-{run}-{i}"), body))).await;
-        assert_eq!(s, 201);
-        let (s, t) = ctx.send("GET", "/api/v1/portfolio?budget=5000000", None).await;
-        assert_eq!(s, 200);
-        times.push(t);
+    for (label, path) in [
+        ("portfolio page after a booking, one at a time", "/portfolio?budget=5000000"),
+        ("portfolio API after a booking, one at a time", "/api/v1/portfolio?budget=5000000"),
+    ] {
+        let mut times = Vec::new();
+        let start = Instant::now();
+        for i in 0..100 {
+            let body = format!(
+                r#"{{"kind": "saving", "method": "direct", "item": {driver}, "period": "2026-06", "quantity": "1", "evidence": "load test"}}"#
+            );
+            let key = format!("probe-{run}-{path}-{i}");
+            let (s, _) = ctx.send("POST", &format!("/api/v1/zones/{zone}/ledger"), Some((key, body))).await;
+            assert_eq!(s, 201);
+            let (s, t) = ctx.send("GET", path, None).await;
+            assert_eq!(s, 200, "{path}");
+            times.push(t);
+        }
+        report(label, times, start.elapsed().as_secs_f64());
     }
-    report("portfolio API after a booking, one at a time", times, start.elapsed().as_secs_f64());
 
     // 2. Mixed load.
     let acked = Arc::new(Mutex::new(Vec::<String>::new()));

@@ -343,32 +343,24 @@ pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
         sqlx::query("SELECT zone_id, driver_id, cost_id, amount, quantity, period FROM ledger_entries ORDER BY id")
             .fetch_all(&mut *tx)
             .await?;
-    let mut sums: std::collections::BTreeMap<(i64, String), (Decimal, Decimal, i64, Month)> = Default::default();
+    let mut sums: std::collections::BTreeMap<(i64, String), Totals> = Default::default();
     for r in rows {
         let item = match (r.try_get::<Option<i64>, _>("driver_id")?, r.try_get::<Option<i64>, _>("cost_id")?) {
             (Some(d), _) => format!("driver:{d}"),
             (None, Some(c)) => format!("cost:{c}"),
             (None, None) => continue,
         };
-        let amount = decimal("amount", r.try_get("amount")?)?;
         let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
-        let period = parsed("period", r.try_get("period")?, Month::parse)?;
-        let e = sums.entry((r.try_get("zone_id")?, item)).or_insert((Decimal::ZERO, Decimal::ZERO, 0, period));
-        e.0 += amount;
-        e.1 += quantity.unwrap_or_default();
-        e.2 += 1;
-        e.3 = e.3.max(period);
+        let entry = Totals {
+            amount: decimal("amount", r.try_get("amount")?)?,
+            quantity: quantity.unwrap_or_default(),
+            entries: 1,
+            last: parsed("period", r.try_get("period")?, Month::parse)?,
+        };
+        sums.entry((r.try_get("zone_id")?, item)).or_insert(Totals::empty(entry.last)).add(&entry);
     }
-    for ((zone, item), (amount, quantity, n, last)) in sums {
-        sqlx::query("INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)")
-            .bind(zone)
-            .bind(item)
-            .bind(amount.normalize().to_string())
-            .bind(quantity.normalize().to_string())
-            .bind(n)
-            .bind(last.to_string())
-            .execute(&mut *tx)
-            .await?;
+    for ((zone, item), added) in sums {
+        write_totals(&mut tx, zone, &item, None, &added).await?;
     }
     tx.commit().await?;
     Ok(())
