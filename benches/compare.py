@@ -98,7 +98,7 @@ def main():
     for label, key, n, refname, target in rows:
         r, o = ref[key][0] / n, ours[key]["seconds"] / n
         ratio = r / o
-        print(f"{label:44} {r * 1e6:10.2f} us {o * 1e6:9.3f} us {ratio:8.1f}x {target:>7}x  "
+        print(f"{label:44} {r * 1e6:10.3f} us {o * 1e6:9.4f} us {ratio:8.2f}x {target:>7}x  "
               f"{checks[key][0]}, {checks[key][1]:.1e}  {'met' if ratio >= target else 'MISSED'}  ({refname})")
     mc = ours["montecarlo"]["seconds"]
     print(f"{'Monte Carlo, 10,000 trials of PAINT-1':44} {'':>13} {mc * 1e3:9.3f} ms {'':>9} {'< 5 ms':>8}  "
