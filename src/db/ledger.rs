@@ -71,23 +71,15 @@ async fn entry_in(conn: &mut SqliteConnection, id: i64) -> DbResult<Option<Ledge
 /// The zone's approved baseline with its items, to check bookings against (two queries).
 pub async fn booking_baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<BookingBaseline> {
     let row = sqlx::query(
-        "SELECT c.id, c.start_month, c.horizon_months
+        "SELECT c.id AS case_id, c.start_month, c.horizon_months
          FROM zones z LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved' WHERE z.id = ?",
     )
     .bind(zone_id)
     .fetch_optional(&mut *conn)
     .await?
     .ok_or(DbError::NotFound("zone"))?;
-    let Some(case_id) = row.try_get::<Option<i64>, _>("id")? else {
-        return Err(no_baseline());
-    };
-    let mut baseline = BookingBaseline {
-        case_id,
-        start: parsed("start_month", row.try_get("start_month")?, Month::parse)?,
-        horizon: count("horizon_months", row.try_get("horizon_months")?)?,
-        drivers: Vec::new(),
-        costs: Vec::new(),
-    };
+    let mut baseline = baseline_from(&row)?;
+    let case_id = baseline.case_id;
     let items = sqlx::query(
         "SELECT 'driver' AS item, id, label, unit_value FROM benefit_drivers WHERE case_id = ?
          UNION ALL SELECT 'cost', id, label, NULL FROM cost_items WHERE case_id = ? ORDER BY 1, 2",
@@ -167,16 +159,7 @@ pub async fn book(
     if let Some(id) = row.try_get::<Option<i64>, _>("replay")? {
         return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
     }
-    let Some(case_id) = row.try_get::<Option<i64>, _>("case_id")? else {
-        return Err(no_baseline());
-    };
-    let mut baseline = BookingBaseline {
-        case_id,
-        start: parsed("start_month", row.try_get("start_month")?, Month::parse)?,
-        horizon: count("horizon_months", row.try_get("horizon_months")?)?,
-        drivers: Vec::new(),
-        costs: Vec::new(),
-    };
+    let mut baseline = baseline_from(&row)?;
     if let Some(id) = row.try_get::<Option<i64>, _>("driver_id")? {
         baseline.drivers.push((id, row.try_get("driver_label")?, decimal("unit_value", row.try_get("unit_value")?)?));
     }
@@ -190,6 +173,21 @@ pub async fn book(
     let added = Totals { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period };
     write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &added).await?;
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
+}
+
+/// The baseline's case (`case_id`, NULL when the zone has no approved case), start and horizon
+/// from a row; its items are added by the caller.
+fn baseline_from(row: &SqliteRow) -> DbResult<BookingBaseline> {
+    let Some(case_id) = row.try_get::<Option<i64>, _>("case_id")? else {
+        return Err(no_baseline());
+    };
+    Ok(BookingBaseline {
+        case_id,
+        start: parsed("start_month", row.try_get("start_month")?, Month::parse)?,
+        horizon: count("horizon_months", row.try_get("horizon_months")?)?,
+        drivers: Vec::new(),
+        costs: Vec::new(),
+    })
 }
 
 fn no_baseline() -> DbError {

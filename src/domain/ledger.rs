@@ -248,7 +248,7 @@ pub struct LedgerEntry {
 }
 
 /// What bookings are checked against: the zone's approved baseline, its horizon and items.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct BookingBaseline {
     /// The approved case version.
     pub case_id: i64,

@@ -43,7 +43,7 @@ impl std::fmt::Display for Answer {
 /// One answer: the generation it was computed at, and the answer.
 type Slot = Arc<tokio::sync::Mutex<Option<(i64, Answer)>>>;
 
-/// More distinct queries than this and idle answers are dropped.
+/// More distinct queries than this and an idle answer is dropped for each new one.
 const MAX_ANSWERS: usize = 64;
 
 /// Query text -> its latest answer.
@@ -79,7 +79,11 @@ impl AnswerCache {
         // A panic while holding the lock leaves a usable map: answers carry their generation.
         let mut slots = self.slots.lock().unwrap_or_else(PoisonError::into_inner);
         if slots.len() >= MAX_ANSWERS && !slots.contains_key(&key) {
-            slots.retain(|_, slot| Arc::strong_count(slot) > 1);
+            // Drop one answer nobody is waiting for.
+            let idle = slots.iter().find(|(_, slot)| Arc::strong_count(slot) == 1).map(|(k, _)| k.clone());
+            if let Some(idle) = idle {
+                slots.remove(&idle);
+            }
         }
         slots.entry(key).or_default().clone()
     }

@@ -38,27 +38,23 @@ impl FigureCache {
         trials: Trials,
     ) -> Result<Vec<Arc<ZoneBase>>, AppError> {
         let cached = trials == Trials::default();
+        // What the cache holds now: the snapshot decides freshness against exactly these
+        // entries, and they are what this call returns for the zones it finds fresh (another
+        // request may replace them meanwhile).
+        let known: HashMap<i64, Entry> = if cached { self.lock().clone() } else { HashMap::new() };
         let snapshot = {
-            // The lock is not held across the query: the closure copies what it needs first.
-            let known: HashMap<i64, (i64, i64)> = if cached {
-                self.lock().iter().map(|(id, (n, s, _))| (*id, (*n, *s))).collect()
-            } else {
-                HashMap::new()
-            };
-            db::snapshot(pool, move |id, n, s| known.get(&id) == Some(&(n, s))).await?
+            let counters: HashMap<i64, (i64, i64)> = known.iter().map(|(id, (n, s, _))| (*id, (*n, *s))).collect();
+            db::snapshot(pool, move |id, n, s| counters.get(&id) == Some(&(n, s))).await?
         };
         let site_n = snapshot.site;
-        let stale: Vec<_> = {
-            let map = self.lock();
-            snapshot
-                .stale
-                .into_iter()
-                .map(|(n, data)| {
-                    let previous = if cached { map.get(&data.zone.id).map(|e| e.2.clone()) } else { None };
-                    (n, data, previous)
-                })
-                .collect()
-        };
+        let stale: Vec<_> = snapshot
+            .stale
+            .into_iter()
+            .map(|(n, data)| {
+                let previous = known.get(&data.zone.id).map(|e| e.2.clone());
+                (n, data, previous)
+            })
+            .collect();
         let site = site.clone();
         let computed: Vec<(i64, Arc<ZoneBase>)> = tokio::task::spawn_blocking(move || {
             stale
@@ -69,17 +65,23 @@ impl FigureCache {
         .await
         .map_err(|e| AppError::Internal(e.into()))?;
         let mut fresh: HashMap<i64, Arc<ZoneBase>> = HashMap::with_capacity(computed.len());
-        let mut map = self.lock();
-        for (n, base) in computed {
-            if cached {
-                map.insert(base.zone.id, (n, site_n, base.clone()));
+        if cached {
+            let mut map = self.lock();
+            for (n, base) in &computed {
+                // Never replace figures with older ones: a slower request may finish last.
+                let newer = map.get(&base.zone.id).is_none_or(|(old_n, old_s, _)| (site_n, *n) >= (*old_s, *old_n));
+                if newer {
+                    map.insert(base.zone.id, (*n, site_n, base.clone()));
+                }
             }
+        }
+        for (_, base) in computed {
             fresh.insert(base.zone.id, base);
         }
         Ok(snapshot
             .counters
             .iter()
-            .filter_map(|(id, _)| fresh.remove(id).or_else(|| map.get(id).map(|e| e.2.clone())))
+            .filter_map(|(id, _)| fresh.remove(id).or_else(|| known.get(id).map(|e| e.2.clone())))
             .collect())
     }
 

@@ -6,8 +6,8 @@ use super::chart::PairChart;
 use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
-    Booking, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, Percent, RealizedView, SiteSettings,
-    Zone, realized_view,
+    Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, Percent,
+    RealizedView, SiteSettings, Zone, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -17,6 +17,7 @@ use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
 use serde::Deserialize;
 use serde_json::{Value, json};
+use std::sync::Arc;
 
 /// Largest CSV accepted by the import form: about 200,000 rows.
 pub const IMPORT_MAX_BYTES: usize = 16 * 1024 * 1024;
@@ -312,27 +313,52 @@ pub async fn import_csv(
     me: &Principal,
     zone_id: i64,
     file_name: &str,
-    bytes: &[u8],
+    bytes: Vec<u8>,
 ) -> Result<usize, AppError> {
-    let invalid = |field: String, message: String| AppError::Invalid(FieldErrors::one(field, message));
     if bytes.len() > IMPORT_MAX_BYTES {
-        return Err(invalid(
-            "file".into(),
+        return Err(AppError::Invalid(FieldErrors::one(
+            "file",
             format!("larger than {} MiB; split it by month", IMPORT_MAX_BYTES / 1024 / 1024),
-        ));
+        )));
     }
-    // The write lock is taken before reading the baseline: the rows are checked against
-    // exactly what they are stored with.
-    let mut tx = db::begin_write(&state.pool).await?;
-    let baseline = db::ledger::booking_baseline(&mut tx, zone_id).await?;
     let month = current_month(state);
+    // Parse and check off the async threads and outside the write lock (a large file takes a
+    // noticeable fraction of a second); under the lock, the baseline is read again and the rows
+    // checked again only if it changed meanwhile, so they are stored against what they were
+    // checked with.
+    let baseline = db::ledger::booking_baseline(&mut *state.pool.acquire().await?, zone_id).await?;
+    let bytes = Arc::new(bytes);
+    let (mut rows, checked_with) = {
+        let (bytes, baseline) = (bytes.clone(), baseline.clone());
+        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, month), baseline))
+            .await
+            .map_err(|e| AppError::Internal(e.into()))?
+    };
+    let mut tx = db::begin_write(&state.pool).await?;
+    let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
+    if current != checked_with {
+        rows = checked_rows(&bytes, &current, month);
+    }
+    let rows = rows?;
+    let hash = crate::auth::sha256_hex(&bytes);
+    let import_id = db::ledger::insert_import(&mut tx, zone_id, &hash, file_name, rows.len(), me.name()).await?;
+    let tag = db::ledger::Tag { actor: me.name(), key: None, import_id: Some(import_id), reverses_id: None };
+    db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
+    let detail = format!("{file_name}: {} rows", rows.len());
+    db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
+    tx.commit().await?;
+    Ok(rows.len())
+}
+
+/// Every row of a CSV file checked against the baseline, or every error by line and column.
+fn checked_rows(bytes: &[u8], baseline: &BookingBaseline, month: Month) -> Result<Vec<NewEntry>, AppError> {
+    let invalid = |field: &str, message: String| AppError::Invalid(FieldErrors::one(field, message));
     let mut reader = csv::ReaderBuilder::new().trim(csv::Trim::All).flexible(false).from_reader(bytes);
-    let headers =
-        reader.headers().map_err(|e| invalid("line 1".into(), format!("cannot read the header row: {e}")))?.clone();
+    let headers = reader.headers().map_err(|e| invalid("line 1", format!("cannot read the header row: {e}")))?.clone();
     let missing: Vec<&str> = CSV_COLUMNS.iter().copied().filter(|c| !headers.iter().any(|h| h == *c)).collect();
     if !missing.is_empty() {
         return Err(invalid(
-            "line 1".into(),
+            "line 1",
             format!("missing column(s): {}; expected {}", missing.join(", "), CSV_COLUMNS.join(",")),
         ));
     }
@@ -392,20 +418,12 @@ pub async fn import_csv(
         }
     }
     if rows.is_empty() && errors.is_empty() {
-        return Err(invalid("file".into(), "no rows below the header".into()));
+        return Err(invalid("file", "no rows below the header".into()));
     }
     if !errors.is_empty() {
-        // Nothing was written; dropping the transaction releases the lock.
         return Err(AppError::Invalid(errors));
     }
-    let hash = crate::auth::sha256_hex(bytes);
-    let import_id = db::ledger::insert_import(&mut tx, zone_id, &hash, file_name, rows.len(), me.name()).await?;
-    let tag = db::ledger::Tag { actor: me.name(), key: None, import_id: Some(import_id), reverses_id: None };
-    db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
-    let detail = format!("{file_name}: {} rows", rows.len());
-    db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
-    tx.commit().await?;
-    Ok(rows.len())
+    Ok(rows)
 }
 
 /// An upload that could not be read. A body cut by the outer size limit reaches multipart as
@@ -436,10 +454,7 @@ pub async fn import(
     while let Some(field) = multipart.next_field().await.map_err(upload_error)? {
         if field.name() == Some("file") {
             let name = field.file_name().unwrap_or("upload.csv").to_string();
-            let bytes = field.bytes().await.map_err(|e| {
-                eprintln!("DEBUG {:?} {}", e, e.status());
-                AppError::BadRequest { status: e.status(), message: e.body_text() }
-            })?;
+            let bytes = field.bytes().await.map_err(upload_error)?;
             file = Some((name, bytes.to_vec()));
         }
     }
@@ -447,7 +462,7 @@ pub async fn import(
         return page(&state, &me, id, BookingInput::default(), FieldErrors::one("file", "choose a CSV file"), None)
             .await;
     };
-    match import_csv(&state, &me, id, &name, &bytes).await {
+    match import_csv(&state, &me, id, &name, bytes).await {
         Ok(n) => {
             tracing::info!(zone = id, rows = n, file = %name, "CSV imported");
             Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response())
