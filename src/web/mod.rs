@@ -42,8 +42,22 @@ use tower_http::trace::TraceLayer;
 /// cores and one SQLite writer are saturated well below this.
 pub const MAX_IN_FLIGHT: usize = 64;
 
-/// The answer to a request shed by the concurrency limit.
+/// Requests shed since the last warning, and when that was (seconds since the Unix epoch).
+static SHED: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+static SHED_WARNED_AT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+/// The answer to a request shed by the concurrency limit. Shed requests are counted and
+/// logged once a second at most (they bypass the request trace: under overload, a log line
+/// each would add to the load).
 async fn overloaded(_: tower::BoxError) -> axum::response::Response {
+    use std::sync::atomic::Ordering::Relaxed;
+    SHED.fetch_add(1, Relaxed);
+    let now = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs());
+    let last = SHED_WARNED_AT.load(Relaxed);
+    if now > last && SHED_WARNED_AT.compare_exchange(last, now, Relaxed, Relaxed).is_ok() {
+        let shed = SHED.swap(0, Relaxed);
+        tracing::warn!(shed, limit = MAX_IN_FLIGHT, "overloaded: requests refused with 503 since the last warning");
+    }
     axum::response::IntoResponse::into_response((
         StatusCode::SERVICE_UNAVAILABLE,
         [(header::RETRY_AFTER, "1")],
@@ -209,13 +223,13 @@ pub fn app(state: AppState) -> Router {
         // Above every route's own limit: refuses a declared oversized body before it is read.
         .layer(RequestBodyLimitLayer::new(ledger::IMPORT_MAX_BYTES + 1024 * 1024))
         .layer(TimeoutLayer::with_status_code(StatusCode::REQUEST_TIMEOUT, REQUEST_TIMEOUT))
+        .layer(TraceLayer::new_for_http())
         .layer(
             tower::ServiceBuilder::new()
                 .layer(axum::error_handling::HandleErrorLayer::new(overloaded))
                 .load_shed()
                 .concurrency_limit(MAX_IN_FLIGHT),
         )
-        .layer(TraceLayer::new_for_http())
 }
 
 /// A JSON body whose rejection is answered as an [`ApiError`] (400 syntax, 415 content type,
