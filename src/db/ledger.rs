@@ -1,7 +1,7 @@
 //! The ledger: append-only bookings against a zone's approved baseline.
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
-use crate::domain::{Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry};
+use crate::domain::{Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key};
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
 use sqlx::{QueryBuilder, Row, Sqlite, SqliteConnection, SqlitePool};
@@ -133,7 +133,7 @@ pub async fn book(
     key: Option<&str>,
 ) -> DbResult<Booked> {
     let saving = b.kind == EntryKind::Saving;
-    let item = if saving { format!("driver:{}", b.item_id) } else { format!("cost:{}", b.item_id) };
+    let item = item_key(saving.then_some(b.item_id), (!saving).then_some(b.item_id)).unwrap_or_default();
     let row = sqlx::query(
         "SELECT (SELECT id FROM ledger_entries WHERE idempotency_key = ?) AS replay,
                 c.id AS case_id, c.start_month, c.horizon_months,
@@ -170,8 +170,7 @@ pub async fn book(
     let tag = Tag { actor, key, import_id: None, reverses_id: None };
     let at = now();
     let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at).await?;
-    let added = Totals { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period };
-    write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &added).await?;
+    write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &Totals::of(&e)).await?;
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
 }
 
@@ -250,8 +249,7 @@ async fn add_to_totals(conn: &mut SqliteConnection, zone_id: i64, entries: &[New
     let mut sums: std::collections::BTreeMap<String, Totals> = Default::default();
     for e in entries {
         let Some(item) = e.item_key() else { continue };
-        let s = sums.entry(item).or_insert(Totals::empty(e.period));
-        s.add(&Totals { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period });
+        sums.entry(item).or_insert(Totals::empty(e.period)).add(&Totals::of(e));
     }
     for (item, added) in sums {
         let row = sqlx::query(
@@ -278,6 +276,11 @@ struct Totals {
 impl Totals {
     fn empty(period: Month) -> Self {
         Self { amount: Decimal::ZERO, quantity: Decimal::ZERO, entries: 0, last: period }
+    }
+
+    /// One entry's contribution.
+    fn of(e: &NewEntry) -> Self {
+        Self { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period }
     }
 
     fn add(&mut self, other: &Totals) {
@@ -343,11 +346,7 @@ pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
             .await?;
     let mut sums: std::collections::BTreeMap<(i64, String), Totals> = Default::default();
     for r in rows {
-        let item = match (r.try_get::<Option<i64>, _>("driver_id")?, r.try_get::<Option<i64>, _>("cost_id")?) {
-            (Some(d), _) => format!("driver:{d}"),
-            (None, Some(c)) => format!("cost:{c}"),
-            (None, None) => continue,
-        };
+        let Some(item) = item_key(r.try_get("driver_id")?, r.try_get("cost_id")?) else { continue };
         let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
         let entry = Totals {
             amount: decimal("amount", r.try_get("amount")?)?,

@@ -289,14 +289,19 @@ pub struct NewEntry {
     pub evidence: String,
 }
 
+/// The running-totals key of a ledger item: `driver:<id>` or `cost:<id>`.
+pub fn item_key(driver_id: Option<i64>, cost_id: Option<i64>) -> Option<String> {
+    match (driver_id, cost_id) {
+        (Some(d), _) => Some(format!("driver:{d}")),
+        (None, Some(c)) => Some(format!("cost:{c}")),
+        (None, None) => None,
+    }
+}
+
 impl NewEntry {
-    /// The totals key of its item: `driver:<id>` or `cost:<id>`.
+    /// The totals key of its item (see [`item_key`]).
     pub fn item_key(&self) -> Option<String> {
-        match (self.driver_id, self.cost_id) {
-            (Some(d), _) => Some(format!("driver:{d}")),
-            (None, Some(c)) => Some(format!("cost:{c}")),
-            (None, None) => None,
-        }
+        item_key(self.driver_id, self.cost_id)
     }
 }
 

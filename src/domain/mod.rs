@@ -21,7 +21,7 @@ pub use case::{
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
 };
 pub use figures::{CaseFigures, View, case_figures};
-pub use ledger::{Booking, BookingBaseline, BookingInput, EntryKind, LedgerEntry, Measurement, NewEntry};
+pub use ledger::{Booking, BookingBaseline, BookingInput, EntryKind, LedgerEntry, Measurement, NewEntry, item_key};
 pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
 pub use portfolio::{
     BaseFigures, BudgetChoice, CaseParts, LedgerTotals, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,

@@ -153,12 +153,7 @@ pub fn xirr_outcome(flows: &[Decimal], dates: &[Date]) -> Result<IrrOutcome, Fin
     if changes == 0 {
         return Err(FinanceError::NoSignChange);
     }
-    let series = DatedSeries::new(&merged)?;
-    if changes == 1 {
-        let root = irr::solve_single(&series)?;
-        return Ok(IrrOutcome { roots: vec![root], chosen: Some(root), ambiguous: false });
-    }
-    Ok(irr::outcome_from_roots(irr::all_roots(&series)?))
+    irr::outcome_of(&DatedSeries::new(&merged)?, changes)
 }
 
 /// Internal rate of return of dated cash flows: the annual rate that makes [`xnpv`] zero.

@@ -5,7 +5,7 @@
 
 use rayon::prelude::*;
 
-use super::irr::{DensePoly, all_roots, outcome_from_roots, sign_changes, signum, solve_single};
+use super::irr::{DensePoly, outcome_of, sign_changes, signum};
 use super::rate::check_rate;
 use super::{FinanceError, IrrOutcome};
 
@@ -116,12 +116,7 @@ pub fn irr_f64(flows: &[f64]) -> Result<IrrOutcome, FinanceError> {
     if changes == 0 {
         return Err(FinanceError::NoSignChange);
     }
-    let poly = DensePoly::normalized(flows.to_vec());
-    if changes == 1 {
-        let root = solve_single(&poly)?;
-        return Ok(IrrOutcome { roots: vec![root], chosen: Some(root), ambiguous: false });
-    }
-    Ok(outcome_from_roots(all_roots(&poly)?))
+    outcome_of(&DensePoly::normalized(flows.to_vec()), changes)
 }
 
 #[cfg(test)]

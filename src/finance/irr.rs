@@ -132,12 +132,17 @@ pub fn irr(flows: &[Decimal]) -> Result<IrrOutcome, FinanceError> {
     if changes == 0 {
         return Err(FinanceError::NoSignChange);
     }
-    let poly = DensePoly::from_flows(flows)?;
+    outcome_of(&DensePoly::from_flows(flows)?, changes)
+}
+
+/// The IRR outcome of a series whose flows change sign `changes` (> 0) times: one sign change
+/// has exactly one root, found directly; more are all searched for.
+pub(crate) fn outcome_of<S: Series>(series: &S, changes: usize) -> Result<IrrOutcome, FinanceError> {
     if changes == 1 {
-        let root = solve_single(&poly)?;
+        let root = solve_single(series)?;
         return Ok(IrrOutcome { roots: vec![root], chosen: Some(root), ambiguous: false });
     }
-    Ok(outcome_from_roots(all_roots(&poly)?))
+    Ok(outcome_from_roots(all_roots(series)?))
 }
 
 /// Solves a series with exactly one sign change (one root) on the whole of [0, 2].

@@ -64,7 +64,6 @@ impl FigureCache {
         })
         .await
         .map_err(|e| AppError::Internal(e.into()))?;
-        let mut fresh: HashMap<i64, Arc<ZoneBase>> = HashMap::with_capacity(computed.len());
         if cached {
             let mut map = self.lock();
             for (n, base) in &computed {
@@ -75,9 +74,7 @@ impl FigureCache {
                 }
             }
         }
-        for (_, base) in computed {
-            fresh.insert(base.zone.id, base);
-        }
+        let mut fresh: HashMap<i64, Arc<ZoneBase>> = computed.into_iter().map(|(_, b)| (b.zone.id, b)).collect();
         Ok(snapshot
             .counters
             .iter()

@@ -268,7 +268,7 @@ struct PortfolioPage {
 struct PortfolioFigures {
     basis: ValueBasis,
     rows: Vec<RowView>,
-    charts: Option<Charts>,
+    charts: Charts,
     choice: Option<ChoiceView>,
     query: String,
 }
@@ -328,7 +328,7 @@ pub async fn page(
             let (site, portfolio) = compute(&state, params).await?;
             let figures = PortfolioFigures {
                 basis,
-                charts: Some(charts(&portfolio, &site.currency)),
+                charts: charts(&portfolio, &site.currency),
                 choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
                 rows: portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
                 query,
@@ -379,7 +379,7 @@ async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, A
     w.write_record(&header).map_err(internal)?;
     for (i, r) in portfolio.rows.iter().enumerate() {
         let j = row_json(i + 1, r);
-        let text = |v: &Option<String>| v.clone().unwrap_or_default();
+        let text = Option::unwrap_or_default;
         let record = [
             j.rank.to_string(),
             j.code.to_string(),
@@ -388,18 +388,18 @@ async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, A
             j.standing.to_string(),
             j.in_pi_order_set.to_string(),
             j.case.map(|c| c.label).unwrap_or_default(),
-            text(&j.investment),
-            text(&j.npv),
-            text(&j.risk_adjusted_npv),
-            text(&j.calibrated_npv),
-            text(&j.irr),
-            text(&j.payback_months),
-            text(&j.profitability_index),
-            text(&j.probability_npv_below_zero),
-            text(&j.p10_npv),
-            text(&j.p50_npv),
-            text(&j.p90_npv),
-            text(&j.realization_to_date),
+            text(j.investment),
+            text(j.npv),
+            text(j.risk_adjusted_npv),
+            text(j.calibrated_npv),
+            text(j.irr),
+            text(j.payback_months),
+            text(j.profitability_index),
+            text(j.probability_npv_below_zero),
+            text(j.p10_npv),
+            text(j.p50_npv),
+            text(j.p90_npv),
+            text(j.realization_to_date),
             j.readiness.map(|x| format!("{:.2}", x.score)).unwrap_or_default(),
             j.problem.unwrap_or_default().to_string(),
         ];
