@@ -70,7 +70,8 @@ fn main() {
     let (t_x, xirrs) =
         best_of(5, || xflows.iter().zip(&xdates).map(|(f, d)| xirr(f, d).unwrap_or(f64::NAN)).collect::<Vec<_>>());
 
-    let scenario = Scenario::parse(pilot_ledger::cli::DEMO_SCENARIO).unwrap();
+    let scenario =
+        Scenario::parse(pilot_ledger::cli::DEMO_SCENARIO, pilot_ledger::domain::NumberFormat::default()).unwrap();
     let zone = scenario.zones.iter().find(|z| z.zone.code == "PAINT-1").unwrap();
     let case = &zone.cases[0];
     let model = LinearNpv::new(&finance_input(&case.header, &case.costs, &case.drivers, None), 0.09).unwrap();

@@ -76,7 +76,8 @@ fn bench(c: &mut Criterion) {
     });
 
     // 10,000 trials of the demo plant's PAINT-1 case.
-    let scenario = Scenario::parse(pilot_ledger::cli::DEMO_SCENARIO).unwrap_or_else(|e| panic!("{e}"));
+    let scenario = Scenario::parse(pilot_ledger::cli::DEMO_SCENARIO, pilot_ledger::domain::NumberFormat::default())
+        .unwrap_or_else(|e| panic!("{e}"));
     let zone = scenario.zones.iter().find(|z| z.zone.code == "PAINT-1").unwrap_or_else(|| panic!("PAINT-1"));
     let case = &zone.cases[0];
     let input = finance_input(&case.header, &case.costs, &case.drivers, None);

@@ -174,7 +174,7 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
 
 /// Parse, validate and store a scenario document.
 pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::LoadSummary> {
-    let scenario = match Scenario::parse(text) {
+    let scenario = match Scenario::parse(text, db::number_format(pool).await?) {
         Ok(s) => s,
         Err(errors) => {
             let lines: Vec<String> = errors.0.iter().map(|e| format!("  {}: {}", e.field, e.message)).collect();

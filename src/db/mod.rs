@@ -167,7 +167,7 @@ pub use cases::{
 };
 pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
-pub use site::{get_site, put_site};
+pub use site::{get_site, number_format, put_site};
 pub use users::{
     SessionRow, TokenRow, User, count_users, delete_session, get_session, get_user, insert_session, insert_token,
     insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,

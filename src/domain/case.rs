@@ -2,27 +2,34 @@
 //! the translation into the finance engine's pure input.
 
 use super::de::{flexible_bool, string_or_number};
-use super::{FieldErrors, parse_count, parse_decimal, parse_percent, required_text};
+use super::{FieldErrors, NumberFormat, parse_count, required_text};
 use crate::finance::schedule::{CaseInput, CostInput as FinCost, CostTiming, DriverInput as FinDriver, TaxInput};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
-/// How a rate field was typed: forms take percentages (`2.5`), JSON and scenario files take
-/// fractions (`0.025`).
+/// How the numbers of a case were typed: forms take percentages (`2.5`), JSON and scenario
+/// files take fractions (`0.025`); each in its number format (the site's, or the API's plain).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum RateStyle {
     /// `2.5` means 2.5 %.
-    Percent,
+    Percent(NumberFormat),
     /// `0.025` means 2.5 %.
-    Fraction,
+    Fraction(NumberFormat),
 }
 
 impl RateStyle {
+    /// The number format of every field.
+    pub fn numbers(self) -> NumberFormat {
+        match self {
+            Self::Percent(f) | Self::Fraction(f) => f,
+        }
+    }
+
     fn parse(self, value: &str) -> Result<Decimal, String> {
         let v = match self {
-            Self::Percent => parse_percent(value)?,
-            Self::Fraction => parse_decimal(value)?,
+            Self::Percent(f) => f.read_percent(value)?,
+            Self::Fraction(f) => f.read(value)?,
         };
         if v <= Decimal::NEGATIVE_ONE {
             return Err("greater than -100 %".into());
@@ -322,7 +329,8 @@ impl NewCostItem {
         let label = e.take("label", required_text(&input.label, 120));
         let category = e.take("category", CostCategory::parse(&input.category));
         let kind = e.take("kind", CostKind::parse(&input.kind));
-        let amount = e.take("amount", parse_decimal(&input.amount).and_then(positive_money));
+        let f = style.numbers();
+        let amount = e.take("amount", f.read(&input.amount).and_then(positive_money(f)));
         let month = e.take(
             "month_offset",
             parse_count(
@@ -475,9 +483,10 @@ impl NewBenefitDriver {
         } else {
             e.take("unit", required_text(&input.unit, 20))
         };
-        let low = e.take("qty_low", parse_decimal(&input.qty_low).and_then(bounded(MAX_QUANTITY)));
-        let likely = e.take("qty_likely", parse_decimal(&input.qty_likely).and_then(bounded(MAX_QUANTITY)));
-        let high = e.take("qty_high", parse_decimal(&input.qty_high).and_then(bounded(MAX_QUANTITY)));
+        let f = style.numbers();
+        let low = e.take("qty_low", f.read(&input.qty_low).and_then(bounded(MAX_QUANTITY, f)));
+        let likely = e.take("qty_likely", f.read(&input.qty_likely).and_then(bounded(MAX_QUANTITY, f)));
+        let high = e.take("qty_high", f.read(&input.qty_high).and_then(bounded(MAX_QUANTITY, f)));
         if let (Some(l), Some(m)) = (low, likely)
             && l > m
         {
@@ -488,7 +497,7 @@ impl NewBenefitDriver {
         {
             e.push("qty_high", "must be at least the likely quantity");
         }
-        let unit_value = e.take("unit_value", parse_decimal(&input.unit_value).and_then(bounded(MAX_UNIT_VALUE)));
+        let unit_value = e.take("unit_value", f.read(&input.unit_value).and_then(bounded(MAX_UNIT_VALUE, f)));
         let escalation = e.take("escalation", optional_rate(&input.escalation, style));
         match (label, kind, unit, low, likely, high, unit_value, escalation) {
             (
@@ -517,7 +526,7 @@ pub struct BenefitDriver {
 }
 
 /// A whole case as JSON bodies and scenario files give it.
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
 #[serde(default)]
 pub struct CaseSpecInput {
     /// Header fields.
@@ -619,22 +628,24 @@ const MAX_AMOUNT: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0);
 const MAX_QUANTITY: Decimal = Decimal::from_parts(1_000_000_000, 0, 0, false, 0);
 const MAX_UNIT_VALUE: Decimal = Decimal::from_parts(1_000_000, 0, 0, false, 0);
 
-fn positive_money(d: Decimal) -> Result<Decimal, String> {
-    if d <= Decimal::ZERO {
-        Err("a positive amount, e.g. 12500".into())
-    } else if d > MAX_AMOUNT {
-        Err("at most 1,000,000,000,000".into())
-    } else {
-        Ok(d)
+fn positive_money(f: NumberFormat) -> impl Fn(Decimal) -> Result<Decimal, String> {
+    move |d| {
+        if d <= Decimal::ZERO {
+            Err("a positive amount, e.g. 12500".into())
+        } else if d > MAX_AMOUNT {
+            Err(format!("at most {}", f.write(MAX_AMOUNT, 0)))
+        } else {
+            Ok(d)
+        }
     }
 }
 
-fn bounded(max: Decimal) -> impl Fn(Decimal) -> Result<Decimal, String> {
+fn bounded(max: Decimal, f: NumberFormat) -> impl Fn(Decimal) -> Result<Decimal, String> {
     move |d| {
         if d < Decimal::ZERO {
             Err("zero or more".into())
         } else if d > max {
-            Err(format!("at most {}", super::Money(max)).replace(".00", ""))
+            Err(format!("at most {}", f.write(max, 0)))
         } else {
             Ok(d)
         }
@@ -673,16 +684,21 @@ mod tests {
             unit_value: "3".into(),
             ..Default::default()
         };
-        let err = NewBenefitDriver::parse(&input, RateStyle::Percent).err().unwrap_or_default();
+        let err =
+            NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::DecimalPoint)).err().unwrap_or_default();
         assert_eq!(err.get("qty_low"), Some("must not exceed the likely quantity"));
     }
 
     #[test]
     fn bounds_keep_cases_computable() {
         assert_eq!(MAX_AMOUNT, Decimal::from(1_000_000_000_000_i64));
-        assert_eq!(positive_money(Decimal::from(2_000_000_000_000_i64)), Err("at most 1,000,000,000,000".into()));
-        assert_eq!(bounded(MAX_UNIT_VALUE)(Decimal::from(2_000_000)), Err("at most 1,000,000".into()));
-        assert_eq!(optional_rate("150", RateStyle::Percent), Err("at most 100 % a year".into()));
+        let point = NumberFormat::DecimalPoint;
+        let too_much = Decimal::from(2_000_000_000_000_i64);
+        assert_eq!(positive_money(point)(too_much), Err("at most 1,000,000,000,000".into()));
+        let comma = NumberFormat::DecimalComma;
+        assert_eq!(positive_money(comma)(too_much), Err("at most 1.000.000.000.000".into()));
+        assert_eq!(bounded(MAX_UNIT_VALUE, point)(Decimal::from(2_000_000)), Err("at most 1,000,000".into()));
+        assert_eq!(optional_rate("150", RateStyle::Percent(point)), Err("at most 100 % a year".into()));
     }
 
     #[test]
@@ -705,7 +721,7 @@ mod tests {
             }],
             ..Default::default()
         };
-        let err = CaseSpec::parse(&input, RateStyle::Fraction).err().unwrap_or_default();
+        let err = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain)).err().unwrap_or_default();
         assert_eq!(err.0.len(), 1);
         assert_eq!(err.0[0].field, "costs[0].amount");
     }

@@ -3,7 +3,7 @@
 //! month lies inside its horizon and not in the future) need the stored case: see `db::ledger`.
 
 use super::de::string_or_number;
-use super::{FieldErrors, Month, parse_decimal, required_text};
+use super::{FieldErrors, Month, NumberFormat, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 
@@ -126,13 +126,15 @@ fn non_negative(field: &'static str) -> impl Fn(Decimal) -> Result<Decimal, Stri
 /// Bounds that keep ledger sums far inside `Decimal`'s range.
 const MAX_MAGNITUDE: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
 
-fn bounded(d: Decimal) -> Result<Decimal, String> {
-    if d.abs() > MAX_MAGNITUDE { Err("at most 1,000,000,000,000 in size".into()) } else { Ok(d) }
+fn bounded(f: NumberFormat) -> impl Fn(Decimal) -> Result<Decimal, String> {
+    move |d| {
+        if d.abs() > MAX_MAGNITUDE { Err(format!("at most {} in size", f.write(MAX_MAGNITUDE, 0))) } else { Ok(d) }
+    }
 }
 
 impl Booking {
-    /// Validate each field; the names match the form and the CSV columns.
-    pub fn parse(input: &BookingInput) -> Result<Self, FieldErrors> {
+    /// Validate each field, numbers typed in `f`; the names match the form and the CSV columns.
+    pub fn parse(input: &BookingInput, f: NumberFormat) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let kind = e.take("kind", EntryKind::parse(&input.kind));
         let item_id = e.take(
@@ -148,22 +150,20 @@ impl Booking {
         );
         let measurement = match (kind, input.method.trim()) {
             (Some(EntryKind::Saving), "direct") => e
-                .take("quantity", parse_decimal(&input.quantity).and_then(bounded))
+                .take("quantity", f.read(&input.quantity).and_then(bounded(f)))
                 .map(|quantity| Measurement::Direct { quantity }),
             (Some(EntryKind::Saving), "normalized") => {
                 let i = e.take(
                     "baseline_intensity",
-                    parse_decimal(&input.baseline_intensity)
-                        .and_then(bounded)
-                        .and_then(non_negative("baseline intensity")),
+                    f.read(&input.baseline_intensity).and_then(bounded(f)).and_then(non_negative("baseline intensity")),
                 );
                 let v = e.take(
                     "reporting_volume",
-                    parse_decimal(&input.reporting_volume).and_then(bounded).and_then(non_negative("volume")),
+                    f.read(&input.reporting_volume).and_then(bounded(f)).and_then(non_negative("volume")),
                 );
                 let c = e.take(
                     "measured_consumption",
-                    parse_decimal(&input.measured_consumption).and_then(bounded).and_then(non_negative("consumption")),
+                    f.read(&input.measured_consumption).and_then(bounded(f)).and_then(non_negative("consumption")),
                 );
                 match (i, v, c) {
                     (Some(baseline_intensity), Some(reporting_volume), Some(measured_consumption)) => {
@@ -179,7 +179,7 @@ impl Booking {
             (Some(EntryKind::Spending), "" | "spend") => e
                 .take(
                     "amount",
-                    parse_decimal(&input.amount).and_then(bounded).and_then(|d| {
+                    f.read(&input.amount).and_then(bounded(f)).and_then(|d| {
                         if d > Decimal::ZERO {
                             Ok(d)
                         } else {

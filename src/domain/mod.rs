@@ -8,6 +8,7 @@ mod case;
 mod figures;
 mod ledger;
 mod money;
+mod numbers;
 mod portfolio;
 mod readiness;
 mod realized;
@@ -22,7 +23,8 @@ pub use case::{
 };
 pub use figures::{CaseFigures, View, case_figures};
 pub use ledger::{Booking, BookingBaseline, BookingInput, EntryKind, LedgerEntry, Measurement, NewEntry, item_key};
-pub use money::{Money, Percent, group_thousands, money, parse_decimal, parse_percent, pct, quantity};
+pub use money::{Money, Percent, money, pct, quantity};
+pub use numbers::{NumberFormat, read, read_percent};
 pub use portfolio::{
     BaseFigures, BudgetChoice, CaseParts, LedgerTotals, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
     RankBy, Standing, ValueBasis, ZoneBase, ZoneData, build_portfolio, calibration_of, zone_base,

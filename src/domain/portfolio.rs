@@ -13,8 +13,8 @@
 use super::realized::{driver_benefits, month_index};
 use super::uncertainty::{Calibration, Trials, calibrated_npv, parse_seed, quantity_ranges, risk_adjusted_npv};
 use super::{
-    CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, Readiness, SiteSettings,
-    Zone, ZoneStatus, finance_input, parse_decimal,
+    CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, NumberFormat, Readiness,
+    SiteSettings, Zone, ZoneStatus, finance_input,
 };
 use crate::finance::calibration::Evidence;
 use crate::finance::linear::LinearNpv;
@@ -169,17 +169,17 @@ pub struct PortfolioParams {
 const MAX_BUDGET: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
 
 impl PortfolioParams {
-    /// Validate each field; errors name it.
-    pub fn parse(q: &PortfolioQuery) -> Result<Self, FieldErrors> {
+    /// Validate each field, numbers typed in `f`; errors name it.
+    pub fn parse(q: &PortfolioQuery, f: NumberFormat) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let budget = if q.budget.trim().is_empty() {
             None
         } else {
             e.take(
                 "budget",
-                parse_decimal(&q.budget).and_then(|b| {
+                f.read(&q.budget).and_then(|b| {
                     if b < Decimal::ZERO || b > MAX_BUDGET {
-                        Err("an amount from 0 to 1,000,000,000,000".into())
+                        Err(format!("an amount from 0 to {}", f.write(MAX_BUDGET, 0)))
                     } else {
                         Ok(b)
                     }
@@ -193,7 +193,7 @@ impl PortfolioParams {
         } else {
             e.take(
                 "min_readiness",
-                parse_decimal(&q.min_readiness).and_then(|m| {
+                f.read(&q.min_readiness).and_then(|m| {
                     if (Decimal::ONE..=Decimal::from(5)).contains(&m) {
                         Ok(m)
                     } else {

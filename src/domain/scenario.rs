@@ -3,8 +3,8 @@
 //! documented in DEVELOPERS.md ("Scenario files").
 
 use super::{
-    Booking, BookingInput, CaseSpec, CaseSpecInput, EntryKind, FieldErrors, NewZone, RateStyle, SCORE_RANGE,
-    SiteSettings, SiteSettingsInput, ZoneInput,
+    Booking, BookingInput, CaseSpec, CaseSpecInput, EntryKind, FieldErrors, NewZone, NumberFormat, RateStyle,
+    SCORE_RANGE, SiteSettings, SiteSettingsInput, ZoneInput,
 };
 use serde::Deserialize;
 use std::collections::BTreeMap;
@@ -83,13 +83,25 @@ pub struct ZoneScenario {
 impl Scenario {
     /// Parse and validate a scenario document. Errors name the JSON path of each bad field
     /// (`zones[2].cases[0].costs[1].amount`), or the line and column of a syntax error.
-    pub fn parse(text: &str) -> Result<Self, FieldErrors> {
+    /// Numbers given as strings are read in the format the file's `site.number_format` declares
+    /// (`stored`, the database's, when the file has no `site`); JSON numbers are plain.
+    pub fn parse(text: &str, stored: NumberFormat) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
-        let file: ScenarioFile = serde_json::from_str(text).map_err(|err| {
+        let at = |err: serde_json::Error| {
             let mut e = FieldErrors::default();
             e.push(format!("line {} column {}", err.line(), err.column()), err.to_string());
             e
-        })?;
+        };
+        let mut value: serde_json::Value = serde_json::from_str(text).map_err(at)?;
+        let numbers = match value.pointer("/site") {
+            None | Some(serde_json::Value::Null) => stored,
+            Some(site) => match site.get("number_format").and_then(|f| f.as_str()) {
+                None => NumberFormat::default(),
+                Some(f) => NumberFormat::parse(f).unwrap_or_default(),
+            },
+        };
+        written_in(&mut value, numbers);
+        let file: ScenarioFile = serde_json::from_value(value).map_err(at)?;
         if file.format != SCENARIO_FORMAT {
             e.push("format", format!("must be {SCENARIO_FORMAT:?}"));
         }
@@ -98,7 +110,7 @@ impl Scenario {
         }
         let site = match &file.site {
             None => None,
-            Some(s) => SiteSettings::parse(s).map_err(|err| e.extend_prefixed("site.", err)).ok(),
+            Some(s) => SiteSettings::parse(s, numbers).map_err(|err| e.extend_prefixed("site.", err)).ok(),
         };
         let mut zones = Vec::with_capacity(file.zones.len());
         let mut codes = std::collections::HashSet::new();
@@ -111,7 +123,7 @@ impl Scenario {
             }
             let mut cases = Vec::with_capacity(z.cases.len());
             for (j, c) in z.cases.iter().enumerate() {
-                match CaseSpec::parse(c, RateStyle::Fraction) {
+                match CaseSpec::parse(c, RateStyle::Fraction(numbers)) {
                     Ok(c) => cases.push(c),
                     Err(err) => e.extend_prefixed(&format!("zones[{i}].cases[{j}]."), err),
                 }
@@ -127,7 +139,7 @@ impl Scenario {
                 // The id is not known until the case is stored; the label stands in for it.
                 let mut input = entry.booking.clone();
                 input.item = "0".into();
-                match Booking::parse(&input) {
+                match Booking::parse(&input, numbers) {
                     Ok(booking) => {
                         let (label, field) = match booking.kind {
                             EntryKind::Saving => (&entry.driver, "driver"),
@@ -150,20 +162,37 @@ impl Scenario {
     }
 }
 
+/// Turn the file's JSON numbers with decimals into text in `numbers`, so that one reader reads
+/// both (whole numbers read the same in every format and stay numbers for the count fields).
+fn written_in(value: &mut serde_json::Value, numbers: NumberFormat) {
+    use serde_json::Value;
+    match value {
+        Value::Number(n) if !n.is_i64() && !n.is_u64() => {
+            if let Some(f) = n.as_f64() {
+                // Rust writes the shortest round-trip text, never an exponent.
+                *value = Value::String(numbers.export(&f.to_string()));
+            }
+        }
+        Value::Array(items) => items.iter_mut().for_each(|v| written_in(v, numbers)),
+        Value::Object(map) => map.values_mut().for_each(|v| written_in(v, numbers)),
+        _ => {}
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     #[test]
     fn the_demo_plant_parses() {
-        let scenario = Scenario::parse(include_str!("../../seed/demo-plant.json"));
+        let scenario = Scenario::parse(include_str!("../../seed/demo-plant.json"), NumberFormat::default());
         let zones = scenario.map(|s| s.zones.len()).unwrap_or(0);
         assert!(zones >= 6, "demo plant has {zones} zones");
     }
 
     #[test]
     fn syntax_errors_give_line_and_column() {
-        let err = Scenario::parse("{\n  \"format\": ,\n}").err().unwrap_or_default();
+        let err = Scenario::parse("{\n  \"format\": ,\n}", NumberFormat::default()).err().unwrap_or_default();
         assert!(err.0[0].field.starts_with("line 2 column"), "{err}");
     }
 }

@@ -1,7 +1,7 @@
 //! Site settings: currency, hurdle rate, tax view and defaults.
 
 use super::de::string_or_number;
-use super::{FieldErrors, parse_count, parse_decimal, required_text};
+use super::{FieldErrors, NumberFormat, parse_count, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 
@@ -22,6 +22,8 @@ pub struct SiteSettings {
     pub default_horizon_months: u32,
     /// Multiplier from analytics usage hours to saved expert hours (rule of thumb, see DESIGN).
     pub expert_multiplier: Decimal,
+    /// How forms, CSV and scenario files write numbers, and how pages and exports show them.
+    pub number_format: NumberFormat,
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
@@ -47,19 +49,28 @@ pub struct SiteSettingsInput {
     /// Expert-time multiplier; empty for 3.
     #[serde(deserialize_with = "string_or_number")]
     pub expert_multiplier: String,
+    /// `decimal_point` or `decimal_comma`; empty for decimal_point.
+    pub number_format: String,
 }
 
 impl SiteSettings {
-    /// Validate every field.
-    pub fn parse(input: &SiteSettingsInput) -> Result<Self, FieldErrors> {
+    /// Validate every field, reading numbers in `numbers` (a scenario file's are in the format
+    /// it declares, the settings form's in the format the page showed).
+    pub fn parse(input: &SiteSettingsInput, numbers: NumberFormat) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
+        let number_format = if input.number_format.trim().is_empty() {
+            Some(NumberFormat::default())
+        } else {
+            e.take("number_format", NumberFormat::parse(&input.number_format))
+        };
+        let f = numbers;
         let plant_name = e.take("plant_name", required_text(&input.plant_name, 120));
         let currency = e.take("currency", parse_currency(&input.currency));
-        let hurdle_rate = e.take("hurdle_rate", parse_rate(&input.hurdle_rate));
+        let hurdle_rate = e.take("hurdle_rate", parse_rate(&input.hurdle_rate, f));
         let tax_rate = if input.tax_rate.trim().is_empty() {
             Some(None)
         } else {
-            e.take("tax_rate", parse_decimal(&input.tax_rate).and_then(fraction_0_1).map(Some))
+            e.take("tax_rate", f.read(&input.tax_rate).and_then(fraction_0_1).map(Some))
         };
         let depreciation_years = if input.depreciation_years.trim().is_empty() {
             Some(None)
@@ -74,7 +85,7 @@ impl SiteSettings {
         let expert_multiplier = if input.expert_multiplier.trim().is_empty() {
             Some(Decimal::from(3))
         } else {
-            e.take("expert_multiplier", parse_decimal(&input.expert_multiplier))
+            e.take("expert_multiplier", f.read(&input.expert_multiplier))
         };
         match (
             plant_name,
@@ -84,6 +95,7 @@ impl SiteSettings {
             depreciation_years,
             default_horizon_months,
             expert_multiplier,
+            number_format,
         ) {
             (
                 Some(plant_name),
@@ -93,6 +105,7 @@ impl SiteSettings {
                 Some(depreciation_years),
                 Some(default_horizon_months),
                 Some(expert_multiplier),
+                Some(number_format),
             ) if e.is_empty() => Ok(Self {
                 plant_name,
                 currency,
@@ -101,6 +114,7 @@ impl SiteSettings {
                 depreciation_years,
                 default_horizon_months,
                 expert_multiplier,
+                number_format,
             }),
             _ => Err(e),
         }
@@ -108,12 +122,17 @@ impl SiteSettings {
 
     /// The hurdle rate as a percentage for the settings form.
     pub fn hurdle_pct(&self) -> String {
-        (self.hurdle_rate * Decimal::ONE_HUNDRED).normalize().to_string()
+        self.number_format.write_quantity(self.hurdle_rate * Decimal::ONE_HUNDRED)
     }
 
     /// The tax rate as a percentage for the settings form; empty when unset.
     pub fn tax_pct(&self) -> String {
-        self.tax_rate.map(|t| (t * Decimal::ONE_HUNDRED).normalize().to_string()).unwrap_or_default()
+        self.tax_rate.map(|t| self.number_format.write_quantity(t * Decimal::ONE_HUNDRED)).unwrap_or_default()
+    }
+
+    /// The expert-time multiplier for the settings form.
+    pub fn expert_text(&self) -> String {
+        self.number_format.write_quantity(self.expert_multiplier)
     }
 
     /// Depreciation years for the settings form; empty when unset.
@@ -138,8 +157,8 @@ fn parse_currency(value: &str) -> Result<String, String> {
 }
 
 /// A rate fraction greater than -1 (so that 1 + r stays positive).
-fn parse_rate(value: &str) -> Result<Decimal, String> {
-    let r = parse_decimal(value)?;
+fn parse_rate(value: &str, format: NumberFormat) -> Result<Decimal, String> {
+    let r = format.read(value)?;
     if r > Decimal::NEGATIVE_ONE { Ok(r) } else { Err("a fraction greater than -1, e.g. 0.08 for 8 %".into()) }
 }
 

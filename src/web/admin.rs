@@ -4,7 +4,7 @@ use super::auth::{CurrentUser, Nav};
 use super::{AppError, AppState, FormBody};
 use crate::auth::{Role, hash_password, hash_secret, new_secret, parse_new_password};
 use crate::db::{self, TokenRow, User, audit::AuditEntry};
-use crate::domain::{Criterion, FieldErrors, SiteSettings, SiteSettingsInput, parse_percent, parse_weights};
+use crate::domain::{Criterion, FieldErrors, NumberFormat, SiteSettings, SiteSettingsInput, parse_weights};
 use askama::Template;
 use axum::extract::{Path, State};
 use axum::http::StatusCode;
@@ -25,6 +25,7 @@ struct AdminPage {
     notice: Option<String>,
     new_token: Option<String>,
     criteria: Vec<Criterion>,
+    formats: [NumberFormat; 2],
 }
 
 async fn admin_page(
@@ -44,6 +45,7 @@ async fn admin_page(
         notice,
         new_token,
         criteria: db::readiness::criteria(&state.pool).await?,
+        formats: NumberFormat::SITE,
     };
     let status = if page.errors.is_empty() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
     Ok((status, Html(page.render()?)).into_response())
@@ -256,20 +258,22 @@ pub struct SettingsForm {
     depreciation_years: String,
     default_horizon_months: String,
     expert_multiplier: String,
+    number_format: String,
 }
 
-/// POST /admin/settings
+/// POST /admin/settings: numbers are read in the format the form was shown in (the current one).
 pub async fn update_settings(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     FormBody(f): FormBody<SettingsForm>,
 ) -> Result<Response, AppError> {
     let mut e = FieldErrors::default();
+    let shown = NumberFormat::current();
     let fraction = |e: &mut FieldErrors, field: &str, v: &str| -> String {
         if v.trim().is_empty() {
             return String::new();
         }
-        e.take(field, parse_percent(v)).map(|d| d.to_string()).unwrap_or_else(|| "invalid".into())
+        e.take(field, shown.read_percent(v)).map(|d| shown.export(&d.to_string())).unwrap_or_else(|| "invalid".into())
     };
     let input = SiteSettingsInput {
         plant_name: f.plant_name,
@@ -279,8 +283,9 @@ pub async fn update_settings(
         depreciation_years: f.depreciation_years,
         default_horizon_months: f.default_horizon_months,
         expert_multiplier: f.expert_multiplier,
+        number_format: f.number_format,
     };
-    let site = match SiteSettings::parse(&input) {
+    let site = match SiteSettings::parse(&input, shown) {
         Ok(site) if e.is_empty() => site,
         Ok(_) => return admin_page(&state, Nav::from(&me), e, None, None).await,
         Err(more) => {
@@ -294,7 +299,13 @@ pub async fn update_settings(
     };
     let mut tx = db::begin_write(&state.pool).await?;
     db::put_site(&mut tx, &site, me.name()).await?;
-    let detail = format!("currency {}, hurdle {}, tax {:?}", site.currency, site.hurdle_rate, site.tax_rate);
+    let detail = format!(
+        "currency {}, hurdle {}, tax {:?}, numbers {}",
+        site.currency,
+        site.hurdle_rate,
+        site.tax_rate,
+        site.number_format.as_str()
+    );
     db::audit::record(&mut tx, &db::now(), me.name(), "settings.update", "site", &detail).await?;
     tx.commit().await?;
     Ok(Redirect::to("/admin").into_response())

@@ -5,7 +5,7 @@ use super::auth::CurrentUser;
 use super::metrics;
 use super::{ApiError, AppState, JsonBody};
 use crate::db::{self, CaseFull};
-use crate::domain::{CaseSpec, CaseSpecInput, CaseState, NewZone, RateStyle, ZoneInput, case_figures};
+use crate::domain::{CaseSpec, CaseSpecInput, CaseState, NewZone, NumberFormat, RateStyle, ZoneInput, case_figures};
 use crate::finance::schedule::CaseMetrics;
 use axum::Json;
 use axum::extract::{Path, State};
@@ -54,7 +54,7 @@ pub async fn create_case(
     Path(zone_id): Path<i64>,
     JsonBody(input): JsonBody<CaseSpecInput>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let mut spec = CaseSpec::parse(&input, RateStyle::Fraction)?;
+    let mut spec = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain))?;
     spec.state = CaseState::Draft;
     let mut tx = db::begin_write(&state.pool).await?;
     let id = db::insert_case(&mut tx, zone_id, &spec, user.name()).await?;

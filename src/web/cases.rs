@@ -8,8 +8,8 @@ use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
-    FieldErrors, Money, NewBenefitDriver, NewCostItem, Percent, RateStyle, SiteSettings, Trials, Zone, calibration_of,
-    case_figures, case_uncertainty, parse_seed,
+    FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle, SiteSettings, Trials, Zone,
+    calibration_of, case_figures, case_uncertainty, parse_seed,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -285,7 +285,7 @@ fn header_input(h: &CaseHeader) -> CaseHeaderInput {
         start_month: h.start_month.to_string(),
         go_live_offset: h.go_live_offset.to_string(),
         ramp_up_months: h.ramp_up_months.to_string(),
-        success_probability: (h.success_probability * Decimal::ONE_HUNDRED).normalize().to_string(),
+        success_probability: NumberFormat::current().write_quantity(h.success_probability * Decimal::ONE_HUNDRED),
     }
 }
 
@@ -373,7 +373,7 @@ pub async fn update_header(
     Path(id): Path<i64>,
     FormBody(input): FormBody<CaseHeaderInput>,
 ) -> Result<Response, AppError> {
-    match CaseHeader::parse(&input, RateStyle::Percent) {
+    match CaseHeader::parse(&input, RateStyle::Percent(NumberFormat::current())) {
         Ok(header) => {
             let detail = format!("{} months from {}", header.horizon_months, header.start_month);
             write_then_edit(&state, &user, id, "case.update", async |conn| {
@@ -393,7 +393,7 @@ pub async fn add_cost(
     FormBody(input): FormBody<CostInput>,
 ) -> Result<Response, AppError> {
     let full = db::case_full(&state.pool, id).await?;
-    match NewCostItem::parse(&input, full.case.header.horizon_months, RateStyle::Percent) {
+    match NewCostItem::parse(&input, full.case.header.horizon_months, RateStyle::Percent(NumberFormat::current())) {
         Ok(item) => {
             write_then_edit(&state, &user, id, "cost.add", async |conn| {
                 db::add_cost(conn, id, &item, user.name())
@@ -413,7 +413,7 @@ pub async fn add_driver(
     Path(id): Path<i64>,
     FormBody(input): FormBody<DriverInput>,
 ) -> Result<Response, AppError> {
-    match NewBenefitDriver::parse(&input, RateStyle::Percent) {
+    match NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::current())) {
         Ok(d) => {
             write_then_edit(&state, &user, id, "driver.add", async |conn| {
                 db::add_driver(conn, id, &d, user.name()).await.map(|n| format!("driver {n}: {}", d.label))

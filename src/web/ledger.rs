@@ -6,8 +6,8 @@ use super::chart::PairChart;
 use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
-    Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, Percent,
-    RealizedView, SiteSettings, Zone, realized_view,
+    Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, NumberFormat,
+    Percent, RealizedView, SiteSettings, Zone, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -15,7 +15,7 @@ use axum::extract::{Multipart, Path, State};
 use axum::http::{HeaderMap, StatusCode, header};
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 use std::sync::Arc;
 
@@ -118,7 +118,7 @@ fn figures(view: &RealizedView) -> Figures {
                 unit: d.unit.clone(),
                 expected: Money(d.realization.expected_to_date),
                 measured: Money(d.realization.measured_to_date),
-                quantity: crate::domain::group_thousands(d.measured_quantity, 0),
+                quantity: NumberFormat::current().write(d.measured_quantity, 0),
                 rate: rate_text(d.realization.rate),
                 chart: PairChart::monthly(&d.expected, &d.measured, months, &d.label),
             })
@@ -245,7 +245,7 @@ pub async fn book(
     Path(id): Path<i64>,
     FormBody(input): FormBody<BookingInput>,
 ) -> Result<Response, AppError> {
-    let booking = match Booking::parse(&input) {
+    let booking = match Booking::parse(&input, NumberFormat::current()) {
         Ok(b) => b,
         Err(e) => return page(&state, &me, id, input, e, None).await,
     };
@@ -258,7 +258,7 @@ pub async fn book(
 }
 
 /// The reversal form and body.
-#[derive(Deserialize, Default)]
+#[derive(Deserialize, Serialize, Default)]
 #[serde(default)]
 pub struct ReverseInput {
     evidence: String,
@@ -307,7 +307,8 @@ pub async fn reverse(
 }
 
 /// Parse and book a whole CSV file in one transaction: all rows or none. Every bad row is
-/// reported with its line number and column.
+/// reported with its line number and column. Cells are read in the site's number format, and a
+/// decimal-comma site's files are separated by `;`.
 pub async fn import_csv(
     state: &AppState,
     me: &Principal,
@@ -322,6 +323,7 @@ pub async fn import_csv(
         )));
     }
     let month = current_month(state);
+    let numbers = db::number_format(&state.pool).await?;
     // Parse and check off the async threads and outside the write lock (a large file takes a
     // noticeable fraction of a second); under the lock, the baseline is read again and the rows
     // checked again only if it changed meanwhile, so they are stored against what they were
@@ -330,14 +332,14 @@ pub async fn import_csv(
     let bytes = Arc::new(bytes);
     let (mut rows, checked_with) = {
         let (bytes, baseline) = (bytes.clone(), baseline.clone());
-        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, month), baseline))
+        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, month, numbers), baseline))
             .await
             .map_err(|e| AppError::Internal(e.into()))?
     };
     let mut tx = db::begin_write(&state.pool).await?;
     let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
     if current != checked_with {
-        rows = checked_rows(&bytes, &current, month);
+        rows = checked_rows(&bytes, &current, month, numbers);
     }
     let rows = rows?;
     let hash = crate::auth::sha256_hex(&bytes);
@@ -351,15 +353,27 @@ pub async fn import_csv(
 }
 
 /// Every row of a CSV file checked against the baseline, or every error by line and column.
-fn checked_rows(bytes: &[u8], baseline: &BookingBaseline, month: Month) -> Result<Vec<NewEntry>, AppError> {
+fn checked_rows(
+    bytes: &[u8],
+    baseline: &BookingBaseline,
+    month: Month,
+    numbers: NumberFormat,
+) -> Result<Vec<NewEntry>, AppError> {
     let invalid = |field: &str, message: String| AppError::Invalid(FieldErrors::one(field, message));
-    let mut reader = csv::ReaderBuilder::new().trim(csv::Trim::All).flexible(false).from_reader(bytes);
+    let delimiter = numbers.csv_delimiter();
+    let mut reader =
+        csv::ReaderBuilder::new().delimiter(delimiter).trim(csv::Trim::All).flexible(false).from_reader(bytes);
     let headers = reader.headers().map_err(|e| invalid("line 1", format!("cannot read the header row: {e}")))?.clone();
     let missing: Vec<&str> = CSV_COLUMNS.iter().copied().filter(|c| !headers.iter().any(|h| h == *c)).collect();
     if !missing.is_empty() {
         return Err(invalid(
             "line 1",
-            format!("missing column(s): {}; expected {}", missing.join(", "), CSV_COLUMNS.join(",")),
+            format!(
+                "missing column(s): {}; expected {} (this site separates columns by {:?})",
+                missing.join(", "),
+                CSV_COLUMNS.join(&char::from(delimiter).to_string()),
+                char::from(delimiter)
+            ),
         ));
     }
     let col = |name: &str| headers.iter().position(|h| h == name);
@@ -412,7 +426,7 @@ fn checked_rows(bytes: &[u8], baseline: &BookingBaseline, month: Month) -> Resul
             amount: get("amount"),
             evidence: get("evidence"),
         };
-        match Booking::parse(&input).and_then(|b| baseline.check(&b, month)) {
+        match Booking::parse(&input, numbers).and_then(|b| baseline.check(&b, month)) {
             Ok(entry) => rows.push(entry),
             Err(e) => errors.extend_prefixed(&format!("line {line}, column "), e),
         }
@@ -475,18 +489,23 @@ pub async fn import(
     }
 }
 
-/// The ledger as CSV in the import layout plus bookkeeping columns.
-fn csv_of(entries: &[LedgerEntry], zone_codes: &std::collections::HashMap<i64, String>) -> Result<String, AppError> {
-    let mut w = csv::Writer::from_writer(Vec::new());
+/// The ledger as CSV in the import layout plus bookkeeping columns, numbers (ungrouped) and
+/// delimiter in the site's format so that the importer reads the file back.
+fn csv_of(
+    entries: &[LedgerEntry],
+    zone_codes: &std::collections::HashMap<i64, String>,
+    numbers: NumberFormat,
+) -> Result<String, AppError> {
+    let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let mut head: Vec<&str> = vec!["entry", "zone"];
     head.extend(CSV_COLUMNS);
     head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by"]);
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&head).map_err(internal)?;
-    let text = |d: Option<Decimal>| d.map(|d| d.to_string()).unwrap_or_default();
+    let text = |d: Option<Decimal>| d.map(|d| numbers.export(&d.to_string())).unwrap_or_default();
     let id = |v: Option<i64>| v.map(|v| v.to_string()).unwrap_or_default();
     for e in entries {
-        let amount = if e.kind == EntryKind::Spending { (-e.amount).to_string() } else { String::new() };
+        let amount = if e.kind == EntryKind::Spending { text(Some(-e.amount)) } else { String::new() };
         w.write_record([
             e.id.to_string(),
             zone_codes.get(&e.zone_id).cloned().unwrap_or_default(),
@@ -528,14 +547,14 @@ pub async fn export_zone(State(state): State<AppState>, Path(id): Path<i64>) -> 
     let zone = db::get_zone(&state.pool, id).await?;
     let entries = db::ledger::zone_entries(&state.pool, id).await?;
     let codes = std::iter::once((zone.id, zone.code.clone())).collect();
-    Ok(csv_response(&format!("ledger-{}.csv", zone.code), csv_of(&entries, &codes)?))
+    Ok(csv_response(&format!("ledger-{}.csv", zone.code), csv_of(&entries, &codes, NumberFormat::current())?))
 }
 
 /// GET /ledger.csv: every zone's entries.
 pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppError> {
     let codes = db::list_zones(&state.pool).await?.into_iter().map(|z| (z.id, z.code)).collect();
     let entries = db::ledger::all_entries(&state.pool).await?;
-    Ok(csv_response("ledger.csv", csv_of(&entries, &codes)?))
+    Ok(csv_response("ledger.csv", csv_of(&entries, &codes, NumberFormat::current())?))
 }
 
 /// GET /api/v1/zones/{id}/ledger: entries and realized figures.
@@ -570,7 +589,7 @@ pub async fn api_book(
     headers: HeaderMap,
     JsonBody(input): JsonBody<BookingInput>,
 ) -> Result<Response, ApiError> {
-    let booking = Booking::parse(&input)?;
+    let booking = Booking::parse(&input, NumberFormat::Plain)?;
     let key =
         headers.get("idempotency-key").and_then(|v| v.to_str().ok()).map(|k| format!("{}:{}", me.name(), k.trim()));
     if key.as_ref().is_some_and(|k| k.len() > 200) {

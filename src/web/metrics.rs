@@ -6,13 +6,12 @@
 //! Values are decimal strings, or null where undefined.
 
 use super::{ApiError, AppError, JsonBody};
-use crate::domain::FieldErrors;
+use crate::domain::{FieldErrors, NumberFormat};
 use crate::finance::{self, FinanceError};
 use axum::Json;
 use rust_decimal::Decimal;
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
-use std::str::FromStr;
 
 /// Decimal places of rates in answers (IRR tolerance is far below this).
 const RATE_DP: u32 = 12;
@@ -30,7 +29,7 @@ pub fn money_text(d: Decimal) -> String {
 }
 
 /// The raw body: every field kept as JSON so that each can be rejected by name.
-#[derive(Deserialize)]
+#[derive(Deserialize, Serialize)]
 pub struct MetricsRequest {
     rate: Option<Value>,
     flows: Option<Value>,
@@ -40,14 +39,15 @@ pub struct MetricsRequest {
 }
 
 fn number(v: &Value) -> Result<Decimal, String> {
-    let text = match v {
-        Value::String(s) => s.trim().to_string(),
-        Value::Number(n) => n.to_string(),
-        _ => return Err("a number, as a JSON number or a decimal string such as \"-1000.50\"".into()),
-    };
-    Decimal::from_str(&text)
-        .or_else(|_| Decimal::from_scientific(&text))
-        .map_err(|_| format!("not a decimal number: {text:?}"))
+    match v {
+        Value::String(s) => NumberFormat::Plain.read(s),
+        // Rust writes a double's shortest round-trip text without an exponent.
+        Value::Number(n) => match n.as_i64() {
+            Some(i) => Ok(Decimal::from(i)),
+            None => NumberFormat::Plain.read(&n.as_f64().map_or_else(|| n.to_string(), |f| f.to_string())),
+        },
+        _ => Err("a number, as a JSON number or a decimal string such as \"-1000.50\"".into()),
+    }
 }
 
 fn rate(v: &Value) -> Result<f64, String> {

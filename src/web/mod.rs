@@ -20,10 +20,13 @@ pub use error::{ApiError, AppError};
 pub use ledger::IMPORT_MAX_BYTES;
 
 use crate::auth::{Clock, Permission, Throttle};
+use crate::domain::FieldErrors;
+use crate::domain::NumberFormat;
 use axum::extract::{DefaultBodyLimit, FromRequest, Request};
 use axum::http::{HeaderValue, Method, StatusCode, header};
 use axum::routing::{MethodRouter, get, post};
 use axum::{Form, Json, Router};
+use serde::Serialize;
 use serde::de::DeserializeOwned;
 use sqlx::SqlitePool;
 use std::collections::HashMap;
@@ -202,6 +205,7 @@ pub fn app(state: AppState) -> Router {
     }
     router
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), auth::authorize))
+        .route_layer(axum::middleware::from_fn_with_state(state.clone(), site_numbers))
         .nest_service("/static", ServeDir::new(static_dir))
         .fallback(pages::not_found)
         .with_state(state)
@@ -232,20 +236,85 @@ pub fn app(state: AppState) -> Router {
         )
 }
 
+/// Answer a page or export with the site's number format as [`NumberFormat::current`], which
+/// `Display` of money and percentages and every form reader use. The API reads and writes plain
+/// decimals whatever the site's format, so its requests skip the lookup.
+async fn site_numbers(
+    axum::extract::State(state): axum::extract::State<AppState>,
+    req: Request,
+    next: axum::middleware::Next,
+) -> axum::response::Response {
+    if req.uri().path().starts_with("/api/") {
+        return next.run(req).await;
+    }
+    let numbers = match crate::db::number_format(&state.pool).await {
+        Ok(f) => f,
+        Err(e) => {
+            tracing::error!(error = ?e, "number format unreadable; using the default");
+            NumberFormat::default()
+        }
+    };
+    numbers.scope(next.run(req)).await
+}
+
 /// A JSON body whose rejection is answered as an [`ApiError`] (400 syntax, 415 content type,
-/// 422 shape) instead of axum's plain-text default.
+/// 422 shape) instead of axum's plain-text default. A field the body type does not have is a
+/// 422 naming it (`costs[0].amout`): a typo is never silently ignored.
+///
+/// Unknown fields are found by comparing the keys sent with the keys of the parsed body written
+/// back, rather than by `#[serde(deny_unknown_fields)]`, which cannot be combined with the
+/// `flatten` that scenario files use on the same input types.
 pub struct JsonBody<T>(pub T);
 
-impl<S: Send + Sync, T: DeserializeOwned> FromRequest<S> for JsonBody<T> {
+impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBody<T> {
     type Rejection = ApiError;
 
     async fn from_request(req: Request, state: &S) -> Result<Self, Self::Rejection> {
-        match Json::<T>::from_request(req, state).await {
-            Ok(Json(v)) => Ok(Self(v)),
+        let (parts, body) = req.into_parts();
+        let bytes = axum::body::Bytes::from_request(Request::from_parts(parts.clone(), body), state)
+            .await
+            .map_err(|r| ApiError(AppError::BadRequest { status: r.status(), message: r.body_text() }))?;
+        let req = Request::from_parts(parts, axum::body::Body::from(bytes.clone()));
+        let parsed = match Json::<T>::from_request(req, state).await {
+            Ok(Json(v)) => v,
             Err(rejection) => {
-                Err(ApiError(AppError::BadRequest { status: rejection.status(), message: rejection.body_text() }))
+                return Err(ApiError(AppError::BadRequest {
+                    status: rejection.status(),
+                    message: rejection.body_text(),
+                }));
+            }
+        };
+        let sent: serde_json::Value =
+            serde_json::from_slice(&bytes).map_err(|e| ApiError(AppError::Internal(e.into())))?;
+        let known = serde_json::to_value(&parsed).map_err(|e| ApiError(AppError::Internal(e.into())))?;
+        let mut unknown = FieldErrors::default();
+        unknown_fields(&sent, &known, "", &mut unknown);
+        if unknown.is_empty() { Ok(Self(parsed)) } else { Err(ApiError(AppError::Invalid(unknown))) }
+    }
+}
+
+/// Record every key of `sent` that `known` (the parsed body written back) lacks, by its path.
+fn unknown_fields(sent: &serde_json::Value, known: &serde_json::Value, path: &str, out: &mut FieldErrors) {
+    use serde_json::Value;
+    let join = |key: &str| if path.is_empty() { key.to_string() } else { format!("{path}.{key}") };
+    match (sent, known) {
+        (Value::Object(sent), Value::Object(known)) => {
+            for (key, value) in sent {
+                match known.get(key) {
+                    Some(k) => unknown_fields(value, k, &join(key), out),
+                    None => {
+                        let expected: Vec<&str> = known.keys().map(String::as_str).collect();
+                        out.push(join(key), format!("unknown field; expected one of: {}", expected.join(", ")));
+                    }
+                }
             }
         }
+        (Value::Array(sent), Value::Array(known)) => {
+            for (i, (s, k)) in sent.iter().zip(known).enumerate() {
+                unknown_fields(s, k, &format!("{path}[{i}]"), out);
+            }
+        }
+        _ => {}
     }
 }
 

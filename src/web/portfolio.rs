@@ -7,8 +7,8 @@ use super::metrics::{money_text, rate_text};
 use super::{ApiError, AppError, AppState};
 use crate::db;
 use crate::domain::{
-    BudgetChoice, FieldErrors, Money, Percent, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow, RankBy,
-    SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of,
+    BudgetChoice, FieldErrors, Money, NumberFormat, Percent, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
+    RankBy, SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of,
 };
 use askama::Template;
 use axum::extract::{Query, State};
@@ -295,7 +295,8 @@ pub async fn page(
     Query(pq): Query<PageQuery>,
 ) -> Result<Response, AppError> {
     let q = pq.q;
-    let (params, errors) = match PortfolioParams::parse(&q) {
+    let numbers = NumberFormat::current();
+    let (params, errors) = match PortfolioParams::parse(&q, numbers) {
         Ok(p) => (Some(p), FieldErrors::default()),
         Err(e) => (None, e),
     };
@@ -323,7 +324,7 @@ pub async fn page(
     page.trials = params.trials.count;
     let figures = state
         .answers
-        .get(&state.pool, format!("page?{query}"), || async {
+        .get(&state.pool, format!("page:{}?{query}", numbers.as_str()), || async {
             let basis = params.basis;
             let (site, portfolio) = compute(&state, params).await?;
             let figures = PortfolioFigures {
@@ -342,15 +343,19 @@ pub async fn page(
 
 /// GET /portfolio.csv: the table as the page shows it, one row per zone.
 pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, AppError> {
-    let params = PortfolioParams::parse(&q)?;
-    let key = format!("csv?{}", query_string(&q));
-    let body = state.answers.get(&state.pool, key, || csv_text(&state, params)).await?;
+    let numbers = NumberFormat::current();
+    let params = PortfolioParams::parse(&q, numbers)?;
+    // The format is part of the key: the answer's text depends on it (and on the query read in it).
+    let key = format!("csv:{}?{}", numbers.as_str(), query_string(&q));
+    let body = state.answers.get(&state.pool, key, || csv_text(&state, params, numbers)).await?;
     Ok(super::ledger::csv_response("portfolio.csv", body.body()))
 }
 
-async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
+/// The CSV: the API's decimal strings with the site's decimal separator, ungrouped, so that a
+/// spreadsheet of that locale reads them.
+async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberFormat) -> Result<String, AppError> {
     let (site, portfolio) = compute(state, params).await?;
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let cur = &site.currency;
     let header = [
         "rank".to_string(),
@@ -379,7 +384,7 @@ async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, A
     w.write_record(&header).map_err(internal)?;
     for (i, r) in portfolio.rows.iter().enumerate() {
         let j = row_json(i + 1, r);
-        let text = Option::unwrap_or_default;
+        let text = |v: Option<String>| v.map(|v| numbers.export(&v)).unwrap_or_default();
         let record = [
             j.rank.to_string(),
             j.code.to_string(),
@@ -400,7 +405,7 @@ async fn csv_text(state: &AppState, params: PortfolioParams) -> Result<String, A
             text(j.p50_npv),
             text(j.p90_npv),
             text(j.realization_to_date),
-            j.readiness.map(|x| format!("{:.2}", x.score)).unwrap_or_default(),
+            j.readiness.map(|x| numbers.export(&format!("{:.2}", x.score))).unwrap_or_default(),
             j.problem.unwrap_or_default().to_string(),
         ];
         w.write_record(&record).map_err(internal)?;
@@ -495,7 +500,7 @@ fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
 
 /// GET /api/v1/portfolio?budget=&rank=&basis=&min_readiness=&seed=
 pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, ApiError> {
-    let params = PortfolioParams::parse(&q).map_err(AppError::from)?;
+    let params = PortfolioParams::parse(&q, NumberFormat::Plain).map_err(AppError::from)?;
     let key = format!("api?{}", query_string(&q));
     let body = state.answers.get(&state.pool, key, || api_json(&state, params)).await?;
     Ok(([(header::CONTENT_TYPE, "application/json")], body.body()).into_response())

@@ -298,7 +298,7 @@ fn scenario_loader_refuses_mangled_files_whole() {
             }
             let text = String::from_utf8_lossy(&text).into_owned();
             tried.set(tried.get() + 1);
-            if Scenario::parse(&text).is_ok() {
+            if Scenario::parse(&text, pilot_ledger::domain::NumberFormat::default()).is_ok() {
                 parsed.set(parsed.get() + 1);
             }
             rt.block_on(async {

@@ -1,0 +1,447 @@
+//! The one number reader and writer. Every number typed into a form, a CSV cell, a scenario
+//! file or a JSON body is read by [`read`] in the format of its way in; nothing parses a
+//! number any other way.
+//!
+//! A site declares one of two formats: a decimal point with comma grouping (`1,250.75`) or a
+//! decimal comma with point grouping (`1.250,75`). Both also accept a space, a no-break space
+//! (U+00A0) or a narrow no-break space (U+202F) between groups. The JSON API reads
+//! [`NumberFormat::Plain`]: a decimal point and no grouping. Anything that could mean two
+//! numbers (`1,5` on a decimal-point site) or that is not well formed is refused with what
+//! would be accepted.
+//!
+//! Pages write numbers through `Display` of `Money` and `Percent` and through `quantity` and
+//! `pct`, which use the format of the request being answered ([`NumberFormat::current`], set
+//! by the web layer for each request with [`NumberFormat::scope`]); outside a request they write
+//! the decimal-point format.
+
+use rust_decimal::{Decimal, RoundingStrategy};
+use serde::Serialize;
+use std::future::Future;
+use std::str::FromStr;
+
+/// How numbers are written and read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum NumberFormat {
+    /// Decimal point, comma grouping: `1,250.75`.
+    #[default]
+    DecimalPoint,
+    /// Decimal comma, point grouping: `1.250,75`.
+    DecimalComma,
+    /// The JSON API's: decimal point, no grouping: `1250.75`.
+    Plain,
+}
+
+const SPACES: [char; 3] = [' ', '\u{a0}', '\u{202f}'];
+
+tokio::task_local! {
+    static CURRENT: NumberFormat;
+}
+
+impl NumberFormat {
+    /// The formats a site can declare.
+    pub const SITE: [Self; 2] = [Self::DecimalPoint, Self::DecimalComma];
+
+    /// Stored and scenario-file spelling.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::DecimalPoint => "decimal_point",
+            Self::DecimalComma => "decimal_comma",
+            Self::Plain => "plain",
+        }
+    }
+
+    /// Parse a site's format by its spelling.
+    pub fn parse(value: &str) -> Result<Self, String> {
+        match value.trim() {
+            "decimal_point" => Ok(Self::DecimalPoint),
+            "decimal_comma" => Ok(Self::DecimalComma),
+            _ => Err("decimal_point (1,250.75) or decimal_comma (1.250,75)".into()),
+        }
+    }
+
+    /// How the settings form names it.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::DecimalPoint => "1,250.75 (decimal point)",
+            Self::DecimalComma => "1.250,75 (decimal comma)",
+            Self::Plain => "1250.75 (plain)",
+        }
+    }
+
+    /// The decimal separator.
+    pub fn decimal(self) -> char {
+        match self {
+            Self::DecimalComma => ',',
+            Self::DecimalPoint | Self::Plain => '.',
+        }
+    }
+
+    /// The grouping character pages write, if any.
+    fn group(self) -> Option<char> {
+        match self {
+            Self::DecimalPoint => Some(','),
+            Self::DecimalComma => Some('.'),
+            Self::Plain => None,
+        }
+    }
+
+    fn is_group(self, c: char) -> bool {
+        self.group().is_some_and(|g| g == c || SPACES.contains(&c))
+    }
+
+    /// An example in this format, for messages.
+    pub fn example(self) -> &'static str {
+        match self {
+            Self::DecimalPoint => "1,250.75",
+            Self::DecimalComma => "1.250,75",
+            Self::Plain => "1250.75",
+        }
+    }
+
+    /// What this format accepts, for messages.
+    fn accepts(self) -> &'static str {
+        match self {
+            Self::DecimalPoint => {
+                "digits with a decimal point, grouped in threes by comma or space or not at all, e.g. 1,250.75 or 1250.75"
+            }
+            Self::DecimalComma => {
+                "digits with a decimal comma, grouped in threes by point or space or not at all, e.g. 1.250,75 or 1250,75"
+            }
+            Self::Plain => "a plain decimal: digits with a decimal point and no grouping, e.g. 1250.75",
+        }
+    }
+
+    /// The other site format.
+    fn other(self) -> Option<Self> {
+        match self {
+            Self::DecimalPoint => Some(Self::DecimalComma),
+            Self::DecimalComma => Some(Self::DecimalPoint),
+            Self::Plain => None,
+        }
+    }
+
+    /// Read a number typed in this format (see the module docs).
+    pub fn read(self, text: &str) -> Result<Decimal, String> {
+        let t = text.trim();
+        if t.is_empty() {
+            return Err(format!("required: enter a number such as {}", self.example()));
+        }
+        self.read_strict(t).map_err(|reason| {
+            // Say so when the text is a well-formed number of the other site format.
+            let written_other = self
+                .other()
+                .filter(|o| !matches!(reason, Refusal::Ambiguous(_)) && t.contains(o.decimal()))
+                .filter(|o| o.read_strict(t).is_ok());
+            match (written_other, reason) {
+                (Some(o), _) => format!(
+                    "{t:?} is written with a decimal {}; this site writes {}",
+                    if o.decimal() == ',' { "comma" } else { "point" },
+                    self.accepts()
+                ),
+                (None, Refusal::Ambiguous(options)) => {
+                    format!("{t:?} is ambiguous here (groups of thousands have three digits): use {options}")
+                }
+                (None, Refusal::TwoDecimals) => format!(
+                    "{t:?} has more than one decimal {}; enter {}",
+                    if self.decimal() == ',' { "comma" } else { "point" },
+                    self.accepts()
+                ),
+                (None, Refusal::Mixed) => format!("{t:?} mixes grouping characters; enter {}", self.accepts()),
+                (None, Refusal::Grouping) => {
+                    format!("{t:?} is not grouped in threes; enter {}", self.accepts())
+                }
+                (None, Refusal::TooLong) => format!("{t:?} has too many digits (at most 28)"),
+                (None, Refusal::NotANumber) => format!("not a number: {t:?}; enter {}", self.accepts()),
+            }
+        })
+    }
+
+    fn read_strict(self, t: &str) -> Result<Decimal, Refusal> {
+        let (negative, body) = match t.strip_prefix('-') {
+            Some(rest) => (true, rest),
+            None => (false, t.strip_prefix('+').unwrap_or(t)),
+        };
+        if body.is_empty() || !body.chars().all(|c| c.is_ascii_digit() || c == self.decimal() || self.is_group(c)) {
+            return Err(Refusal::NotANumber);
+        }
+        if body.matches(self.decimal()).count() > 1 {
+            return Err(Refusal::TwoDecimals);
+        }
+        let (int, frac) = body.split_once(self.decimal()).unwrap_or((body, ""));
+        if (body.contains(self.decimal()) && frac.is_empty()) || !frac.chars().all(|c| c.is_ascii_digit()) {
+            return Err(Refusal::NotANumber);
+        }
+        let mut seps = int.chars().filter(|c| !c.is_ascii_digit());
+        let digits: String = match seps.next() {
+            None if int.is_empty() && frac.is_empty() => return Err(Refusal::NotANumber),
+            None if int.is_empty() => "0".to_string(),
+            None => int.to_string(),
+            Some(sep) => {
+                if seps.any(|c| c != sep) {
+                    return Err(Refusal::Mixed);
+                }
+                let groups: Vec<&str> = int.split(sep).collect();
+                // `1,5` on a decimal-point site: a decimal comma or a slip in `1,500`?
+                if let [head, tail] = groups.as_slice()
+                    && Some(sep) == self.group()
+                    && frac.is_empty()
+                    && !head.is_empty()
+                    && tail.len() != 3
+                    && !tail.is_empty()
+                {
+                    let mut options = format!("{head}{}{tail}", self.decimal());
+                    if tail.len() < 3 {
+                        options.push_str(&format!(" or {head}{sep}{tail:0<3}"));
+                    }
+                    return Err(Refusal::Ambiguous(options));
+                }
+                let well_formed = groups.first().is_some_and(|g| (1..=3).contains(&g.len()))
+                    && groups.iter().skip(1).all(|g| g.len() == 3);
+                if !well_formed {
+                    return Err(Refusal::Grouping);
+                }
+                groups.concat()
+            }
+        };
+        let plain =
+            format!("{}{}.{}", if negative { "-" } else { "" }, digits, if frac.is_empty() { "0" } else { frac });
+        Decimal::from_str(&plain).map(|d| d.normalize()).map_err(|_| Refusal::TooLong)
+    }
+
+    /// Read a percentage (`8.5` or `8.5 %` means 8.5 %) into a fraction (`0.085`).
+    pub fn read_percent(self, text: &str) -> Result<Decimal, String> {
+        let v = text.trim().trim_end_matches('%');
+        self.read(v).map(|d| (d / Decimal::ONE_HUNDRED).normalize())
+    }
+
+    /// Write `value` rounded half away from zero to `dp` decimals, grouped in threes (the
+    /// plain format does not group).
+    pub fn write(self, value: Decimal, dp: u32) -> String {
+        let rounded = value.round_dp_with_strategy(dp, RoundingStrategy::MidpointAwayFromZero);
+        let text = format!("{:.*}", dp as usize, rounded.abs());
+        let (int, frac) = text.split_once('.').unwrap_or((text.as_str(), ""));
+        let mut out = String::with_capacity(text.len() + int.len() / 3 + 1);
+        if rounded.is_sign_negative() && !rounded.is_zero() {
+            out.push('-');
+        }
+        for (i, ch) in int.chars().enumerate() {
+            if let Some(g) = self.group()
+                && i > 0
+                && (int.len() - i) % 3 == 0
+            {
+                out.push(g);
+            }
+            out.push(ch);
+        }
+        if !frac.is_empty() {
+            out.push(self.decimal());
+            out.push_str(frac);
+        }
+        out
+    }
+
+    /// Write a quantity with the decimals it has (`1250.50` -> `1,250.5`).
+    pub fn write_quantity(self, value: Decimal) -> String {
+        let v = value.normalize();
+        self.write(v, v.scale())
+    }
+
+    /// A plain decimal text (`-1250.5`, as the API writes it) with this format's decimal
+    /// separator and no grouping: CSV cells, which the importer reads back.
+    pub fn export(self, plain: &str) -> String {
+        plain.replace('.', &self.decimal().to_string())
+    }
+
+    /// The CSV field delimiter that goes with this format: `;` beside a decimal comma.
+    pub fn csv_delimiter(self) -> u8 {
+        match self {
+            Self::DecimalComma => b';',
+            Self::DecimalPoint | Self::Plain => b',',
+        }
+    }
+
+    /// The format of the request being answered; the decimal-point format outside one.
+    pub fn current() -> Self {
+        CURRENT.try_with(|f| *f).unwrap_or_default()
+    }
+
+    /// Run `work` with this as the [`current`](Self::current) format.
+    pub async fn scope<F: Future>(self, work: F) -> F::Output {
+        CURRENT.scope(self, work).await
+    }
+}
+
+/// Why a text is not a number of a format.
+enum Refusal {
+    NotANumber,
+    TwoDecimals,
+    Mixed,
+    Grouping,
+    /// What would be accepted instead.
+    Ambiguous(String),
+    TooLong,
+}
+
+/// Read `text` in `format`: the one number reader (see the module docs).
+pub fn read(text: &str, format: NumberFormat) -> Result<Decimal, String> {
+    format.read(text)
+}
+
+/// Read a percentage typed in `format` into a fraction.
+pub fn read_percent(text: &str, format: NumberFormat) -> Result<Decimal, String> {
+    format.read_percent(text)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::NumberFormat::{DecimalComma as Comma, DecimalPoint as Point, Plain};
+    use super::*;
+    use proptest::prelude::*;
+    use rust_decimal::dec;
+
+    #[test]
+    fn accepted_inputs() {
+        let table = [
+            (Point, "1,250.75", dec!(1250.75)),
+            (Point, "1250.75", dec!(1250.75)),
+            (Point, "1 250.75", dec!(1250.75)),
+            (Point, "1\u{202f}250\u{202f}000.5", dec!(1250000.5)),
+            (Point, "1\u{a0}250", dec!(1250)),
+            (Point, "-12,000.50", dec!(-12000.5)),
+            (Point, "1,250", dec!(1250)),
+            (Point, "+3", dec!(3)),
+            (Point, ".5", dec!(0.5)),
+            (Point, "  42 ", dec!(42)),
+            (Comma, "1.250,75", dec!(1250.75)),
+            (Comma, "12000,50", dec!(12000.5)),
+            (Comma, "1 250,75", dec!(1250.75)),
+            (Comma, "1\u{202f}250,75", dec!(1250.75)),
+            (Comma, "1,5", dec!(1.5)),
+            (Comma, "1.250", dec!(1250)),
+            (Comma, "-0,25", dec!(-0.25)),
+            (Plain, "1250.75", dec!(1250.75)),
+            (Plain, "-0.001", dec!(-0.001)),
+            (Plain, "7", dec!(7)),
+        ];
+        for (format, text, expected) in table {
+            assert_eq!(format.read(text), Ok(expected), "{format:?} {text:?}");
+        }
+    }
+
+    #[test]
+    fn refused_inputs() {
+        let refused = [
+            (Point, "1,5"),
+            (Point, "1.250,75"),
+            (Point, "1_000"),
+            (Point, "1.2.3"),
+            (Point, "1,250 000"),
+            (Point, "12,34,567"),
+            (Point, "1,2345"),
+            (Point, "1."),
+            (Point, "1e5"),
+            (Point, "-"),
+            (Point, "twelve"),
+            (Point, "1.250.000"),
+            (Comma, "1.5"),
+            (Comma, "1,250.75"),
+            (Comma, "1,2,3"),
+            (Comma, "1.250 000,5"),
+            (Comma, "1_000"),
+            (Plain, "1,5"),
+            (Plain, "1,500"),
+            (Plain, "1 500"),
+            (Plain, "1.2.3"),
+        ];
+        for (format, text) in refused {
+            assert!(format.read(text).is_err(), "{format:?} {text:?} was accepted: {:?}", format.read(text));
+        }
+    }
+
+    #[test]
+    fn refusals_say_what_would_be_accepted() {
+        assert_eq!(Point.read(""), Err("required: enter a number such as 1,250.75".into()));
+        assert_eq!(
+            Point.read("1,5"),
+            Err("\"1,5\" is ambiguous here (groups of thousands have three digits): use 1.5 or 1,500".into())
+        );
+        assert_eq!(
+            Comma.read("1.5"),
+            Err("\"1.5\" is ambiguous here (groups of thousands have three digits): use 1,5 or 1.500".into())
+        );
+        assert_eq!(
+            Point.read("1.250,75"),
+            Err("\"1.250,75\" is written with a decimal comma; this site writes digits with a decimal point, \
+                 grouped in threes by comma or space or not at all, e.g. 1,250.75 or 1250.75"
+                .into())
+        );
+        assert_eq!(
+            Point.read("1_000"),
+            Err("not a number: \"1_000\"; enter digits with a decimal point, grouped in threes by comma or space \
+                 or not at all, e.g. 1,250.75 or 1250.75"
+                .into())
+        );
+        assert_eq!(
+            Comma.read("1,2,3"),
+            Err("\"1,2,3\" has more than one decimal comma; enter digits with a decimal comma, grouped in threes \
+                 by point or space or not at all, e.g. 1.250,75 or 1250,75"
+                .into())
+        );
+        assert_eq!(
+            Comma.read("1.250 000,5"),
+            Err("\"1.250 000,5\" mixes grouping characters; enter digits with a decimal comma, grouped in threes \
+                 by point or space or not at all, e.g. 1.250,75 or 1250,75"
+                .into())
+        );
+        assert_eq!(
+            Plain.read("1,5"),
+            Err("not a number: \"1,5\"; enter a plain decimal: digits with a decimal point and no grouping, e.g. 1250.75"
+                .into())
+        );
+    }
+
+    #[test]
+    fn writing_each_format() {
+        assert_eq!(Point.write(dec!(-1234567.005), 2), "-1,234,567.01");
+        assert_eq!(Comma.write(dec!(-1234567.005), 2), "-1.234.567,01");
+        assert_eq!(Plain.write(dec!(-1234567.005), 2), "-1234567.01");
+        assert_eq!(Comma.write_quantity(dec!(1250.750)), "1.250,75");
+        assert_eq!(Comma.export("-1250.5"), "-1250,5");
+        assert_eq!(Point.export("-1250.5"), "-1250.5");
+        assert_eq!(Point.read_percent("8.5 %"), Ok(dec!(0.085)));
+        assert_eq!(Comma.read_percent("8,5"), Ok(dec!(0.085)));
+    }
+
+    #[tokio::test]
+    async fn the_current_format_is_the_request_scope() {
+        assert_eq!(NumberFormat::current(), Point);
+        let inside = Comma.scope(async { NumberFormat::current() }).await;
+        assert_eq!(inside, Comma);
+    }
+
+    fn money() -> impl Strategy<Value = Decimal> {
+        (-1_000_000_000_000_00_i64..1_000_000_000_000_00_i64).prop_map(|cents| Decimal::new(cents, 2))
+    }
+
+    fn quantity() -> impl Strategy<Value = Decimal> {
+        (-99_999_999_999_999_i64..99_999_999_999_999_i64, 0_u32..6).prop_map(|(n, scale)| Decimal::new(n, scale))
+    }
+
+    proptest! {
+        #[test]
+        fn money_written_reads_back(d in money()) {
+            for f in [Point, Comma, Plain] {
+                prop_assert_eq!(f.read(&f.write(d, 2)), Ok(d.normalize()));
+                prop_assert_eq!(f.read(&f.export(&d.to_string())), Ok(d.normalize()));
+            }
+        }
+
+        #[test]
+        fn quantities_written_read_back(q in quantity()) {
+            for f in [Point, Comma, Plain] {
+                prop_assert_eq!(f.read(&f.write_quantity(q)), Ok(q.normalize()));
+            }
+        }
+    }
+}
