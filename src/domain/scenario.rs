@@ -190,6 +190,39 @@ mod tests {
         assert!(zones >= 6, "demo plant has {zones} zones");
     }
 
+    fn comma_site(hurdle: &str) -> String {
+        format!(
+            r#"{{"format": "pilot-ledger-scenario", "version": 1,
+                "site": {{"plant_name": "Test works", "currency": "EUR", "hurdle_rate": "{hurdle}",
+                          "number_format": "decimal_comma"}},
+                "zones": [{{"code": "Z-1", "name": "Zone", "cases": [{{"label": "Base", "horizon_months": 36,
+                    "start_month": "2025-01", "go_live_offset": 1, "ramp_up_months": 0, "success_probability": 0.85,
+                    "costs": [{{"label": "Sensors", "category": "hardware", "kind": "one_off", "amount": "38.000,50"}}]}}]}}]}}"#
+        )
+    }
+
+    #[test]
+    fn a_decimal_comma_scenario_reads_its_strings_in_that_format() {
+        use rust_decimal::dec;
+        // The file's own format wins over the database's; JSON numbers stay plain.
+        let s = Scenario::parse(&comma_site("0,09"), NumberFormat::DecimalPoint).map_err(|e| e.to_string());
+        let s = s.as_ref().map(|s| {
+            let site = s.site.as_ref().map(|x| (x.hurdle_rate, x.number_format));
+            let case = &s.zones[0].cases[0];
+            (site, case.header.success_probability, case.costs[0].amount)
+        });
+        assert_eq!(s, Ok((Some((dec!(0.09), NumberFormat::DecimalComma)), dec!(0.85), dec!(38000.5))));
+        // The same file with a decimal point in a string is refused, naming the field.
+        let err = Scenario::parse(&comma_site("0.09"), NumberFormat::DecimalPoint).err().unwrap_or_default();
+        assert_eq!(
+            err.0,
+            vec![crate::domain::FieldError {
+                field: "site.hurdle_rate".into(),
+                message: "\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09 or 0.090".into()
+            }]
+        );
+    }
+
     #[test]
     fn syntax_errors_give_line_and_column() {
         let err = Scenario::parse("{\n  \"format\": ,\n}", NumberFormat::default()).err().unwrap_or_default();

@@ -52,7 +52,7 @@ fn payback_text(p: &Option<Payback>, what: &str, warnings: &mut Vec<String>) -> 
             if p.turns_negative_again {
                 warnings.push(format!("The {what} turns negative again after the payback month."));
             }
-            format!("{} months", p.periods.round_dp(1))
+            format!("{} months", NumberFormat::current().write_quantity(p.periods.round_dp(1)))
         }
         None => "not reached".into(),
     }
@@ -91,7 +91,9 @@ impl From<&CaseMetrics> for MetricsView {
             mirr: m.mirr_annual.map_or_else(|| "–".into(), |r| Percent(r).to_string()),
             payback,
             discounted_payback,
-            pi: m.profitability_index.map_or_else(|| "–".into(), |p| p.round_dp(2).to_string()),
+            pi: m
+                .profitability_index
+                .map_or_else(|| "–".into(), |p| NumberFormat::current().write_quantity(p.round_dp(2))),
             pv_benefits: Money(m.pv_benefits),
             pv_costs: Money(m.pv_costs),
             total_one_off: Money(m.total_one_off),

@@ -7,7 +7,7 @@ use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
     Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, NumberFormat,
-    Percent, RealizedView, SiteSettings, Zone, realized_view,
+    Percent, RealizedView, SiteSettings, Zone, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -73,6 +73,8 @@ struct LedgerPage {
     errors: FieldErrors,
     notice: Option<String>,
     period_hint: String,
+    /// The import's header row, separated as this site's CSV files are.
+    csv_header: String,
 }
 
 /// The realized figures of the page.
@@ -174,7 +176,9 @@ async fn page(
         .rev()
         .map(|e| {
             let inputs = match (e.baseline_intensity, e.reporting_volume, e.measured_consumption) {
-                (Some(i), Some(v), Some(c)) => format!("{i} × {v} − {c}"),
+                (Some(i), Some(v), Some(c)) => {
+                    format!("{} × {} − {}", quantity(&i), quantity(&v), quantity(&c))
+                }
                 _ => String::new(),
             };
             EntryRow { item: item_name(&baseline, &e), amount: Money(e.amount), inputs, e }
@@ -192,6 +196,7 @@ async fn page(
         can_book: me.role().allows(crate::auth::Permission::Ledger) && baseline.is_some(),
         figures: view.as_ref().map(figures),
         period_hint: format!("up to {}", current_month(state)),
+        csv_header: CSV_COLUMNS.join(&char::from(site.number_format.csv_delimiter()).to_string()),
         site,
         zone,
         baseline,

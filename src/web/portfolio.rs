@@ -100,10 +100,13 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
         risk_adjusted: money(r.risk_adjusted),
         calibrated: money(r.calibrated),
         irr: m.and_then(|m| m.irr_annual).map_or_else(|| DASH.into(), |i| Percent(i).to_string()),
-        payback: m
-            .and_then(|m| m.payback_months.as_ref())
-            .map_or_else(|| "not reached".into(), |p| format!("{} mo", p.periods.round_dp(1))),
-        pi: m.and_then(|m| m.profitability_index).map_or_else(|| DASH.into(), |p| p.round_dp(2).to_string()),
+        payback: m.and_then(|m| m.payback_months.as_ref()).map_or_else(
+            || "not reached".into(),
+            |p| format!("{} mo", NumberFormat::current().write_quantity(p.periods.round_dp(1))),
+        ),
+        pi: m
+            .and_then(|m| m.profitability_index)
+            .map_or_else(|| DASH.into(), |p| NumberFormat::current().write_quantity(p.round_dp(2))),
         prob_negative: u.map_or_else(|| DASH.into(), |u| Percent(u.prob_negative).to_string()),
         p10: sim_money(u.map(|u| u.p10)),
         p50: sim_money(u.map(|u| u.p50)),
@@ -112,11 +115,8 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
         readiness: r.readiness.map_or_else(
             || "not scored".into(),
             |x| {
-                if x.complete() {
-                    format!("{:.1}", x.score)
-                } else {
-                    format!("{:.1} ({} of {} scored)", x.score, x.rated, x.of)
-                }
+                let score = NumberFormat::current().export(&format!("{:.1}", x.score));
+                if x.complete() { score } else { format!("{score} ({} of {} scored)", x.rated, x.of) }
             },
         ),
         in_greedy: r.in_greedy,

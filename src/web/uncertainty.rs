@@ -2,7 +2,7 @@
 //! risk-adjusted and calibrated NPV with the factors and their sources.
 
 use super::chart::{Columns, RangeBars, RangeInput};
-use crate::domain::{Calibration, CaseUncertainty, DriverKind, Money, Percent, quantity};
+use crate::domain::{Calibration, CaseUncertainty, DriverKind, Money, NumberFormat, Percent, quantity};
 use crate::finance::linear::BreakEven;
 use rust_decimal::Decimal;
 use rust_decimal::prelude::{FromPrimitive, ToPrimitive};
@@ -80,7 +80,7 @@ impl UncertaintyView {
                 npv_high: Money(d.npv_high),
                 break_even: break_even_text(d.break_even, d.likely, &d.unit),
                 kind: d.kind.label(),
-                factor: format!("{:.3}", d.factor.factor),
+                factor: NumberFormat::current().export(&format!("{:.3}", d.factor.factor)),
                 raw: d.factor.raw.map_or_else(|| "no evidence".into(), |r| Percent(r).to_string()),
                 evidence: if d.factor.drivers == 0 {
                     "no measured driver of this kind yet".into()

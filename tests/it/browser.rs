@@ -334,3 +334,27 @@ async fn management_sets_a_budget_and_prints_the_portfolio() {
     screenshot(c, "case-uncertainty").await;
     b.client.clone().close().await.unwrap();
 }
+
+/// A decimal-comma site: the controller books `1.250,75` kWh by form and reads it back in that
+/// format (0.20 EUR/kWh x 1,250.75 kWh = 250.15 EUR, worked by hand).
+#[tokio::test]
+async fn controller_books_in_decimal_comma() {
+    let t: TestApp = test_app(false).await;
+    let z = crate::ledger::zone_with_baseline(&t, "COMMA-1").await;
+    crate::numbers::set_number_format(&t, "decimal_comma").await;
+    let Some(b) = browser().await else { return };
+    let c = &b.client;
+    let base = format!("http://{}", t.listen().await);
+
+    sign_in(c, &base, "t-controller").await;
+    c.goto(&format!("{base}/zones/{}/ledger", z.id)).await.unwrap();
+    fill(c, "period", "2025-03").await;
+    fill(c, "quantity", "1.250,75").await;
+    fill(c, "evidence", "sub-meter M3").await;
+    click_button(c, "Book entry").await;
+    assert!(c.find(Locator::XPath("//table[@id='ledger']//td[normalize-space()='1.250,75']")).await.is_ok());
+    let measured = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
+    assert_eq!(measured.trim(), "250,15");
+    screenshot(c, "ledger-decimal-comma").await;
+    b.client.clone().close().await.unwrap();
+}

@@ -239,7 +239,7 @@ fn multipart(name: &str, csv: &str) -> Request<Body> {
         .unwrap()
 }
 
-async fn import(t: &TestApp, zone: i64, name: &str, csv: &str) -> crate::helpers::Answer {
+pub async fn import(t: &TestApp, zone: i64, name: &str, csv: &str) -> crate::helpers::Answer {
     let mut req = multipart(name, csv);
     *req.uri_mut() = format!("/zones/{zone}/ledger/import").parse().unwrap();
     t.send(req).await

@@ -9,6 +9,7 @@ mod finance;
 mod helpers;
 mod hostile;
 mod ledger;
+mod numbers;
 mod pages;
 mod portfolio;
 mod realized;

@@ -6,7 +6,12 @@ mod scatter;
 pub use bars::{Columns, RangeBars, RangeInput};
 pub use scatter::{Axis, Scatter, ScatterPoint};
 
-use crate::domain::Money;
+use crate::domain::{Money, NumberFormat};
+
+/// Months to one decimal in the page's number format.
+fn months(m: Decimal) -> String {
+    NumberFormat::current().write(m, 1)
+}
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
 
@@ -94,15 +99,12 @@ impl LineChart {
             .into_iter()
             .map(|v| Tick { at: y(v), label: Money(Decimal::from_f64_retain(v).unwrap_or_default()).to_string() })
             .collect();
-        let marker =
-            marker_month.and_then(|m| m.to_f64()).map(|m| Tick { at: x(m), label: format!("payback {m:.1} months") });
+        let marker = marker_month
+            .and_then(|m| Some((m.to_f64()?, m)))
+            .map(|(at, m)| Tick { at: x(at), label: format!("payback {} months", months(m)) });
         let last = values.last().copied().unwrap_or_default();
         let summary = match marker_month {
-            Some(m) => format!(
-                "{what} crosses zero after {:.1} months and ends at {}.",
-                m.to_f64().unwrap_or(0.0),
-                Money(last)
-            ),
+            Some(m) => format!("{what} crosses zero after {} months and ends at {}.", months(m), Money(last)),
             None => format!("{what} never crosses zero inside the horizon; it ends at {}.", Money(last)),
         };
         Self {
