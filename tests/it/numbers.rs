@@ -257,3 +257,32 @@ async fn a_format_change_is_never_served_stale() {
     let api = t.get("/api/v1/portfolio?budget=40000.5").await.json();
     assert_eq!(api["choice"]["budget"], "40000.5");
 }
+
+#[tokio::test]
+async fn the_settings_form_reads_and_shows_the_site_format() {
+    let t = test_app(false).await;
+    let admin = t.as_role(Some(Role::Admin));
+    let form = |hurdle: &str, format: &str| {
+        format!(
+            "plant_name=Test+works&currency=EUR&hurdle_rate={hurdle}&tax_rate=&depreciation_years=&default_horizon_months=60&expert_multiplier=1%2C5&number_format={format}"
+        )
+    };
+    // Only the two site formats exist; nothing is saved otherwise.
+    let a = admin.post_form("/admin/settings", &form("10", "plain")).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("Error: decimal_point (1,250.75) or decimal_comma (1.250,75)"), "{}", a.text);
+    set_number_format(&t, "decimal_comma").await;
+    // The form is read in the format it was shown in: `9.5` is ambiguous here, `9,5` is 9.5 %.
+    let a = admin.post_form("/admin/settings", &form("9.5", "decimal_comma")).await;
+    refused_beside(
+        &a,
+        "hurdle_rate",
+        "&#34;9.5&#34; is ambiguous here (groups of thousands have three digits): use 9,5 or 9.500",
+    );
+    let a = admin.post_form("/admin/settings", &form("9%2C5", "decimal_comma")).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    let site = pilot_ledger::db::get_site(&t.pool).await.unwrap();
+    assert_eq!((site.hurdle_rate.to_string(), site.expert_multiplier.to_string()), ("0.095".into(), "1.5".into()));
+    let page = admin.get("/admin").await.text;
+    assert!(page.contains("name=\"hurdle_rate\" value=\"9,5\"") && page.contains("value=\"1,5\""), "{page}");
+}
