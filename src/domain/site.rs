@@ -22,6 +22,8 @@ pub struct SiteSettings {
     pub default_horizon_months: u32,
     /// Multiplier from analytics usage hours to saved expert hours (rule of thumb, see DESIGN).
     pub expert_multiplier: Decimal,
+    /// Whether one person may submit and approve a version (a small plant); off by default.
+    pub one_person_approval: bool,
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
@@ -47,6 +49,9 @@ pub struct SiteSettingsInput {
     /// Expert-time multiplier; empty for 3.
     #[serde(deserialize_with = "string_or_number")]
     pub expert_multiplier: String,
+    /// One-person approval allowed; absent for no.
+    #[serde(deserialize_with = "super::de::flexible_bool")]
+    pub one_person_approval: bool,
 }
 
 impl SiteSettings {
@@ -101,8 +106,24 @@ impl SiteSettings {
                 depreciation_years,
                 default_horizon_months,
                 expert_multiplier,
+                one_person_approval: input.one_person_approval,
             }),
             _ => Err(e),
+        }
+    }
+
+    /// The raw input these settings parse back from (rates as fractions): the base a partial
+    /// change is laid over.
+    pub fn input(&self) -> SiteSettingsInput {
+        SiteSettingsInput {
+            plant_name: self.plant_name.clone(),
+            currency: self.currency.clone(),
+            hurdle_rate: self.hurdle_rate.to_string(),
+            tax_rate: self.tax_rate.map(|t| t.to_string()).unwrap_or_default(),
+            depreciation_years: self.depreciation_text(),
+            default_horizon_months: self.default_horizon_months.to_string(),
+            expert_multiplier: self.expert_multiplier.to_string(),
+            one_person_approval: self.one_person_approval,
         }
     }
 

@@ -256,6 +256,22 @@ pub struct SettingsForm {
     depreciation_years: String,
     default_horizon_months: String,
     expert_multiplier: String,
+    #[serde(deserialize_with = "crate::domain::de::flexible_bool")]
+    one_person_approval: bool,
+}
+
+/// Store new site settings with their audit row: the one write path of the settings form and
+/// `PATCH /api/v1/site`. The currency is refused once cases hold money (`db::put_site`).
+pub async fn change_settings(pool: &SqlitePool, site: &SiteSettings, actor: &str) -> Result<(), AppError> {
+    let mut tx = db::begin_write(pool).await?;
+    db::put_site(&mut tx, site, actor).await?;
+    let detail = format!(
+        "currency {}, hurdle {}, tax {:?}, depreciation {:?}, one-person approval {}",
+        site.currency, site.hurdle_rate, site.tax_rate, site.depreciation_years, site.one_person_approval
+    );
+    db::audit::record(&mut tx, &db::now(), actor, "settings.update", "site", &detail).await?;
+    tx.commit().await?;
+    Ok(())
 }
 
 /// POST /admin/settings
@@ -279,6 +295,7 @@ pub async fn update_settings(
         depreciation_years: f.depreciation_years,
         default_horizon_months: f.default_horizon_months,
         expert_multiplier: f.expert_multiplier,
+        one_person_approval: f.one_person_approval,
     };
     let site = match SiteSettings::parse(&input) {
         Ok(site) if e.is_empty() => site,
@@ -292,12 +309,11 @@ pub async fn update_settings(
             return admin_page(&state, Nav::from(&me), e, None, None).await;
         }
     };
-    let mut tx = db::begin_write(&state.pool).await?;
-    db::put_site(&mut tx, &site, me.name()).await?;
-    let detail = format!("currency {}, hurdle {}, tax {:?}", site.currency, site.hurdle_rate, site.tax_rate);
-    db::audit::record(&mut tx, &db::now(), me.name(), "settings.update", "site", &detail).await?;
-    tx.commit().await?;
-    Ok(Redirect::to("/admin").into_response())
+    match change_settings(&state.pool, &site, me.name()).await {
+        Ok(()) => Ok(Redirect::to("/admin").into_response()),
+        Err(AppError::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
+        Err(other) => Err(other),
+    }
 }
 
 /// POST /admin/readiness: the weights of the readiness criteria, 0 to 10 each.
