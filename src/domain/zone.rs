@@ -148,6 +148,21 @@ impl NewZone {
     }
 }
 
+impl NewZone {
+    /// [`NewZone::parse`] for a zone created by a page or the API: it starts as a candidate (or
+    /// shelved); later states come through the lifecycle. Scenario files may load any state.
+    pub fn parse_new(input: &ZoneInput) -> Result<Self, FieldErrors> {
+        let zone = Self::parse(input)?;
+        match zone.status {
+            ZoneStatus::Candidate | ZoneStatus::Shelved => Ok(zone),
+            other => Err(FieldErrors::one(
+                "status",
+                format!("a new zone starts as candidate or shelved, not {other}: later states follow its lifecycle"),
+            )),
+        }
+    }
+}
+
 fn parse_code(value: &str) -> Result<String, String> {
     let code = value.trim().to_uppercase();
     let ok = (1..=16).contains(&code.len())

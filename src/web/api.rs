@@ -34,7 +34,7 @@ pub async fn create_zone(
     CurrentUser(user): CurrentUser,
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let zone = NewZone::parse(&input)?;
+    let zone = NewZone::parse_new(&input)?;
     let mut tx = db::begin_write(&state.pool).await?;
     let id = db::insert_zone(&mut tx, &zone, user.name()).await?;
     db::audit::record(&mut tx, &db::now(), user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;

@@ -29,7 +29,8 @@ struct ListPage {
     rows: Vec<ZoneRow>,
     form: ZoneInput,
     errors: FieldErrors,
-    statuses: [ZoneStatus; 6],
+    /// The states a new zone may start in.
+    statuses: [ZoneStatus; 2],
 }
 
 async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErrors) -> Result<ListPage, AppError> {
@@ -45,7 +46,7 @@ async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErr
         };
         rows.push(ZoneRow { zone, latest });
     }
-    Ok(ListPage { nav, site, rows, form, errors, statuses: ZoneStatus::ALL })
+    Ok(ListPage { nav, site, rows, form, errors, statuses: [ZoneStatus::Candidate, ZoneStatus::Shelved] })
 }
 
 /// A taken zone code is the user's to fix beside the code field, a refused status move
@@ -89,7 +90,7 @@ pub async fn create(
     CurrentUser(user): CurrentUser,
     FormBody(input): FormBody<ZoneInput>,
 ) -> Result<Response, AppError> {
-    let result = match NewZone::parse(&input) {
+    let result = match NewZone::parse_new(&input) {
         Ok(zone) => {
             let mut tx = db::begin_write(&state.pool).await?;
             match db::insert_zone(&mut tx, &zone, user.name()).await {

@@ -190,6 +190,14 @@ async fn the_zone_lifecycle_only_moves_forward() {
         skip.json()["error"],
         "a zone cannot move from candidate to measuring; allowed next states: approved, shelved"
     );
+    // A new zone starts as a candidate: no skipping the lifecycle at creation (positive
+    // control: the candidate above).
+    let born = t.post_json("/api/v1/zones", r#"{"code":"LIFE-0","name":"Born measuring","status":"measuring"}"#).await;
+    assert_eq!(born.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(
+        born.json()["fields"],
+        json!([{"field": "status", "message": "a new zone starts as candidate or shelved, not measuring: later states follow its lifecycle"}])
+    );
     let unapproved = t.post_json(&url, &status("approved")).await;
     assert_eq!(unapproved.status, StatusCode::CONFLICT);
     assert_eq!(
