@@ -2,8 +2,8 @@
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::{
-    BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState, CostCategory, CostItem, CostKind, DriverKind, Month,
-    NewBenefitDriver, NewCostItem,
+    ApprovalKind, ApprovalSettings, BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState, CostCategory, CostItem,
+    CostKind, DriverKind, Month, NewBenefitDriver, NewCostItem, Review, SiteSettings, ZoneStatus,
 };
 use serde::Serialize;
 use sqlx::sqlite::SqliteRow;
@@ -31,6 +31,59 @@ pub struct CaseVersion {
     pub updated_at: String,
     /// Last changed by.
     pub updated_by: String,
+    /// Edits, submission, approval and return: who, when, with which comment.
+    #[serde(flatten)]
+    pub review: Review,
+    /// The settings of its approval, which its figures keep (approved and superseded versions).
+    pub frozen_settings: Option<ApprovalSettings>,
+}
+
+impl CaseVersion {
+    /// The settings this version's figures are computed with: those of its approval when it
+    /// has them, today's otherwise.
+    pub fn settings(&self, today: &SiteSettings) -> SiteSettings {
+        self.frozen_settings.as_ref().map_or_else(|| today.clone(), |f| f.apply(today))
+    }
+
+    /// The notes every page showing this version as a baseline carries: frozen settings,
+    /// self-approval, a start before the approval, the latest return.
+    pub fn notes(&self, today: &SiteSettings) -> Vec<(&'static str, String)> {
+        let mut notes = Vec::new();
+        if let Some(f) = &self.frozen_settings {
+            notes.push(("frozen-settings", format!("Figures at approval: {}.", f.describe(today))));
+        }
+        if let Some(n) = self.review.approval_note() {
+            notes.push(("self-approved", n));
+        }
+        if let Some(n) = self.review.retroactive_note(self.header.start_month) {
+            notes.push(("retroactive", n));
+        }
+        if let (Some(by), Some(at), CaseState::Draft) = (&self.review.returned_by, &self.review.returned_at, self.state)
+        {
+            notes.push(("returned", format!("Returned to draft by {by} on {at}: {}", self.review.return_comment)));
+        }
+        notes
+    }
+
+    /// The review record in words, oldest step first.
+    pub fn history(&self) -> Vec<String> {
+        let r = &self.review;
+        let said = |c: &str| if c.is_empty() { String::new() } else { format!(": {c}") };
+        let mut lines = Vec::new();
+        if let (Some(by), Some(at)) = (&r.edited_by, &r.edited_at) {
+            lines.push(format!("Last edited by {by} on {at}"));
+        }
+        if let (Some(by), Some(at)) = (&r.submitted_by, &r.submitted_at) {
+            lines.push(format!("Submitted by {by} on {at}{}", said(&r.submit_comment)));
+        }
+        if let (Some(by), Some(at)) = (&r.returned_by, &r.returned_at) {
+            lines.push(format!("Returned to draft by {by} on {at}{}", said(&r.return_comment)));
+        }
+        if let (Some(by), Some(at)) = (&r.approved_by, &r.approved_at) {
+            lines.push(format!("Approved by {by} on {at}{}", said(&r.approve_comment)));
+        }
+        lines
+    }
 }
 
 /// A case version with its items.
@@ -49,6 +102,7 @@ impl CaseFull {
     /// The domain's view of this case: header and items with their ids.
     pub fn parts(&self) -> CaseParts {
         CaseParts {
+            frozen: self.case.frozen_settings.clone(),
             id: self.case.id,
             version: self.case.version,
             baseline: self.case.state == CaseState::Approved,
@@ -63,7 +117,10 @@ macro_rules! select_case {
     ($rest:literal) => {
         concat!(
             "SELECT id, zone_id, version, state, label, horizon_months, start_month, go_live_offset, ramp_up_months,
-                    success_probability, created_at, created_by, updated_at, updated_by ",
+                    success_probability, created_at, created_by, updated_at, updated_by,
+                    edited_at, edited_by, submitted_at, submitted_by, submit_comment, approved_at, approved_by,
+                    approve_comment, approval_kind, returned_at, returned_by, return_comment,
+                    frozen_currency, frozen_hurdle_rate, frozen_tax_rate, frozen_depreciation_years ",
             $rest
         )
     };
@@ -87,7 +144,46 @@ fn case_from(row: &SqliteRow) -> DbResult<CaseVersion> {
         created_by: row.try_get("created_by")?,
         updated_at: row.try_get("updated_at")?,
         updated_by: row.try_get("updated_by")?,
+        review: Review {
+            edited_at: row.try_get("edited_at")?,
+            edited_by: row.try_get("edited_by")?,
+            submitted_at: row.try_get("submitted_at")?,
+            submitted_by: row.try_get("submitted_by")?,
+            submit_comment: row.try_get("submit_comment")?,
+            approved_at: row.try_get("approved_at")?,
+            approved_by: row.try_get("approved_by")?,
+            approve_comment: row.try_get("approve_comment")?,
+            approval_kind: row
+                .try_get::<Option<String>, _>("approval_kind")?
+                .map(|k| parsed("approval_kind", k, ApprovalKind::parse))
+                .transpose()?,
+            returned_at: row.try_get("returned_at")?,
+            returned_by: row.try_get("returned_by")?,
+            return_comment: row.try_get("return_comment")?,
+        },
+        frozen_settings: frozen_from(row)?,
     })
+}
+
+/// The frozen settings columns, present together or not at all.
+fn frozen_from(row: &SqliteRow) -> DbResult<Option<ApprovalSettings>> {
+    let (Some(currency), Some(hurdle)) =
+        (row.try_get::<Option<String>, _>("frozen_currency")?, row.try_get::<Option<String>, _>("frozen_hurdle_rate")?)
+    else {
+        return Ok(None);
+    };
+    Ok(Some(ApprovalSettings {
+        currency,
+        hurdle_rate: decimal("frozen_hurdle_rate", hurdle)?,
+        tax_rate: row
+            .try_get::<Option<String>, _>("frozen_tax_rate")?
+            .map(|t| decimal("frozen_tax_rate", t))
+            .transpose()?,
+        depreciation_years: row
+            .try_get::<Option<i64>, _>("frozen_depreciation_years")?
+            .map(|y| count("frozen_depreciation_years", y))
+            .transpose()?,
+    }))
 }
 
 /// The versions of one zone's case, oldest first.
@@ -168,8 +264,10 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     let h = &spec.header;
     let id: i64 = sqlx::query_scalar(
         "INSERT INTO case_versions (zone_id, version, label, horizon_months, start_month, go_live_offset, ramp_up_months,
-                                    success_probability, state, created_at, created_by, updated_at, updated_by)
-         VALUES (?, (SELECT COALESCE(MAX(version), 0) + 1 FROM case_versions WHERE zone_id = ?), ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                    success_probability, state, created_at, created_by, updated_at, updated_by,
+                                    edited_at, edited_by)
+         VALUES (?, (SELECT COALESCE(MAX(version), 0) + 1 FROM case_versions WHERE zone_id = ?), ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?,
+                 ?, ?)
          RETURNING id",
     )
     .bind(zone_id)
@@ -185,6 +283,8 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     .bind(actor)
     .bind(&ts)
     .bind(actor)
+    .bind(&ts)
+    .bind(actor)
     .fetch_one(&mut *conn)
     .await?;
     for c in &spec.costs {
@@ -193,31 +293,72 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     for d in &spec.drivers {
         insert_driver_row(conn, id, d, actor).await?;
     }
-    // Items go in while the row is a draft: the database freezes approved versions.
-    if spec.state != CaseState::Draft {
-        set_state(conn, id, spec.state, actor).await?;
+    // Items go in while the row is a draft: the database freezes approved versions. A
+    // scenario file's approved version is recorded as loaded, not as a four-eyes approval.
+    match spec.state {
+        CaseState::Draft => {}
+        CaseState::Submitted => mark_submitted(conn, id, actor, "").await?,
+        state @ (CaseState::Approved | CaseState::Superseded) => {
+            mark_approved(conn, id, state, actor, ApprovalKind::Scenario, "loaded from a scenario file").await?;
+        }
     }
     Ok(id)
 }
 
-/// Move a version to `state`; approving stamps who and when (the caller checks the move is
-/// allowed and supersedes the old baseline first).
-pub async fn set_state(conn: &mut SqliteConnection, case_id: i64, state: CaseState, actor: &str) -> DbResult<()> {
+async fn mark_submitted(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+    stamp(
+        conn,
+        "UPDATE case_versions SET state = 'submitted', updated_at = ?, updated_by = ?,
+                submitted_at = ?, submitted_by = ?, submit_comment = ?
+         WHERE id = ?",
+        case_id,
+        actor,
+        comment,
+    )
+    .await
+}
+
+/// Run a review step's `sql`, binding the time and actor twice (the change and the step),
+/// the comment and the version id.
+async fn stamp(
+    conn: &mut SqliteConnection,
+    sql: &'static str,
+    case_id: i64,
+    actor: &str,
+    comment: &str,
+) -> DbResult<()> {
     let ts = now();
-    let approved = state == CaseState::Approved;
+    sqlx::query(sql).bind(&ts).bind(actor).bind(&ts).bind(actor).bind(comment).bind(case_id).execute(conn).await?;
+    Ok(())
+}
+
+/// Record the approval and freeze today's figure settings on the version, in one statement
+/// (`state` is approved, or superseded for an older version of a scenario file).
+async fn mark_approved(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    state: CaseState,
+    actor: &str,
+    kind: ApprovalKind,
+    comment: &str,
+) -> DbResult<()> {
+    let ts = now();
     sqlx::query(
         "UPDATE case_versions SET state = ?, updated_at = ?, updated_by = ?,
-                approved_at = CASE WHEN ? THEN ? ELSE approved_at END,
-                approved_by = CASE WHEN ? THEN ? ELSE approved_by END
+                approved_at = ?, approved_by = ?, approval_kind = ?, approve_comment = ?,
+                frozen_currency = (SELECT currency FROM site_settings WHERE id = 1),
+                frozen_hurdle_rate = (SELECT hurdle_rate FROM site_settings WHERE id = 1),
+                frozen_tax_rate = (SELECT tax_rate FROM site_settings WHERE id = 1),
+                frozen_depreciation_years = (SELECT depreciation_years FROM site_settings WHERE id = 1)
          WHERE id = ?",
     )
     .bind(state.as_str())
     .bind(&ts)
     .bind(actor)
-    .bind(approved)
     .bind(&ts)
-    .bind(approved)
     .bind(actor)
+    .bind(kind.as_str())
+    .bind(comment)
     .bind(case_id)
     .execute(conn)
     .await
@@ -237,47 +378,80 @@ pub async fn baseline_of(pool: &SqlitePool, zone_id: i64) -> DbResult<Option<Cas
     }
 }
 
-/// Submit a draft for approval.
-pub async fn submit_case(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
-    ensure_editable(conn, case_id).await?;
-    set_state(conn, case_id, CaseState::Submitted, actor).await
-}
-
-/// Approve a submitted version: the zone's previous baseline becomes superseded and this one
-/// is frozen as the baseline the ledger is measured against.
-pub async fn approve_case(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+async fn version_in(conn: &mut SqliteConnection, case_id: i64) -> DbResult<CaseVersion> {
     let row =
         sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(case_id).fetch_optional(&mut *conn).await?;
-    let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
+    row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))
+}
+
+/// Submit a draft for approval, with an optional comment.
+pub async fn submit_case(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+    ensure_editable(conn, case_id).await?;
+    mark_submitted(conn, case_id, actor, comment).await
+}
+
+/// A submitted version, or the conflict naming what to do first.
+async fn submitted(conn: &mut SqliteConnection, case_id: i64, doing: &str) -> DbResult<CaseVersion> {
+    let case = version_in(conn, case_id).await?;
     if case.state != CaseState::Submitted {
         return Err(DbError::Conflict(format!(
-            "version {} is {}: submit it for approval first",
+            "version {} is {}: only a submitted version can be {doing}",
             case.version, case.state
         )));
     }
+    Ok(case)
+}
+
+/// Approve a submitted version: four eyes unless the site allows one person (the
+/// submitter or last editor is refused with a conflict: 403 stays the answer of roles). The zone's previous
+/// baseline becomes superseded, this one is frozen with today's figure settings, and a
+/// candidate zone becomes approved. Returns how it was approved.
+pub async fn approve_case(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    actor: &str,
+    comment: &str,
+) -> DbResult<ApprovalKind> {
+    let case = submitted(conn, case_id, "approved").await?;
+    let site = super::site::get_site_in(conn).await?;
+    let kind = case.review.approval_by(actor, site.one_person_approval).map_err(DbError::Conflict)?;
     sqlx::query("UPDATE case_versions SET state = 'superseded', updated_at = ?, updated_by = ? WHERE zone_id = ? AND state = 'approved'")
         .bind(now())
         .bind(actor)
         .bind(case.zone_id)
         .execute(&mut *conn)
         .await?;
-    set_state(conn, case_id, CaseState::Approved, actor).await?;
-    sqlx::query(
-        "UPDATE zones SET status = 'approved', updated_at = ?, updated_by = ? WHERE id = ? AND status = 'candidate'",
+    mark_approved(conn, case_id, CaseState::Approved, actor, kind, comment).await?;
+    sqlx::query("UPDATE zones SET status = ?, updated_at = ?, updated_by = ? WHERE id = ? AND status = ?")
+        .bind(ZoneStatus::Approved.as_str())
+        .bind(now())
+        .bind(actor)
+        .bind(case.zone_id)
+        .bind(ZoneStatus::Candidate.as_str())
+        .execute(conn)
+        .await?;
+    Ok(kind)
+}
+
+/// Return a submitted version to its author as an editable draft, with the reason. Anyone
+/// who may approve may return (the submitter too: withdrawing is a return).
+pub async fn reject_case(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+    submitted(conn, case_id, "returned").await?;
+    stamp(
+        conn,
+        "UPDATE case_versions SET state = 'draft', updated_at = ?, updated_by = ?,
+                returned_at = ?, returned_by = ?, return_comment = ?
+         WHERE id = ?",
+        case_id,
+        actor,
+        comment,
     )
-    .bind(now())
-    .bind(actor)
-    .bind(case.zone_id)
-    .execute(conn)
-    .await?;
-    Ok(())
+    .await
 }
 
 /// Refuse changes to a version that is no longer a draft: approved versions are frozen.
 async fn ensure_editable(conn: &mut SqliteConnection, case_id: i64) -> DbResult<CaseHeader> {
-    let row =
-        sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(case_id).fetch_optional(&mut *conn).await?;
-    let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
+    let case = version_in(conn, case_id).await?;
     if case.state != CaseState::Draft {
         return Err(DbError::Conflict(format!(
             "version {} is {} and cannot be changed; save a new scenario version instead",
@@ -308,7 +482,7 @@ pub async fn update_header(
     }
     sqlx::query(
         "UPDATE case_versions SET label = ?, horizon_months = ?, start_month = ?, go_live_offset = ?, ramp_up_months = ?,
-                                  success_probability = ?, updated_at = ?, updated_by = ?
+                                  success_probability = ?, updated_at = ?, updated_by = ?, edited_at = ?, edited_by = ?
          WHERE id = ?",
     )
     .bind(&header.label)
@@ -319,15 +493,21 @@ pub async fn update_header(
     .bind(header.success_probability.to_string())
     .bind(now())
     .bind(actor)
+    .bind(now())
+    .bind(actor)
     .bind(case_id)
     .execute(conn)
     .await?;
     Ok(())
 }
 
+/// Stamp a content change (an item added or removed) as the version's latest edit.
 async fn touch(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
-    sqlx::query("UPDATE case_versions SET updated_at = ?, updated_by = ? WHERE id = ?")
-        .bind(now())
+    let ts = now();
+    sqlx::query("UPDATE case_versions SET updated_at = ?, updated_by = ?, edited_at = ?, edited_by = ? WHERE id = ?")
+        .bind(&ts)
+        .bind(actor)
+        .bind(&ts)
         .bind(actor)
         .bind(case_id)
         .execute(conn)

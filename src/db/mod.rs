@@ -163,7 +163,7 @@ fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
 use cases::case_full_in;
 pub use cases::{
     add_cost, add_driver, approve_case, baseline_of, case_full, copy_case, delete_cost, delete_driver, insert_case,
-    list_cases, set_state, submit_case, update_header,
+    list_cases, reject_case, submit_case, update_header,
 };
 pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
@@ -173,5 +173,5 @@ pub use users::{
     insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,
     user_for_token,
 };
-pub use zones::{get_zone, insert_zone, list_zones, update_zone};
+pub use zones::{get_zone, insert_zone, list_zones, set_zone_status, update_zone};
 use zones::{get_zone_in, list_zones_in};

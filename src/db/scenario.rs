@@ -92,7 +92,14 @@ pub async fn load_scenario(
 ) -> DbResult<LoadSummary> {
     let mut tx = begin_write(pool).await?;
     if let Some(site) = &scenario.site {
-        put_site(&mut tx, site, actor).await?;
+        put_site(&mut tx, site, actor).await.map_err(|e| match e {
+            DbError::Invalid(fields) => {
+                let mut named = FieldErrors::default();
+                named.extend_prefixed("site.", fields);
+                DbError::Invalid(named)
+            }
+            other => other,
+        })?;
     } else if database_is_empty(pool).await? {
         return Err(DbError::Conflict(
             "the database has no site settings yet: the scenario must carry a \"site\" object".into(),

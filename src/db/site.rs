@@ -1,17 +1,22 @@
 //! Site settings (one row).
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
-use crate::domain::{NumberFormat, SiteSettings};
+use crate::domain::{FieldErrors, NumberFormat, SiteSettings};
 use sqlx::{Row, SqliteConnection, SqlitePool};
 
 /// The site settings; `NotFound` before the first load.
 pub async fn get_site(pool: &SqlitePool) -> DbResult<SiteSettings> {
+    get_site_in(&mut *pool.acquire().await?).await
+}
+
+/// [`get_site`] inside the caller's transaction.
+pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSettings> {
     let row = sqlx::query(
         "SELECT plant_name, currency, hurdle_rate, tax_rate, depreciation_years, default_horizon_months, expert_multiplier,
-                number_format
+                number_format, one_person_approval
          FROM site_settings WHERE id = 1",
     )
-    .fetch_optional(pool)
+    .fetch_optional(conn)
     .await?
     .ok_or(DbError::NotFound("site settings"))?;
     Ok(SiteSettings {
@@ -26,6 +31,7 @@ pub async fn get_site(pool: &SqlitePool) -> DbResult<SiteSettings> {
         default_horizon_months: count("default_horizon_months", row.try_get("default_horizon_months")?)?,
         expert_multiplier: decimal("expert_multiplier", row.try_get("expert_multiplier")?)?,
         number_format: parsed("number_format", row.try_get("number_format")?, NumberFormat::parse)?,
+        one_person_approval: row.try_get::<i64, _>("one_person_approval")? != 0,
     })
 }
 
@@ -36,17 +42,39 @@ pub async fn number_format(pool: &SqlitePool) -> DbResult<NumberFormat> {
     text.map_or(Ok(NumberFormat::default()), |t| parsed("number_format", t, NumberFormat::parse))
 }
 
-/// Insert or replace the site settings.
+/// Insert or replace the site settings. The currency is refused (a field error) once any case
+/// holds money or anything is booked: stored amounts would be relabelled, not converted.
 pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &str) -> DbResult<()> {
+    let current: Option<String> =
+        sqlx::query_scalar("SELECT currency FROM site_settings WHERE id = 1").fetch_optional(&mut *conn).await?;
+    if let Some(current) = current.filter(|c| *c != site.currency) {
+        let held: i64 = sqlx::query_scalar(
+            "SELECT (SELECT COUNT(*) FROM cost_items) + (SELECT COUNT(*) FROM benefit_drivers)
+                  + (SELECT COUNT(*) FROM ledger_entries)",
+        )
+        .fetch_one(&mut *conn)
+        .await?;
+        if held > 0 {
+            return Err(DbError::Invalid(FieldErrors::one(
+                "currency",
+                format!(
+                    "cannot change from {current}: business cases already hold amounts in {current}, and a new \
+                     code would relabel them without converting them"
+                ),
+            )));
+        }
+    }
     sqlx::query(
         "INSERT INTO site_settings (id, plant_name, currency, hurdle_rate, tax_rate, depreciation_years,
-                                    default_horizon_months, expert_multiplier, number_format, updated_at, updated_by)
-         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                    default_horizon_months, expert_multiplier, number_format, one_person_approval,
+                                    updated_at, updated_by)
+         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          ON CONFLICT (id) DO UPDATE SET plant_name = excluded.plant_name, currency = excluded.currency,
              hurdle_rate = excluded.hurdle_rate, tax_rate = excluded.tax_rate,
              depreciation_years = excluded.depreciation_years,
              default_horizon_months = excluded.default_horizon_months,
              expert_multiplier = excluded.expert_multiplier, number_format = excluded.number_format,
+             one_person_approval = excluded.one_person_approval,
              updated_at = excluded.updated_at, updated_by = excluded.updated_by",
     )
     .bind(&site.plant_name)
@@ -57,6 +85,7 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     .bind(i64::from(site.default_horizon_months))
     .bind(site.expert_multiplier.to_string())
     .bind(site.number_format.as_str())
+    .bind(i64::from(site.one_person_approval))
     .bind(now())
     .bind(actor)
     .execute(conn)

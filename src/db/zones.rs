@@ -1,7 +1,7 @@
 //! Zones.
 
 use super::{DbError, DbResult, now, parsed, unique_as};
-use crate::domain::{NewZone, Zone, ZoneStatus};
+use crate::domain::{FieldErrors, NewZone, Zone, ZoneStatus};
 use sqlx::sqlite::SqliteRow;
 use sqlx::{Row, SqliteConnection, SqlitePool};
 
@@ -74,8 +74,50 @@ pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &st
     Ok(id)
 }
 
-/// Replace a zone's fields.
+/// Check that the zone may move to `to` ([`ZoneStatus::check_move`]); returns its current
+/// status. A refused move is a conflict naming the allowed next states.
+async fn check_status_move(conn: &mut SqliteConnection, id: i64, to: ZoneStatus) -> DbResult<ZoneStatus> {
+    let from = get_zone_in(conn, id).await?.status;
+    if from == to {
+        return Ok(from);
+    }
+    let (booked, baseline): (bool, bool) = sqlx::query_as(
+        "SELECT EXISTS (SELECT 1 FROM ledger_entries WHERE zone_id = ?),
+                EXISTS (SELECT 1 FROM case_versions WHERE zone_id = ? AND state = 'approved')",
+    )
+    .bind(id)
+    .bind(id)
+    .fetch_one(&mut *conn)
+    .await?;
+    from.check_move(to, booked, baseline).map_err(DbError::Conflict)?;
+    Ok(from)
+}
+
+/// Move a zone along its lifecycle; returns the status it left.
+pub async fn set_zone_status(
+    conn: &mut SqliteConnection,
+    id: i64,
+    to: ZoneStatus,
+    actor: &str,
+) -> DbResult<ZoneStatus> {
+    let from = check_status_move(conn, id, to).await?;
+    sqlx::query("UPDATE zones SET status = ?, updated_at = ?, updated_by = ? WHERE id = ?")
+        .bind(to.as_str())
+        .bind(now())
+        .bind(actor)
+        .bind(id)
+        .execute(conn)
+        .await?;
+    Ok(from)
+}
+
+/// Replace a zone's fields; a status change follows the lifecycle ([`set_zone_status`]'s rule).
 pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, actor: &str) -> DbResult<()> {
+    // On the zone form the refusal belongs beside the status field.
+    check_status_move(conn, id, zone.status).await.map_err(|e| match e {
+        DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one("status", msg)),
+        other => other,
+    })?;
     let done = sqlx::query(
         "UPDATE zones SET code = ?, name = ?, description = ?, owner = ?, status = ?, updated_at = ?, updated_by = ?
          WHERE id = ?",

@@ -4,6 +4,7 @@
 //! strings; `parse` turns them into domain values or a list of [`FieldError`]s naming each
 //! field. Nothing in here knows about HTTP or SQL.
 
+mod approval;
 mod case;
 mod figures;
 mod ledger;
@@ -17,6 +18,7 @@ mod site;
 mod uncertainty;
 mod zone;
 
+pub use approval::{ApprovalKind, ApprovalSettings, Review, parse_comment, parse_return_comment};
 pub use case::{
     BenefitDriver, CaseHeader, CaseHeaderInput, CaseSpec, CaseSpecInput, CaseState, CostCategory, CostInput, CostItem,
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,

@@ -13,8 +13,8 @@
 use super::realized::{driver_benefits, month_index};
 use super::uncertainty::{Calibration, Trials, calibrated_npv, parse_seed, quantity_ranges, risk_adjusted_npv};
 use super::{
-    CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem, NumberFormat, Readiness,
-    SiteSettings, Zone, ZoneStatus, finance_input,
+    ApprovalSettings, CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem,
+    NumberFormat, Readiness, SiteSettings, Zone, ZoneStatus, finance_input,
 };
 use crate::finance::calibration::Evidence;
 use crate::finance::linear::LinearNpv;
@@ -227,6 +227,8 @@ pub struct CaseParts {
     pub costs: Vec<(i64, NewCostItem)>,
     /// Drivers with ids.
     pub drivers: Vec<(i64, NewBenefitDriver)>,
+    /// The settings of its approval, which its figures keep; `None` uses today's.
+    pub frozen: Option<ApprovalSettings>,
 }
 
 /// A zone's ledger as running totals: what each baseline driver booked, and the latest month
@@ -283,6 +285,9 @@ pub struct ZoneBase {
     pub realization: Option<f64>,
     /// Per driver of the baseline: its kind and its record, for calibration.
     pub evidence: Vec<(DriverKind, Evidence)>,
+    /// The hurdle rate of the figures, and whether it is the one frozen at approval (else
+    /// today's setting).
+    pub hurdle: (Decimal, bool),
     /// What the figures were computed from: the case, the hurdle rate and the trials.
     inputs: Option<(CaseParts, f64, Trials)>,
 }
@@ -291,7 +296,11 @@ pub struct ZoneBase {
 /// same case, hurdle rate and trials (a booking or a readiness score changed, not the case),
 /// its figures are reused: the schedule and the Monte Carlo are the costly part.
 pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials, previous: Option<&ZoneBase>) -> ZoneBase {
-    let hurdle = site.hurdle_f64();
+    // An approved baseline keeps the hurdle rate of its approval; the cache check below
+    // compares the case (frozen settings included) and this rate.
+    let frozen = data.case.as_ref().and_then(|c| c.frozen.as_ref());
+    let hurdle_rate = frozen.map_or(site.hurdle_rate, |f| f.hurdle_rate);
+    let hurdle = frozen.map_or_else(|| site.hurdle_f64(), |f| f.apply(site).hurdle_f64());
     let inputs = data.case.clone().map(|c| (c, hurdle, trials));
     let (figures, realization, evidence) = match &data.case {
         None => (Err("no business case yet".to_string()), None, Vec::new()),
@@ -314,6 +323,7 @@ pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials, previous: 
         figures,
         realization,
         evidence,
+        hurdle: (hurdle_rate, frozen.is_some()),
         inputs,
     }
 }

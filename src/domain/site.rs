@@ -24,6 +24,8 @@ pub struct SiteSettings {
     pub expert_multiplier: Decimal,
     /// How forms, CSV and scenario files write numbers, and how pages and exports show them.
     pub number_format: NumberFormat,
+    /// Whether one person may submit and approve a version (a small plant); off by default.
+    pub one_person_approval: bool,
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
@@ -51,6 +53,9 @@ pub struct SiteSettingsInput {
     pub expert_multiplier: String,
     /// `decimal_point` or `decimal_comma`; empty for decimal_point.
     pub number_format: String,
+    /// One-person approval allowed; absent for no.
+    #[serde(deserialize_with = "super::de::flexible_bool")]
+    pub one_person_approval: bool,
 }
 
 impl SiteSettings {
@@ -115,8 +120,25 @@ impl SiteSettings {
                 default_horizon_months,
                 expert_multiplier,
                 number_format,
+                one_person_approval: input.one_person_approval,
             }),
             _ => Err(e),
+        }
+    }
+
+    /// The raw input these settings parse back from (rates as fractions): the base a partial
+    /// change is laid over.
+    pub fn input(&self) -> SiteSettingsInput {
+        SiteSettingsInput {
+            plant_name: self.plant_name.clone(),
+            currency: self.currency.clone(),
+            hurdle_rate: self.hurdle_rate.to_string(),
+            tax_rate: self.tax_rate.map(|t| t.to_string()).unwrap_or_default(),
+            depreciation_years: self.depreciation_text(),
+            default_horizon_months: self.default_horizon_months.to_string(),
+            expert_multiplier: self.expert_multiplier.to_string(),
+            number_format: self.number_format.as_str().to_string(),
+            one_person_approval: self.one_person_approval,
         }
     }
 

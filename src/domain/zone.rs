@@ -45,6 +45,48 @@ impl ZoneStatus {
             .find(|s| s.as_str() == value.trim())
             .ok_or_else(|| "one of candidate, approved, piloting, measuring, closed, shelved".to_string())
     }
+
+    /// The states a zone may move to from this one. The lifecycle only moves forward; a zone
+    /// may be shelved until it closes, and a shelved zone may become a candidate again only
+    /// while no money is booked on it (see [`ZoneStatus::check_move`]).
+    pub fn next(self) -> &'static [ZoneStatus] {
+        match self {
+            Self::Candidate => &[Self::Approved, Self::Shelved],
+            Self::Approved => &[Self::Piloting, Self::Shelved],
+            Self::Piloting => &[Self::Measuring, Self::Shelved],
+            Self::Measuring => &[Self::Closed, Self::Shelved],
+            Self::Closed => &[],
+            Self::Shelved => &[Self::Candidate],
+        }
+    }
+
+    /// Whether the zone may move from this state to `to`: `booked` says whether any money is
+    /// booked on it, `baseline` whether it has an approved business case. Staying is allowed.
+    pub fn check_move(self, to: ZoneStatus, booked: bool, baseline: bool) -> Result<(), String> {
+        if self == to {
+            return Ok(());
+        }
+        let allowed = self.next().iter().filter(|s| !(**s == Self::Candidate && booked)).copied().collect::<Vec<_>>();
+        let list = if allowed.is_empty() {
+            "none".to_string()
+        } else {
+            allowed.iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+        };
+        if !allowed.contains(&to) {
+            let why = if to == Self::Candidate && booked {
+                " (money is booked on this zone, so it never returns to candidate)"
+            } else {
+                ""
+            };
+            return Err(format!("a zone cannot move from {self} to {to}{why}; allowed next states: {list}"));
+        }
+        if to == Self::Approved && !baseline {
+            return Err(format!(
+                "a zone becomes approved with its business case: approve a case version first; allowed next states: {list}"
+            ));
+        }
+        Ok(())
+    }
 }
 
 impl std::fmt::Display for ZoneStatus {
@@ -106,6 +148,21 @@ impl NewZone {
     }
 }
 
+impl NewZone {
+    /// [`NewZone::parse`] for a zone created by a page or the API: it starts as a candidate (or
+    /// shelved); later states come through the lifecycle. Scenario files may load any state.
+    pub fn parse_new(input: &ZoneInput) -> Result<Self, FieldErrors> {
+        let zone = Self::parse(input)?;
+        match zone.status {
+            ZoneStatus::Candidate | ZoneStatus::Shelved => Ok(zone),
+            other => Err(FieldErrors::one(
+                "status",
+                format!("a new zone starts as candidate or shelved, not {other}: later states follow its lifecycle"),
+            )),
+        }
+    }
+}
+
 fn parse_code(value: &str) -> Result<String, String> {
     let code = value.trim().to_uppercase();
     let ok = (1..=16).contains(&code.len())
@@ -149,6 +206,23 @@ mod tests {
         let errors = NewZone::parse(&input).err().unwrap_or_default();
         let fields: Vec<&str> = errors.0.iter().map(|e| e.field.as_str()).collect();
         assert_eq!(fields, ["code", "name", "status"]);
+    }
+
+    #[test]
+    fn the_lifecycle_only_moves_forward() {
+        use ZoneStatus::*;
+        assert_eq!(Candidate.check_move(Approved, false, true), Ok(()));
+        assert_eq!(
+            Measuring.check_move(Candidate, false, true),
+            Err("a zone cannot move from measuring to candidate; allowed next states: closed, shelved".into())
+        );
+        assert_eq!(Shelved.check_move(Candidate, false, false), Ok(()));
+        assert_eq!(
+            Shelved.check_move(Candidate, true, true),
+            Err("a zone cannot move from shelved to candidate (money is booked on this zone, so it never returns to candidate); allowed next states: none".into())
+        );
+        assert!(Candidate.check_move(Approved, false, false).is_err());
+        assert_eq!(Closed.check_move(Closed, true, true), Ok(()));
     }
 
     #[test]

@@ -259,6 +259,27 @@ pub struct SettingsForm {
     default_horizon_months: String,
     expert_multiplier: String,
     number_format: String,
+    #[serde(deserialize_with = "crate::domain::de::flexible_bool")]
+    one_person_approval: bool,
+}
+
+/// Store new site settings with their audit row: the one write path of the settings form and
+/// `PATCH /api/v1/site`. The currency is refused once cases hold money (`db::put_site`).
+pub async fn change_settings(pool: &SqlitePool, site: &SiteSettings, actor: &str) -> Result<(), AppError> {
+    let mut tx = db::begin_write(pool).await?;
+    db::put_site(&mut tx, site, actor).await?;
+    let detail = format!(
+        "currency {}, hurdle {}, tax {:?}, depreciation {:?}, one-person approval {}, numbers {}",
+        site.currency,
+        site.hurdle_rate,
+        site.tax_rate,
+        site.depreciation_years,
+        site.one_person_approval,
+        site.number_format.as_str()
+    );
+    db::audit::record(&mut tx, &db::now(), actor, "settings.update", "site", &detail).await?;
+    tx.commit().await?;
+    Ok(())
 }
 
 /// POST /admin/settings: numbers are read in the format the form was shown in (the current one).
@@ -284,6 +305,7 @@ pub async fn update_settings(
         default_horizon_months: f.default_horizon_months,
         expert_multiplier: f.expert_multiplier,
         number_format: f.number_format,
+        one_person_approval: f.one_person_approval,
     };
     let site = match SiteSettings::parse(&input, shown) {
         Ok(site) if e.is_empty() => site,
@@ -297,18 +319,11 @@ pub async fn update_settings(
             return admin_page(&state, Nav::from(&me), e, None, None).await;
         }
     };
-    let mut tx = db::begin_write(&state.pool).await?;
-    db::put_site(&mut tx, &site, me.name()).await?;
-    let detail = format!(
-        "currency {}, hurdle {}, tax {:?}, numbers {}",
-        site.currency,
-        site.hurdle_rate,
-        site.tax_rate,
-        site.number_format.as_str()
-    );
-    db::audit::record(&mut tx, &db::now(), me.name(), "settings.update", "site", &detail).await?;
-    tx.commit().await?;
-    Ok(Redirect::to("/admin").into_response())
+    match change_settings(&state.pool, &site, me.name()).await {
+        Ok(()) => Ok(Redirect::to("/admin").into_response()),
+        Err(AppError::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
+        Err(other) => Err(other),
+    }
 }
 
 /// POST /admin/readiness: the weights of the readiness criteria, 0 to 10 each.

@@ -2,15 +2,19 @@
 //! and the OpenAPI document.
 
 use super::auth::CurrentUser;
+use super::cases::{CommentForm, CopyForm, ReviewStep, copy_version, figures_of, review_case};
 use super::metrics;
-use super::{ApiError, AppState, JsonBody};
+use super::{ApiError, AppError, AppState, JsonBody};
 use crate::db::{self, CaseFull};
-use crate::domain::{CaseSpec, CaseSpecInput, CaseState, NewZone, NumberFormat, RateStyle, ZoneInput, case_figures};
+use crate::domain::{
+    CaseSpec, CaseSpecInput, CaseState, NewZone, NumberFormat, RateStyle, SiteSettings, SiteSettingsInput, ZoneInput,
+};
 use crate::finance::schedule::CaseMetrics;
 use axum::Json;
 use axum::extract::{Path, State};
 use axum::http::{StatusCode, header};
 use axum::response::IntoResponse;
+use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 
 /// GET /api/v1/openapi.json
@@ -30,7 +34,7 @@ pub async fn create_zone(
     CurrentUser(user): CurrentUser,
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let zone = NewZone::parse(&input)?;
+    let zone = NewZone::parse_new(&input)?;
     let mut tx = db::begin_write(&state.pool).await?;
     let id = db::insert_zone(&mut tx, &zone, user.name()).await?;
     db::audit::record(&mut tx, &db::now(), user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;
@@ -77,20 +81,21 @@ pub async fn get_case(State(state): State<AppState>, Path(id): Path<i64>) -> Res
     Ok(Json(case_body(&state, id).await?))
 }
 
+/// A case with its figures; `settings` says whether they use the settings of its approval
+/// (`at_approval`) or today's (`today`), and `notes` carries the flags its pages show.
 async fn case_body(state: &AppState, id: i64) -> Result<Value, ApiError> {
-    let site = db::get_site(&state.pool).await?;
+    let today = db::get_site(&state.pool).await?;
     let full: CaseFull = db::case_full(&state.pool, id).await?;
-    let figures = case_figures(
-        &full.case.header,
-        full.costs.iter().map(|c| &c.item),
-        full.drivers.iter().map(|d| &d.driver),
-        &site,
-    )
-    .map_err(|e| super::AppError::Conflict(format!("the case cannot be computed: {e}")))?;
+    let figures = figures_of(&full, &today)?;
+    let site = full.case.settings(&today);
+    let notes: Vec<Value> =
+        full.case.notes(&today).into_iter().map(|(kind, text)| json!({ "kind": kind, "text": text })).collect();
     Ok(json!({
         "case": full,
         "currency": site.currency,
         "hurdle_rate": site.hurdle_rate.to_string(),
+        "settings": if full.case.frozen_settings.is_some() { "at_approval" } else { "today" },
+        "notes": notes,
         "metrics": metrics_json(&figures.pre_tax.metrics),
         "after_tax_metrics": figures.after_tax.as_ref().map(|v| metrics_json(&v.metrics)),
         "monthly_net_flows": figures.pre_tax.schedule.net_flows().iter().map(|f| metrics::money_text(*f)).collect::<Vec<_>>(),
@@ -112,4 +117,158 @@ fn metrics_json(m: &CaseMetrics) -> Value {
         "pv_costs": metrics::money_text(m.pv_costs),
         "total_one_off": metrics::money_text(m.total_one_off),
     })
+}
+
+/// POST /api/v1/cases/{id}/copy `{"label"}`: the version saved as the zone's next draft.
+pub async fn copy_case(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    JsonBody(body): JsonBody<CopyForm>,
+) -> Result<impl IntoResponse, ApiError> {
+    let new_id = copy_version(&state, &user, id, &body.label).await?;
+    let body = case_body(&state, new_id).await?;
+    Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{new_id}"))], Json(body)))
+}
+
+async fn review(
+    state: &AppState,
+    user: &super::auth::Principal,
+    id: i64,
+    step: ReviewStep,
+    comment: &str,
+) -> Result<Json<Value>, ApiError> {
+    review_case(state, user, id, step, comment).await?;
+    Ok(Json(case_body(state, id).await?))
+}
+
+/// POST /api/v1/cases/{id}/submit `{"comment"?}`
+pub async fn submit_case(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    JsonBody(body): JsonBody<CommentForm>,
+) -> Result<Json<Value>, ApiError> {
+    review(&state, &user, id, ReviewStep::Submit, &body.comment).await
+}
+
+/// POST /api/v1/cases/{id}/approve `{"comment"?}`: four eyes unless the site allows one person.
+pub async fn approve_case(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    JsonBody(body): JsonBody<CommentForm>,
+) -> Result<Json<Value>, ApiError> {
+    review(&state, &user, id, ReviewStep::Approve, &body.comment).await
+}
+
+/// POST /api/v1/cases/{id}/reject `{"comment"}`: back to draft with the reason.
+pub async fn reject_case(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    JsonBody(body): JsonBody<CommentForm>,
+) -> Result<Json<Value>, ApiError> {
+    review(&state, &user, id, ReviewStep::Reject, &body.comment).await
+}
+
+/// The zone status body.
+#[derive(Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct StatusBody {
+    /// The next lifecycle status.
+    status: String,
+}
+
+/// POST /api/v1/zones/{id}/status `{"status"}`: 409 naming the allowed next states when the
+/// lifecycle does not allow the move.
+pub async fn zone_status(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    JsonBody(body): JsonBody<StatusBody>,
+) -> Result<Json<Value>, ApiError> {
+    let zone = super::zones::change_status(&state, &user, id, &body.status).await?;
+    Ok(Json(json!({ "zone": zone })))
+}
+
+/// The site settings as the API shows them (rates as fraction strings).
+fn site_json(site: &SiteSettings) -> Value {
+    json!({ "site": {
+        "plant_name": site.plant_name,
+        "currency": site.currency,
+        "hurdle_rate": site.hurdle_rate.to_string(),
+        "tax_rate": site.tax_rate.map(|t| t.to_string()),
+        "depreciation_years": site.depreciation_years,
+        "default_horizon_months": site.default_horizon_months,
+        "expert_multiplier": site.expert_multiplier.to_string(),
+        "one_person_approval": site.one_person_approval,
+        "number_format": site.number_format.as_str(),
+    }})
+}
+
+/// GET /api/v1/site
+pub async fn get_site(State(state): State<AppState>) -> Result<Json<Value>, ApiError> {
+    Ok(Json(site_json(&db::get_site(&state.pool).await?)))
+}
+
+/// A partial change of the site settings: absent fields keep their value, `null` clears an
+/// optional one (tax rate, depreciation years). Rates are fractions.
+#[derive(Deserialize, Serialize, Default)]
+#[serde(default, deny_unknown_fields)]
+pub struct SitePatch {
+    plant_name: Option<String>,
+    currency: Option<String>,
+    #[serde(deserialize_with = "present")]
+    hurdle_rate: Option<String>,
+    #[serde(deserialize_with = "present")]
+    tax_rate: Option<String>,
+    #[serde(deserialize_with = "present")]
+    depreciation_years: Option<String>,
+    #[serde(deserialize_with = "present")]
+    default_horizon_months: Option<String>,
+    #[serde(deserialize_with = "present")]
+    expert_multiplier: Option<String>,
+    one_person_approval: Option<bool>,
+    number_format: Option<String>,
+}
+
+/// A field that is present: its text (a number as written, `null` as empty).
+fn present<'de, D: serde::Deserializer<'de>>(d: D) -> Result<Option<String>, D::Error> {
+    crate::domain::de::string_or_number(d).map(Some)
+}
+
+impl SitePatch {
+    /// Lay the given fields over `input`.
+    fn apply(self, mut input: SiteSettingsInput) -> SiteSettingsInput {
+        let set = |slot: &mut String, v: Option<String>| {
+            if let Some(v) = v {
+                *slot = v;
+            }
+        };
+        set(&mut input.plant_name, self.plant_name);
+        set(&mut input.currency, self.currency);
+        set(&mut input.hurdle_rate, self.hurdle_rate);
+        set(&mut input.tax_rate, self.tax_rate);
+        set(&mut input.depreciation_years, self.depreciation_years);
+        set(&mut input.default_horizon_months, self.default_horizon_months);
+        set(&mut input.expert_multiplier, self.expert_multiplier);
+        set(&mut input.number_format, self.number_format);
+        if let Some(v) = self.one_person_approval {
+            input.one_person_approval = v;
+        }
+        input
+    }
+}
+
+/// PATCH /api/v1/site: change some settings (admin); errors name each field.
+pub async fn patch_site(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    JsonBody(patch): JsonBody<SitePatch>,
+) -> Result<Json<Value>, ApiError> {
+    let current = db::get_site(&state.pool).await?;
+    let site = SiteSettings::parse(&patch.apply(current.input()), NumberFormat::Plain).map_err(AppError::Invalid)?;
+    super::admin::change_settings(&state.pool, &site, user.name()).await?;
+    Ok(Json(site_json(&db::get_site(&state.pool).await?)))
 }

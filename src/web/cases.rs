@@ -9,7 +9,7 @@ use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
     FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle, SiteSettings, Trials, Zone,
-    calibration_of, case_figures, case_uncertainty, parse_seed,
+    calibration_of, case_figures, case_uncertainty, parse_comment, parse_return_comment, parse_seed,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -18,7 +18,7 @@ use axum::extract::{Path, Query, State};
 use axum::http::StatusCode;
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 
 /// Metrics formatted as the pages show them.
 pub struct MetricsView {
@@ -102,15 +102,23 @@ impl From<&CaseMetrics> for MetricsView {
     }
 }
 
-/// Load a case and compute its figures at the site's settings.
-pub async fn load_figures(state: &AppState, id: i64, site: &SiteSettings) -> Result<(CaseFull, CaseFigures), AppError> {
+/// Load a case and compute its figures: at the settings of its approval when it has them,
+/// at `today`'s otherwise.
+pub async fn load_figures(
+    state: &AppState,
+    id: i64,
+    today: &SiteSettings,
+) -> Result<(CaseFull, CaseFigures), AppError> {
     let full = db::case_full(&state.pool, id).await?;
-    let figures = figures_of(&full, site)?;
+    let figures = figures_of(&full, today)?;
     Ok((full, figures))
 }
 
-fn figures_of(full: &CaseFull, site: &SiteSettings) -> Result<CaseFigures, AppError> {
-    case_figures(&full.case.header, full.costs.iter().map(|c| &c.item), full.drivers.iter().map(|d| &d.driver), site)
+/// A case's figures at its own settings ([`db::CaseVersion::settings`]): every page and the
+/// API compute them here.
+pub(super) fn figures_of(full: &CaseFull, today: &SiteSettings) -> Result<CaseFigures, AppError> {
+    let site = full.case.settings(today);
+    case_figures(&full.case.header, full.costs.iter().map(|c| &c.item), full.drivers.iter().map(|d| &d.driver), &site)
         .map_err(|e| AppError::Conflict(format!("the case cannot be computed: {e}")))
 }
 
@@ -118,7 +126,10 @@ fn figures_of(full: &CaseFull, site: &SiteSettings) -> Result<CaseFigures, AppEr
 #[template(path = "cases/view.html")]
 struct ViewPage {
     nav: Nav,
+    /// The settings the figures use (those of the approval for a baseline).
     site: SiteSettings,
+    notes: Vec<(&'static str, String)>,
+    history: Vec<String>,
     zone: Zone,
     full: CaseFull,
     m: MetricsView,
@@ -144,13 +155,14 @@ pub async fn view(
     Path(id): Path<i64>,
     Query(q): Query<SeedQuery>,
 ) -> Result<Response, AppError> {
-    let site = db::get_site(&state.pool).await?;
-    let (full, figures) = load_figures(&state, id, &site).await?;
+    let today = db::get_site(&state.pool).await?;
+    let (full, figures) = load_figures(&state, id, &today).await?;
     let (seed, seed_error) = match parse_seed(&q.seed) {
         Ok(v) => (v, None),
         Err(why) => (DEFAULT_SEED, Some(format!("{:?} is not a seed: use {why}", q.seed.trim()))),
     };
-    let bases = state.figures.bases(&state.pool, &site, Trials::default()).await?;
+    let bases = state.figures.bases(&state.pool, &today, Trials::default()).await?;
+    let site = full.case.settings(&today);
     let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
     let header = &full.case.header;
     let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
@@ -169,6 +181,8 @@ pub async fn view(
     );
     let page = ViewPage {
         nav: Nav::from(&me),
+        notes: full.case.notes(&today),
+        history: full.case.history(),
         m: MetricsView::from(&pre.metrics),
         after_tax: figures.after_tax.as_ref().map(|v| MetricsView::from(&v.metrics)),
         site,
@@ -202,6 +216,7 @@ pub struct FlowRow {
 struct FlowsPage {
     nav: Nav,
     site: SiteSettings,
+    notes: Vec<(&'static str, String)>,
     zone: Zone,
     full: CaseFull,
     rows: Vec<FlowRow>,
@@ -222,8 +237,9 @@ pub async fn flows(
     Path(id): Path<i64>,
     Query(q): Query<FlowsQuery>,
 ) -> Result<Html<String>, AppError> {
-    let site = db::get_site(&state.pool).await?;
-    let (full, figures) = load_figures(&state, id, &site).await?;
+    let today = db::get_site(&state.pool).await?;
+    let (full, figures) = load_figures(&state, id, &today).await?;
+    let (site, notes) = (full.case.settings(&today), full.case.notes(&today));
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
     let (view, after_tax) = match (&figures.after_tax, q.view.as_str()) {
         (Some(v), "after_tax") => (v, true),
@@ -248,7 +264,7 @@ pub async fn flows(
         })
         .collect();
     let monthly_rate = Percent(view.schedule.monthly_rate);
-    Ok(Html(FlowsPage { nav: Nav::from(&me), site, zone, full, rows, after_tax, monthly_rate }.render()?))
+    Ok(Html(FlowsPage { nav: Nav::from(&me), site, notes, zone, full, rows, after_tax, monthly_rate }.render()?))
 }
 
 #[derive(Template)]
@@ -256,6 +272,7 @@ pub async fn flows(
 struct EditPage {
     nav: Nav,
     site: SiteSettings,
+    notes: Vec<(&'static str, String)>,
     zone: Zone,
     full: CaseFull,
     header: CaseHeaderInput,
@@ -298,6 +315,7 @@ async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Resul
     let editable = nav.can_edit && full.case.state == crate::domain::CaseState::Draft;
     let mut page = EditPage {
         nav,
+        notes: full.case.notes(&site),
         header: header_input(&full.case.header),
         header_errors: FieldErrors::default(),
         cost: CostInput { kind: "one_off".into(), category: "hardware".into(), capex: true, ..Default::default() },
@@ -450,25 +468,18 @@ pub async fn delete_driver(
     .await
 }
 
-#[derive(Deserialize)]
+/// The copy form and body: the new version's name.
+#[derive(Deserialize, Serialize, Default)]
+#[serde(default, deny_unknown_fields)]
 pub struct CopyForm {
-    #[serde(default)]
-    label: String,
+    /// Name of the new version.
+    pub label: String,
 }
 
-/// POST /cases/{id}/copy: save this version as the zone's next scenario version.
-pub async fn copy(
-    State(state): State<AppState>,
-    CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
-    FormBody(form): FormBody<CopyForm>,
-) -> Result<Response, AppError> {
-    let label = match crate::domain::CaseHeader::parse_label(&form.label) {
-        Ok(l) => l,
-        Err(msg) => {
-            return Err(AppError::Invalid(FieldErrors::one("label", msg)));
-        }
-    };
+/// Save version `id` as the zone's next draft named `label`, with its audit row: the one write
+/// path of the copy page form and the API. Returns the new version's id.
+pub(super) async fn copy_version(state: &AppState, user: &Principal, id: i64, label: &str) -> Result<i64, AppError> {
+    let label = CaseHeader::parse_label(label).map_err(|msg| AppError::Invalid(FieldErrors::one("label", msg)))?;
     let mut tx = db::begin_write(&state.pool).await?;
     let new_id = db::copy_case(&mut tx, id, &label, user.name()).await?;
     db::audit::record(
@@ -481,6 +492,17 @@ pub async fn copy(
     )
     .await?;
     tx.commit().await?;
+    Ok(new_id)
+}
+
+/// POST /cases/{id}/copy: save this version as the zone's next scenario version.
+pub async fn copy(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    FormBody(form): FormBody<CopyForm>,
+) -> Result<Response, AppError> {
+    let new_id = copy_version(&state, &user, id, &form.label).await?;
     Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
 }
 
@@ -560,13 +582,75 @@ pub async fn compare(
     Ok(Html(ComparePage { nav: Nav::from(&me), site, zone, versions, a, b, rows, npv_difference }.render()?))
 }
 
+/// A review step on a case version.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ReviewStep {
+    /// A draft goes up for approval.
+    Submit,
+    /// A submitted version becomes the zone's baseline (four eyes).
+    Approve,
+    /// A submitted version goes back to draft with the reason.
+    Reject,
+}
+
+impl ReviewStep {
+    fn action(self) -> &'static str {
+        match self {
+            Self::Submit => "case.submit",
+            Self::Approve => "case.approve",
+            Self::Reject => "case.reject",
+        }
+    }
+}
+
+/// The review form and body: a comment, required to return a version.
+#[derive(Deserialize, Serialize, Default)]
+#[serde(default, deny_unknown_fields)]
+pub struct CommentForm {
+    /// Free text kept on the version and in the audit trail.
+    pub comment: String,
+}
+
+/// Apply a review step in one transaction with its audit row (who, when, the comment): the
+/// one write path of the page forms and the API. The rules are `db::submit_case`,
+/// `db::approve_case` and `db::reject_case`.
+pub(super) async fn review_case(
+    state: &AppState,
+    user: &Principal,
+    id: i64,
+    step: ReviewStep,
+    comment: &str,
+) -> Result<(), AppError> {
+    let comment = match step {
+        ReviewStep::Reject => parse_return_comment(comment),
+        ReviewStep::Submit | ReviewStep::Approve => parse_comment(comment),
+    }
+    .map_err(|msg| AppError::Invalid(FieldErrors::one("comment", msg)))?;
+    let mut tx = db::begin_write(&state.pool).await?;
+    let mut detail = match step {
+        ReviewStep::Submit => db::submit_case(&mut tx, id, user.name(), &comment).await.map(|()| String::new()),
+        ReviewStep::Approve => {
+            db::approve_case(&mut tx, id, user.name(), &comment).await.map(|k| k.as_str().to_string())
+        }
+        ReviewStep::Reject => db::reject_case(&mut tx, id, user.name(), &comment).await.map(|()| String::new()),
+    }?;
+    if !comment.is_empty() {
+        detail = if detail.is_empty() { comment } else { format!("{detail}: {comment}") };
+    }
+    db::audit::record(&mut tx, &db::now(), user.name(), step.action(), &format!("case {id}"), &detail).await?;
+    tx.commit().await?;
+    Ok(())
+}
+
 /// POST /cases/{id}/submit: a draft goes up for approval.
 pub async fn submit(
     State(state): State<AppState>,
     CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
+    FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    state_change(&state, &user, id, "case.submit", async |conn| db::submit_case(conn, id, user.name()).await).await
+    review_case(&state, &user, id, ReviewStep::Submit, &form.comment).await?;
+    Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
 /// POST /cases/{id}/approve: a submitted version becomes the zone's frozen baseline.
@@ -574,23 +658,19 @@ pub async fn approve(
     State(state): State<AppState>,
     CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
+    FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    state_change(&state, &user, id, "case.approve", async |conn| db::approve_case(conn, id, user.name()).await).await
+    review_case(&state, &user, id, ReviewStep::Approve, &form.comment).await?;
+    Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
-async fn state_change<F>(
-    state: &AppState,
-    user: &Principal,
-    id: i64,
-    action: &str,
-    change: F,
-) -> Result<Response, AppError>
-where
-    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<(), db::DbError>,
-{
-    let mut tx = db::begin_write(&state.pool).await?;
-    change(&mut tx).await?;
-    db::audit::record(&mut tx, &db::now(), user.name(), action, &format!("case {id}"), "").await?;
-    tx.commit().await?;
+/// POST /cases/{id}/reject: a submitted version goes back to draft with the reason.
+pub async fn reject(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    Path(id): Path<i64>,
+    FormBody(form): FormBody<CommentForm>,
+) -> Result<Response, AppError> {
+    review_case(&state, &user, id, ReviewStep::Reject, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }

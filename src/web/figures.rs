@@ -9,7 +9,9 @@
 //! zones. Every request reads the counters (one small query) and recomputes only the zones
 //! whose counters moved, in parallel. A recomputed zone whose case, hurdle rate and trials are
 //! those of its cached figures (a booking or a score moved its counter) keeps its schedule
-//! metrics and Monte Carlo and recomputes only realization and evidence. Only the default
+//! metrics and Monte Carlo and recomputes only realization and evidence. An approved baseline's
+//! hurdle rate is the one frozen on its version at approval (migration 0008): approving bumps
+//! the zone's counter, and a later settings change recomputes it to the same figures. Only the default
 //! Monte Carlo seed is cached; another seed computes every zone for that request.
 
 use super::AppError;

@@ -64,6 +64,7 @@ pub struct EntryRow {
 struct LedgerPage {
     nav: Nav,
     site: SiteSettings,
+    notes: Vec<(&'static str, String)>,
     zone: Zone,
     baseline: Option<CaseFull>,
     can_book: bool,
@@ -129,14 +130,16 @@ fn figures(view: &RealizedView) -> Figures {
     }
 }
 
-/// The baseline and entries of a zone, with the realized view.
+/// The baseline and entries of a zone, with the realized view at the baseline's settings
+/// (those of its approval), which are the settings returned.
 async fn load(
     state: &AppState,
     zone_id: i64,
 ) -> Result<(SiteSettings, Zone, Option<CaseFull>, Vec<LedgerEntry>, Option<RealizedView>), AppError> {
-    let site = db::get_site(&state.pool).await?;
+    let today = db::get_site(&state.pool).await?;
     let zone = db::get_zone(&state.pool, zone_id).await?;
     let baseline = db::baseline_of(&state.pool, zone_id).await?;
+    let site = baseline.as_ref().map_or_else(|| today.clone(), |b| b.case.settings(&today));
     let entries = db::ledger::zone_entries(&state.pool, zone_id).await?;
     let view = match &baseline {
         Some(b) => {
@@ -191,8 +194,13 @@ async fn page(
     } else {
         StatusCode::OK
     };
+    let notes = match &baseline {
+        Some(b) => b.case.notes(&db::get_site(&state.pool).await?),
+        None => Vec::new(),
+    };
     let page = LedgerPage {
         nav: Nav::from(me),
+        notes,
         can_book: me.role().allows(crate::auth::Permission::Ledger) && baseline.is_some(),
         figures: view.as_ref().map(figures),
         period_hint: format!("up to {}", current_month(state)),
@@ -564,7 +572,7 @@ pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppEr
 
 /// GET /api/v1/zones/{id}/ledger: entries and realized figures.
 pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
-    let (_, _, baseline, entries, view) = load(&state, id).await?;
+    let (site, _, baseline, entries, view) = load(&state, id).await?;
     let realized = view.map(|v| {
         json!({
             "elapsed_months": v.elapsed,
@@ -582,7 +590,14 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
             })).collect::<Vec<_>>(),
         })
     });
-    Ok(Json(json!({ "baseline_case_id": baseline.map(|b| b.case.id), "entries": entries, "realized": realized })))
+    let (currency, hurdle_rate) = (&site.currency, site.hurdle_rate.to_string());
+    Ok(Json(json!({
+        "baseline_case_id": baseline.map(|b| b.case.id),
+        "currency": currency,
+        "hurdle_rate": hurdle_rate,
+        "entries": entries,
+        "realized": realized,
+    })))
 }
 
 /// POST /api/v1/zones/{id}/ledger: book one entry. An `Idempotency-Key` header makes a retry

@@ -24,7 +24,7 @@ use crate::domain::FieldErrors;
 use crate::domain::NumberFormat;
 use axum::extract::{DefaultBodyLimit, FromRequest, Request};
 use axum::http::{HeaderValue, Method, StatusCode, header};
-use axum::routing::{MethodRouter, get, post};
+use axum::routing::{MethodRouter, get, patch, post};
 use axum::{Form, Json, Router};
 use serde::Serialize;
 use serde::de::DeserializeOwned;
@@ -162,6 +162,7 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/cases/{id}/copy", EditCases, post(cases::copy)),
         route(p.clone(), "/cases/{id}/submit", EditCases, post(cases::submit)),
         route(p.clone(), "/cases/{id}/approve", EditCases, post(cases::approve)),
+        route(p.clone(), "/cases/{id}/reject", EditCases, post(cases::reject)),
         route(g.clone(), "/zones/{id}/ledger", Read, get(ledger::show)),
         route(p.clone(), "/zones/{id}/ledger", Ledger, post(ledger::book)),
         route(p.clone(), "/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::reverse)),
@@ -189,6 +190,13 @@ pub fn routes() -> Vec<Route> {
         route(g.clone(), "/api/v1/zones/{id}", Read, get(api::get_zone)),
         route(p.clone(), "/api/v1/zones/{id}/cases", EditCases, post(api::create_case)),
         route(g.clone(), "/api/v1/cases/{id}", Read, get(api::get_case)),
+        route(p.clone(), "/api/v1/cases/{id}/copy", EditCases, post(api::copy_case)),
+        route(p.clone(), "/api/v1/cases/{id}/submit", EditCases, post(api::submit_case)),
+        route(p.clone(), "/api/v1/cases/{id}/approve", EditCases, post(api::approve_case)),
+        route(p.clone(), "/api/v1/cases/{id}/reject", EditCases, post(api::reject_case)),
+        route(p.clone(), "/api/v1/zones/{id}/status", EditCases, post(api::zone_status)),
+        route(g.clone(), "/api/v1/site", Admin, get(api::get_site)),
+        route(Method::PATCH, "/api/v1/site", Admin, patch(api::patch_site)),
         route(g, "/api/v1/zones/{id}/ledger", Read, get(ledger::api_show)),
         route(p.clone(), "/api/v1/zones/{id}/ledger", Ledger, post(ledger::api_book)),
         route(p, "/api/v1/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::api_reverse)),

@@ -75,6 +75,8 @@ pub struct RowView {
     readiness: String,
     in_greedy: bool,
     problem: Option<String>,
+    /// "at approval: 9 %" for a baseline whose figures keep the rate of its approval.
+    frozen: Option<String>,
 }
 
 const DASH: &str = "–";
@@ -97,6 +99,7 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
         investment: money(r.investment()),
         npv: money(r.npv()),
         npv_negative: r.npv().is_some_and(|v| v < Decimal::ZERO),
+        frozen: r.base.hurdle.1.then(|| format!("at approval: {}", crate::domain::pct(&r.base.hurdle.0))),
         risk_adjusted: money(r.risk_adjusted),
         calibrated: money(r.calibrated),
         irr: m.and_then(|m| m.irr_annual).map_or_else(|| DASH.into(), |i| Percent(i).to_string()),
@@ -379,6 +382,8 @@ async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberForm
         "realization_to_date".into(),
         "readiness".into(),
         "problem".into(),
+        "hurdle_rate".into(),
+        "hurdle_rate_basis".into(),
     ];
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&header).map_err(internal)?;
@@ -407,6 +412,8 @@ async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberForm
             text(j.realization_to_date),
             j.readiness.map(|x| numbers.export(&format!("{:.2}", x.score))).unwrap_or_default(),
             j.problem.unwrap_or_default().to_string(),
+            j.hurdle_rate,
+            j.hurdle_rate_basis.to_string(),
         ];
         w.write_record(&record).map_err(internal)?;
     }
@@ -457,6 +464,10 @@ struct RowJson<'a> {
     realization_to_date: Option<String>,
     readiness: Option<ReadinessJson>,
     problem: Option<&'a str>,
+    /// The hurdle rate of this row's figures.
+    hurdle_rate: String,
+    /// `at_approval` (a baseline keeps its approval's rate) or `today` (the site's setting).
+    hurdle_rate_basis: &'static str,
 }
 
 fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
@@ -495,6 +506,8 @@ fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
         realization_to_date: r.base.realization.map(rate_text),
         readiness: r.readiness.map(|x| ReadinessJson { score: x.score, scored: x.rated, of: x.of }),
         problem: r.problem(),
+        hurdle_rate: r.base.hurdle.0.to_string(),
+        hurdle_rate_basis: if r.base.hurdle.1 { "at_approval" } else { "today" },
     }
 }
 

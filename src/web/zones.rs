@@ -1,6 +1,6 @@
 //! Zone pages: the list with its create form, the detail page with its versions.
 
-use super::auth::{CurrentUser, Nav};
+use super::auth::{CurrentUser, Nav, Principal};
 use super::cases::{MetricsView, load_figures};
 use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseVersion};
@@ -29,7 +29,8 @@ struct ListPage {
     rows: Vec<ZoneRow>,
     form: ZoneInput,
     errors: FieldErrors,
-    statuses: [ZoneStatus; 6],
+    /// The states a new zone may start in.
+    statuses: [ZoneStatus; 2],
 }
 
 async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErrors) -> Result<ListPage, AppError> {
@@ -45,15 +46,37 @@ async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErr
         };
         rows.push(ZoneRow { zone, latest });
     }
-    Ok(ListPage { nav, site, rows, form, errors, statuses: ZoneStatus::ALL })
+    Ok(ListPage { nav, site, rows, form, errors, statuses: [ZoneStatus::Candidate, ZoneStatus::Shelved] })
 }
 
-/// A taken zone code is the user's to fix beside the code field; anything else is an error.
+/// A taken zone code is the user's to fix beside the code field, a refused status move
+/// beside the status field; anything else is an error.
 fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
     match err {
         db::DbError::Conflict(msg) => Ok(FieldErrors::one("code", msg)),
+        db::DbError::Invalid(fields) => Ok(fields),
         other => Err(other.into()),
     }
+}
+
+/// Move zone `id` to the status named `status` along its lifecycle, with its audit row: the
+/// one write path of the API (the zone form shares the rule through `db::update_zone`).
+/// A refused move is a 409 naming the allowed next states.
+pub(super) async fn change_status(state: &AppState, user: &Principal, id: i64, status: &str) -> Result<Zone, AppError> {
+    let to = ZoneStatus::parse(status).map_err(|msg| AppError::Invalid(FieldErrors::one("status", msg)))?;
+    let mut tx = db::begin_write(&state.pool).await?;
+    let from = db::set_zone_status(&mut tx, id, to, user.name()).await?;
+    db::audit::record(
+        &mut tx,
+        &db::now(),
+        user.name(),
+        "zone.status",
+        &format!("zone {id}"),
+        &format!("{from} -> {to}"),
+    )
+    .await?;
+    tx.commit().await?;
+    Ok(db::get_zone(&state.pool, id).await?)
 }
 
 /// GET /zones
@@ -67,7 +90,7 @@ pub async fn create(
     CurrentUser(user): CurrentUser,
     FormBody(input): FormBody<ZoneInput>,
 ) -> Result<Response, AppError> {
-    let result = match NewZone::parse(&input) {
+    let result = match NewZone::parse_new(&input) {
         Ok(zone) => {
             let mut tx = db::begin_write(&state.pool).await?;
             match db::insert_zone(&mut tx, &zone, user.name()).await {
@@ -99,10 +122,14 @@ struct DetailPage {
     nav: Nav,
     site: SiteSettings,
     zone: Zone,
-    versions: Vec<(CaseVersion, MetricsView)>,
+    /// Each version with its figures and the hurdle rate they use ("9 % at approval").
+    versions: Vec<(CaseVersion, MetricsView, String)>,
+    /// The flags of the approved baseline (frozen settings, self-approval, early start).
+    notes: Vec<(&'static str, String)>,
     form: ZoneInput,
     errors: FieldErrors,
-    statuses: [ZoneStatus; 6],
+    /// The current status and the allowed next ones.
+    statuses: Vec<ZoneStatus>,
     readiness: Vec<ReadinessLine>,
     readiness_score: Option<Readiness>,
     readiness_errors: FieldErrors,
@@ -136,9 +163,17 @@ async fn detail_with(
     let site = db::get_site(&state.pool).await?;
     let zone = db::get_zone(&state.pool, id).await?;
     let mut versions = Vec::new();
+    let mut notes = Vec::new();
     for case in db::list_cases(&state.pool, id).await? {
         let (_, figures) = load_figures(state, case.id, &site).await?;
-        versions.push((case, MetricsView::from(&figures.pre_tax.metrics)));
+        let rate = match &case.frozen_settings {
+            Some(f) => format!("{} at approval", crate::domain::pct(&f.hurdle_rate)),
+            None => format!("{} today", crate::domain::pct(&site.hurdle_rate)),
+        };
+        if case.state == CaseState::Approved {
+            notes = case.notes(&site);
+        }
+        versions.push((case, MetricsView::from(&figures.pre_tax.metrics), rate));
     }
     let form = form.unwrap_or_else(|| ZoneInput {
         code: zone.code.clone(),
@@ -162,14 +197,16 @@ async fn detail_with(
             }
         })
         .collect();
+    let statuses = std::iter::once(zone.status).chain(zone.status.next().iter().copied()).collect();
     Ok(DetailPage {
         nav,
         site,
         zone,
         versions,
+        notes,
         form,
         errors,
-        statuses: ZoneStatus::ALL,
+        statuses,
         readiness,
         readiness_score,
         readiness_errors,

@@ -218,6 +218,23 @@ async fn lead_creates_a_zone_and_sees_the_api_npv() {
     // The chart is there with its payback marker.
     let svg = c.find(Locator::Css("figure.chart svg")).await.unwrap();
     assert!(svg.html(false).await.unwrap().contains("payback"));
+
+    // Four eyes: the lead submits and cannot approve; a second person (the admin) approves.
+    fill(c, "submit-comment", "ready for review").await;
+    click_button(c, "Submit for approval").await;
+    click_and_wait(c, Locator::Css("form[action$='/approve'] button")).await;
+    let refused = c.find(Locator::Css("main")).await.unwrap().text().await.unwrap();
+    assert!(refused.contains("a second person must approve it (segregation of duties)"), "{refused}");
+    c.goto(&format!("{base}/zones")).await.unwrap();
+    click_button(c, "Sign out").await;
+    sign_in(c, &base, "t-admin").await;
+    c.goto(&format!("{base}/cases/{case_id}")).await.unwrap();
+    assert!(c.find(Locator::Id("review")).await.unwrap().text().await.unwrap().contains("Submitted by t-lead"));
+    fill(c, "approve-comment", "within budget").await;
+    click_and_wait(c, Locator::Css("form[action$='/approve'] button")).await;
+    let state = c.find(Locator::Css("h1 .state")).await.unwrap().text().await.unwrap();
+    assert_eq!(state, "approved");
+    assert!(c.find(Locator::Id("note-self-approved")).await.is_err(), "a second person approved it");
     b.client.clone().close().await.unwrap();
 }
 

@@ -84,6 +84,18 @@ impl TestApp {
         t
     }
 
+    /// The same app as a new account `name` with `role` (a second lead for four-eyes tests).
+    pub async fn as_new_user(&self, name: &str, role: Role) -> TestApp {
+        pilot_ledger::web::admin::create_user(&self.pool, name, role, PASSWORD, "test").await.unwrap();
+        let mut t = self.clone();
+        t.cookie = Some(self.sign_in(name, PASSWORD).await.expect("new account signs in"));
+        t
+    }
+
+    pub async fn patch_json(&self, uri: &str, body: &str) -> Answer {
+        self.send_json(Request::patch(uri), body).await
+    }
+
     /// Sign in through the form; the session cookie on success.
     pub async fn sign_in(&self, name: &str, password: &str) -> Option<String> {
         let body = format!("name={name}&password={}", password.replace(' ', "+"));
@@ -108,10 +120,11 @@ impl TestApp {
     }
 
     pub async fn post_json(&self, uri: &str, body: &str) -> Answer {
-        let req = Request::post(uri)
-            .header(header::CONTENT_TYPE, "application/json")
-            .body(Body::from(body.to_string()))
-            .unwrap();
+        self.send_json(Request::post(uri), body).await
+    }
+
+    async fn send_json(&self, req: axum::http::request::Builder, body: &str) -> Answer {
+        let req = req.header(header::CONTENT_TYPE, "application/json").body(Body::from(body.to_string())).unwrap();
         self.send(req).await
     }
 

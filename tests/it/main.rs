@@ -2,6 +2,7 @@
 #![expect(clippy::unwrap_used, clippy::expect_used, reason = "tests fail loudly by design")]
 
 mod api;
+mod approval;
 mod browser;
 mod cli;
 mod faults;
