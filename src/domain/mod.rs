@@ -5,6 +5,7 @@
 //! field. Nothing in here knows about HTTP or SQL.
 
 mod case;
+pub mod chain;
 mod figures;
 mod ledger;
 mod money;
