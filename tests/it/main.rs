@@ -3,6 +3,7 @@
 
 mod api;
 mod browser;
+mod chain;
 mod cli;
 mod faults;
 mod finance;
