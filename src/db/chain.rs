@@ -137,14 +137,20 @@ pub(super) async fn seal(pool: &SqlitePool) -> DbResult<()> {
 }
 
 async fn seal_table(tx: &mut WriteTx, table: &'static str) -> DbResult<u64> {
-    let sql = if table == LEDGER_ENTRIES {
-        "SELECT EXISTS (SELECT 1 FROM ledger_entries WHERE hash IS NULL),
-                EXISTS (SELECT 1 FROM ledger_entries WHERE hash IS NOT NULL)"
+    // The first row tells at once (no scan) whether the table was sealed already.
+    let (first, any_hashed) = if table == LEDGER_ENTRIES {
+        (
+            "SELECT hash IS NULL FROM ledger_entries ORDER BY id LIMIT 1",
+            "SELECT EXISTS (SELECT 1 FROM ledger_entries WHERE hash IS NOT NULL)",
+        )
     } else {
-        "SELECT EXISTS (SELECT 1 FROM audit_log WHERE hash IS NULL), EXISTS (SELECT 1 FROM audit_log WHERE hash IS NOT NULL)"
+        (
+            "SELECT hash IS NULL FROM audit_log ORDER BY id LIMIT 1",
+            "SELECT EXISTS (SELECT 1 FROM audit_log WHERE hash IS NOT NULL)",
+        )
     };
-    let (unsealed, sealed): (bool, bool) = sqlx::query_as(sql).fetch_one(&mut **tx).await?;
-    if !unsealed || sealed {
+    let unsealed: Option<bool> = sqlx::query_scalar(first).fetch_optional(&mut **tx).await?;
+    if unsealed != Some(true) || sqlx::query_scalar::<_, bool>(any_hashed).fetch_one(&mut **tx).await? {
         return Ok(0);
     }
     let update = if table == LEDGER_ENTRIES {
