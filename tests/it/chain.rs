@@ -291,6 +291,14 @@ async fn user_ids_are_never_reused_even_after_a_delete_behind_the_apps_back() {
             .await
             .unwrap();
     assert_eq!(new_id, last + 1, "the next id, not the freed one");
+    // A name taken (in any case) is still a clear conflict, not the trigger's raw error.
+    let mut tx = db::begin_write(&t.pool).await.unwrap();
+    let hash = pilot_ledger::auth::hash_password(crate::helpers::PASSWORD).unwrap();
+    match db::insert_user(&mut tx, "NEWCOMER", Role::Viewer, &hash, "t", "test").await {
+        Err(db::DbError::Conflict(m)) => assert_eq!(m, "a user named NEWCOMER already exists"),
+        other => panic!("expected a conflict: {other:?}"),
+    }
+    drop(tx);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::UNAUTHORIZED, "the old token acts for no one");
     let v = db::verify(&t.pool).await.unwrap();
     let orphan = v.problems.iter().find(|p| p.table == "api_tokens").expect("the orphan token is reported");
