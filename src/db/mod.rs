@@ -155,9 +155,12 @@ fn owner_only(path: &Path) -> DbResult<()> {
                     let Ok(meta) = std::fs::metadata(&name) else { continue };
                     let mode = meta.permissions().mode() & 0o777;
                     if mode & 0o077 != 0 {
-                        std::fs::set_permissions(&name, std::fs::Permissions::from_mode(0o600))
-                            .map_err(|e| file_error(Path::new(&name), e))?;
-                        tracing::warn!(file = %Path::new(&name).display(), "narrowed permissions from {mode:o} to 600");
+                        // Someone else's file (a shared mount) stays as it is, with a warning.
+                        let file = Path::new(&name).display();
+                        match std::fs::set_permissions(&name, std::fs::Permissions::from_mode(0o600)) {
+                            Ok(()) => tracing::warn!(%file, "narrowed permissions from {mode:o} to 600"),
+                            Err(e) => tracing::warn!(%file, %e, "readable by others ({mode:o}) and cannot be narrowed"),
+                        }
                     }
                 }
             }
