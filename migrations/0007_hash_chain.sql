@@ -3,9 +3,9 @@
 --   previous row's hash, one chain per table in id order, computed in Rust inside the write
 --   transaction (src/domain/chain.rs). Rows written before this migration read NULL and are
 --   sealed once at start-up (src/db/chain.rs `seal`); after that every row carries a hash.
--- * INSERT OR REPLACE deletes the conflicting row without firing DELETE triggers (unless
---   recursive_triggers is on), so BEFORE INSERT triggers refuse any insert that would replace
---   an existing row of an append-only table.
+-- * INSERT OR REPLACE deletes the conflicting row without firing DELETE triggers unless
+--   recursive_triggers is on (sqlite.org/lang_conflict.html, REPLACE), so BEFORE INSERT
+--   triggers refuse any insert that would replace an existing row of an append-only table.
 -- * Users are deactivated, never deleted, and their ids are never reused (`user_ids` keeps the
 --   highest id ever given, so a user removed behind the app's back cannot hand their id, and
 --   the tokens and sessions still pointing at it, to the next user created).

@@ -68,7 +68,8 @@ pub type Actor<'a> = &'a str;
 ///
 /// The file is created readable by its owner only (0600) before SQLite opens it, and an
 /// existing one is narrowed to that; SQLite gives its `-wal` and `-shm` files the database
-/// file's permissions.
+/// file's permissions (its Unix VFS, `findCreateFileMode` and `unixOpenSharedMemory` in
+/// os_unix.c: from memory, checked by `tests/it/chain.rs`).
 pub async fn connect(url: &str) -> DbResult<SqlitePool> {
     let options = SqliteConnectOptions::from_str(url)?;
     let file = options.get_filename();

@@ -190,7 +190,9 @@ async fn insert_or_replace_over_an_entry_or_an_audit_row_is_refused() {
     assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
     assert!(db::verify(&t.pool).await.unwrap().problems.is_empty());
 
-    // With the trigger dropped, REPLACE goes through, and the chain names the row.
+    // With only this trigger dropped, REPLACE goes through although `ledger_entries_no_delete`
+    // is still there: REPLACE's delete fires no delete trigger (sqlite.org/lang_conflict.html,
+    // REPLACE, recursive_triggers off). The chain names the row.
     exec(&mut raw, "DROP TRIGGER ledger_entries_no_replace").await.unwrap();
     exec(&mut raw, &replace).await.unwrap();
     let v = db::verify(&t.pool).await.unwrap();
