@@ -56,6 +56,18 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             println!("backup written to {} ({bytes} bytes, {:.1} s)", path.display(), started.elapsed().as_secs_f64());
             Ok(())
         }
+        Command::Verify => {
+            let pool = open(&config.database_url).await?;
+            let v = db::verify(&pool).await?;
+            for p in &v.problems {
+                eprintln!("bad row: {p}");
+            }
+            println!("{}", v.summary());
+            match v.problems.first() {
+                None => Ok(()),
+                Some(first) => bail!("verify failed at {first}"),
+            }
+        }
         Command::User(cmd) => {
             let pool = open(&config.database_url).await?;
             match cmd {
@@ -140,7 +152,12 @@ pub async fn open(url: &str) -> anyhow::Result<SqlitePool> {
         && let Some(dir) = std::path::Path::new(path.split('?').next().unwrap_or(path)).parent()
         && !dir.as_os_str().is_empty()
     {
-        std::fs::create_dir_all(dir).with_context(|| format!("cannot create {}", dir.display()))?;
+        let mut folder = std::fs::DirBuilder::new();
+        folder.recursive(true);
+        // The database's folder is the owner's too (files in it are 0600 anyway).
+        #[cfg(unix)]
+        std::os::unix::fs::DirBuilderExt::mode(&mut folder, 0o700);
+        folder.create(dir).with_context(|| format!("cannot create {}", dir.display()))?;
     }
     let pool = db::connect(url).await.with_context(|| format!("cannot open {url}"))?;
     db::migrate(&pool).await.context("migrations failed")?;
@@ -169,6 +186,15 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
     if !demo && db::count_users(&pool).await? == 0 {
         tracing::warn!("no user accounts yet: create one with `pilot-ledger user add NAME --role admin`");
     }
+    // Figures are read from the kept totals: refuse to serve any that the entries do not back.
+    // Not rebuilt silently, which would hide an edit; `verify` shows the rest.
+    if let Some(p) = db::totals_problem(&pool).await? {
+        tracing::error!(%p, "ledger totals disagree with the entries; not serving");
+        bail!(
+            "{p}: the kept ledger totals disagree with the ledger entries, so the server will not serve its \
+             figures; run `pilot-ledger verify` and restore the last backup that verifies"
+        );
+    }
     Ok(pool)
 }
 
@@ -184,18 +210,46 @@ pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::Load
     Ok(db::load_scenario(pool, &scenario, "scenario-load", |_| {}).await?)
 }
 
-/// Serve on `listener` until Ctrl-C; logs the bound address (port 0 picks a free one).
+/// Serve on `listener` until Ctrl-C or SIGTERM; logs the bound address (port 0 picks a free
+/// one). A graceful stop lets requests finish, then checkpoints the WAL into the database
+/// file and closes it, so that the `.db` file alone is complete.
 pub async fn serve(listener: TcpListener, pool: SqlitePool, secure_cookies: bool) -> anyhow::Result<()> {
     let addr = listener.local_addr()?;
+    let stop = stop_signal();
     tracing::info!(%addr, "listening on http://{addr}");
     axum::serve(
         listener,
-        app(AppState::new(pool, Arc::new(SystemClock), secure_cookies))
+        app(AppState::new(pool.clone(), Arc::new(SystemClock), secure_cookies))
             .into_make_service_with_connect_info::<SocketAddr>(),
     )
-    .with_graceful_shutdown(async {
-        let _ = tokio::signal::ctrl_c().await;
-    })
+    .with_graceful_shutdown(stop)
     .await?;
+    db::close(&pool).await.context("checkpointing the database at shutdown failed")?;
+    tracing::info!("stopped; the database file is checkpointed");
     Ok(())
+}
+
+/// Ctrl-C (SIGINT) or, on Unix, SIGTERM (what service managers and `kill` send). On Unix the
+/// handlers are installed when this is called, before the address is logged, so that a stop
+/// sent as soon as the server is up is not lost.
+fn stop_signal() -> impl std::future::Future<Output = ()> {
+    #[cfg(unix)]
+    let signals = {
+        use tokio::signal::unix::{SignalKind, signal};
+        signal(SignalKind::interrupt())
+            .and_then(|int| Ok((int, signal(SignalKind::terminate())?)))
+            .map_err(|e| tracing::warn!(%e, "cannot listen for SIGTERM; stop with Ctrl-C"))
+            .ok()
+    };
+    async move {
+        #[cfg(unix)]
+        if let Some((mut int, mut term)) = signals {
+            tokio::select! {
+                _ = int.recv() => {}
+                _ = term.recv() => {}
+            }
+            return;
+        }
+        let _ = tokio::signal::ctrl_c().await;
+    }
 }

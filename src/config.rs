@@ -40,6 +40,10 @@ pub enum Command {
         /// Where to write the copy; must not exist yet.
         path: PathBuf,
     },
+    /// Check the database: recompute the hash chains of the ledger and the audit trail, compare
+    /// the kept ledger totals with the entries and run SQLite's integrity check. Prints one
+    /// line; exits non-zero naming the first bad row.
+    Verify,
     /// Manage user accounts. Passwords are read from the terminal or standard input, never from arguments.
     #[command(subcommand)]
     User(UserCommand),

@@ -1,6 +1,9 @@
-//! The audit trail: append-only rows of who did what, when (triggers refuse changes).
+//! The audit trail: append-only rows of who did what, when (triggers refuse changes), each
+//! hash-chained to the row before (`domain::chain`).
 
 use super::DbResult;
+use super::chain::{insert_chained, tip};
+use crate::domain::chain::{AUDIT_LOG, audit_row};
 use serde::Serialize;
 use sqlx::{Row, SqliteConnection, SqlitePool};
 
@@ -21,7 +24,9 @@ pub struct AuditEntry {
     pub detail: String,
 }
 
-/// Append one row, in the caller's transaction when there is one.
+/// Append one row, hash-chained to the last. Call it inside the caller's `db::begin_write`
+/// transaction: the tip it links to must not move before the insert (were it to, the insert
+/// would collide with the other row's id and fail rather than fork the chain).
 pub async fn record(
     conn: &mut SqliteConnection,
     at: &str,
@@ -30,13 +35,8 @@ pub async fn record(
     subject: &str,
     detail: &str,
 ) -> DbResult<()> {
-    sqlx::query("INSERT INTO audit_log (at, actor, action, subject, detail) VALUES (?, ?, ?, ?, ?)")
-        .bind(at)
-        .bind(actor)
-        .bind(action)
-        .bind(subject)
-        .bind(detail)
-        .execute(conn)
+    let mut tip = tip(conn, AUDIT_LOG).await?;
+    insert_chained(conn, AUDIT_LOG, &mut tip, &[()], |(), id| audit_row(id, at, actor, action, subject, detail))
         .await?;
     Ok(())
 }

@@ -1,10 +1,12 @@
 //! The ledger: append-only bookings against a zone's approved baseline.
 
+use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
+use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key};
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
-use sqlx::{QueryBuilder, Row, Sqlite, SqliteConnection, SqlitePool};
+use sqlx::{Row, SqliteConnection, SqlitePool};
 
 macro_rules! select_entry {
     ($rest:literal) => {
@@ -122,8 +124,9 @@ pub struct Tag<'a> {
 /// field errors: unknown driver or cost item, a month outside the horizon or in the future.
 /// `key` makes a retried request book once.
 ///
-/// The hot path of the API: one query reads the replayed entry's id, the baseline, the item
-/// and its running totals; then the insert, the totals and (the caller's) audit row.
+/// The hot path of the API: one query reads the replayed entry's id, the baseline, the item,
+/// its running totals and the ledger chain's tip; then the insert, the totals and (the
+/// caller's) audit row.
 pub async fn book(
     conn: &mut SqliteConnection,
     zone_id: i64,
@@ -138,12 +141,14 @@ pub async fn book(
         "SELECT (SELECT id FROM ledger_entries WHERE idempotency_key = ?) AS replay,
                 c.id AS case_id, c.start_month, c.horizon_months,
                 d.id AS driver_id, d.label AS driver_label, d.unit_value, k.id AS cost_id, k.label AS cost_label,
-                t.amount, t.quantity, t.entries, t.last_period
+                t.amount, t.quantity, t.entries, t.last_period,
+                l.id AS tip_id, l.hash AS tip_hash
          FROM zones z
          LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved'
          LEFT JOIN benefit_drivers d ON d.case_id = c.id AND d.id = ? AND ?
          LEFT JOIN cost_items k ON k.case_id = c.id AND k.id = ? AND NOT ?
          LEFT JOIN ledger_totals t ON t.zone_id = z.id AND t.item = ?
+         LEFT JOIN (SELECT id, hash FROM ledger_entries ORDER BY id DESC LIMIT 1) l
          WHERE z.id = ?",
     )
     .bind(key)
@@ -169,7 +174,8 @@ pub async fn book(
     let e = baseline.check(b, current_month).map_err(DbError::Invalid)?;
     let tag = Tag { actor, key, import_id: None, reverses_id: None };
     let at = now();
-    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at).await?;
+    let mut tip = Tip { id: row.try_get::<Option<i64>, _>("tip_id")?.unwrap_or(0), hash: row.try_get("tip_hash")? };
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at, &mut tip).await?;
     write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &Totals::of(&e)).await?;
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
 }
@@ -196,7 +202,8 @@ fn no_baseline() -> DbError {
 /// Insert one checked entry with its totals; the stored entry is built from what was written.
 async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag: &Tag<'_>) -> DbResult<LedgerEntry> {
     let at = now();
-    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &at).await?;
+    let mut tip = chain::tip(conn, LEDGER_ENTRIES).await?;
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &at, &mut tip).await?;
     add_to_totals(conn, zone_id, std::slice::from_ref(&e)).await?;
     Ok(stored(id, zone_id, e, tag, at))
 }
@@ -236,9 +243,10 @@ pub async fn insert_checked(
     tag: &Tag<'_>,
 ) -> DbResult<()> {
     let at = now();
-    // 19 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
+    let mut tip = chain::tip(conn, LEDGER_ENTRIES).await?;
+    // About 20 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
     for chunk in entries.chunks(500) {
-        insert_rows(conn, zone_id, chunk, tag, &at).await?;
+        insert_rows(conn, zone_id, chunk, tag, &at, &mut tip).await?;
     }
     add_to_totals(conn, zone_id, entries).await
 }
@@ -283,6 +291,22 @@ impl Totals {
         Self { amount: e.amount, quantity: e.quantity.unwrap_or_default(), entries: 1, last: e.period }
     }
 
+    /// What differs between kept totals (`self`) and the entries' sums, if anything.
+    fn differs_from(&self, sums: &Totals) -> Option<String> {
+        let what = if self.amount != sums.amount {
+            format!("amount is {} but the entries sum to {}", self.amount.normalize(), sums.amount.normalize())
+        } else if self.quantity != sums.quantity {
+            format!("quantity is {} but the entries sum to {}", self.quantity.normalize(), sums.quantity.normalize())
+        } else if self.entries != sums.entries {
+            format!("counts {} entries but there are {}", self.entries, sums.entries)
+        } else if self.last != sums.last {
+            format!("last period is {} but the entries end in {}", self.last, sums.last)
+        } else {
+            return None;
+        };
+        Some(what)
+    }
+
     fn add(&mut self, other: &Totals) {
         self.amount += other.amount;
         self.quantity += other.quantity;
@@ -303,7 +327,8 @@ impl Totals {
     }
 }
 
-/// Store `before + added` as the item's totals.
+/// Store `before + added` as the item's totals: an update of the existing row or a new one
+/// (never an upsert: the `ledger_totals_no_replace` trigger refuses inserts over a row).
 async fn write_totals(
     conn: &mut SqliteConnection,
     zone_id: i64,
@@ -311,38 +336,31 @@ async fn write_totals(
     before: Option<Totals>,
     added: &Totals,
 ) -> DbResult<()> {
+    let sql = if before.is_some() {
+        "UPDATE ledger_totals SET amount = ?3, quantity = ?4, entries = ?5, last_period = ?6
+         WHERE zone_id = ?1 AND item = ?2"
+    } else {
+        "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?1, ?2, ?3, ?4, ?5, ?6)"
+    };
     let mut t = before.unwrap_or(Totals::empty(added.last));
     t.add(added);
-    sqlx::query(
-        "INSERT INTO ledger_totals (zone_id, item, amount, quantity, entries, last_period) VALUES (?, ?, ?, ?, ?, ?)
-         ON CONFLICT (zone_id, item) DO UPDATE SET amount = excluded.amount, quantity = excluded.quantity,
-             entries = excluded.entries, last_period = excluded.last_period",
-    )
-    .bind(zone_id)
-    .bind(item)
-    .bind(t.amount.normalize().to_string())
-    .bind(t.quantity.normalize().to_string())
-    .bind(t.entries)
-    .bind(t.last.to_string())
-    .execute(conn)
-    .await?;
+    sqlx::query(sql)
+        .bind(zone_id)
+        .bind(item)
+        .bind(t.amount.normalize().to_string())
+        .bind(t.quantity.normalize().to_string())
+        .bind(t.entries)
+        .bind(t.last.to_string())
+        .execute(conn)
+        .await?;
     Ok(())
 }
 
-/// Rebuild `ledger_totals` from the entries when it is empty but the ledger is not (a database
-/// from before migration 0005). Sums in Rust, in one transaction.
-pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
-    let (totals, entries): (i64, i64) =
-        sqlx::query_as("SELECT (SELECT COUNT(*) FROM ledger_totals), (SELECT COUNT(*) FROM ledger_entries)")
-            .fetch_one(pool)
-            .await?;
-    if totals > 0 || entries == 0 {
-        return Ok(());
-    }
-    let mut tx = super::begin_write(pool).await?;
+/// Each (zone, item)'s totals summed from the entries themselves, in Rust.
+async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collections::BTreeMap<(i64, String), Totals>> {
     let rows =
         sqlx::query("SELECT zone_id, driver_id, cost_id, amount, quantity, period FROM ledger_entries ORDER BY id")
-            .fetch_all(&mut *tx)
+            .fetch_all(conn)
             .await?;
     let mut sums: std::collections::BTreeMap<(i64, String), Totals> = Default::default();
     for r in rows {
@@ -356,11 +374,59 @@ pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
         };
         sums.entry((r.try_get("zone_id")?, item)).or_insert(Totals::empty(entry.last)).add(&entry);
     }
-    for ((zone, item), added) in sums {
+    Ok(sums)
+}
+
+/// Rebuild `ledger_totals` from the entries when it is empty but the ledger is not (a database
+/// from before migration 0005). Sums in Rust, in one transaction.
+pub async fn rebuild_totals_if_missing(pool: &SqlitePool) -> DbResult<()> {
+    let (totals, entries): (i64, i64) =
+        sqlx::query_as("SELECT (SELECT COUNT(*) FROM ledger_totals), (SELECT COUNT(*) FROM ledger_entries)")
+            .fetch_one(pool)
+            .await?;
+    if totals > 0 || entries == 0 {
+        return Ok(());
+    }
+    let mut tx = super::begin_write(pool).await?;
+    for ((zone, item), added) in sums_from_entries(&mut tx).await? {
         write_totals(&mut tx, zone, &item, None, &added).await?;
     }
     tx.commit().await?;
     Ok(())
+}
+
+/// Compare the kept `ledger_totals` with the sums of the entries: how many totals rows there
+/// are, and the first (zone, item) whose row is missing, extra or differs in a column.
+pub(super) async fn check_totals(conn: &mut SqliteConnection) -> DbResult<(u64, Option<Problem>)> {
+    let mut sums = sums_from_entries(conn).await?;
+    let codes: std::collections::HashMap<i64, String> =
+        sqlx::query_as("SELECT id, code FROM zones").fetch_all(&mut *conn).await?.into_iter().collect();
+    let rows = sqlx::query(
+        "SELECT zone_id, item, amount, quantity, entries, last_period FROM ledger_totals ORDER BY zone_id, item",
+    )
+    .fetch_all(conn)
+    .await?;
+    let problem = |zone: i64, item: &str, what: String| {
+        let code = codes.get(&zone).map(|c| format!(" ({c})")).unwrap_or_default();
+        Some(Problem { table: "ledger_totals".into(), row: format!("zone {zone}{code} item {item}"), what })
+    };
+    let mut first = None;
+    for r in &rows {
+        let (zone, item): (i64, String) = (r.try_get("zone_id")?, r.try_get("item")?);
+        let kept = Totals::from_row(r)?;
+        let what = match (kept, sums.remove(&(zone, item.clone()))) {
+            (_, None) => Some("a totals row without any entry".to_string()),
+            (Some(k), Some(s)) => k.differs_from(&s),
+            (None, Some(_)) => None,
+        };
+        if let (None, Some(what)) = (&first, what) {
+            first = problem(zone, &item, what);
+        }
+    }
+    if let (None, Some(((zone, item), s))) = (&first, sums.into_iter().next()) {
+        first = problem(zone, &item, format!("missing: its {} entries have no totals row", s.entries));
+    }
+    Ok((rows.len() as u64, first))
 }
 
 /// Each baseline item's booked totals and latest booked month, for every zone or for one.
@@ -389,52 +455,40 @@ pub(super) async fn totals_in(
         .collect()
 }
 
-/// Insert rows in one statement; returns the last row's id.
+/// Insert rows in one statement, hash-chained after `tip` (read in this write transaction);
+/// returns the last row's id.
 async fn insert_rows(
     conn: &mut SqliteConnection,
     zone_id: i64,
     rows: &[NewEntry],
     tag: &Tag<'_>,
     at: &str,
+    tip: &mut Tip,
 ) -> DbResult<i64> {
-    let text = |d: Option<Decimal>| d.map(|d| d.normalize().to_string());
-    let mut q = QueryBuilder::<Sqlite>::new(
-        "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, cost_id, period, method, quantity, unit_value, amount,
-                                     baseline_intensity, reporting_volume, measured_consumption, evidence, reverses_id,
-                                     idempotency_key, import_id, booked_at, booked_by) ",
-    );
-    q.push_values(rows, |mut b, r| {
-        b.push_bind(zone_id)
-            .push_bind(r.case_id)
-            .push_bind(r.kind.as_str())
-            .push_bind(r.driver_id)
-            .push_bind(r.cost_id)
-            .push_bind(r.period.to_string())
-            .push_bind(r.method.clone())
-            .push_bind(text(r.quantity))
-            .push_bind(text(r.unit_value))
-            .push_bind(r.amount.normalize().to_string())
-            .push_bind(text(r.inputs[0]))
-            .push_bind(text(r.inputs[1]))
-            .push_bind(text(r.inputs[2]))
-            .push_bind(r.evidence.clone())
-            .push_bind(tag.reverses_id)
-            .push_bind(tag.key.map(str::to_string))
-            .push_bind(tag.import_id)
-            .push_bind(at.to_string())
-            .push_bind(tag.actor.to_string());
-    });
-    q.push(" RETURNING id");
-    let ids: Vec<i64> = q.build_query_scalar().fetch_all(conn).await.map_err(|e| match &e {
-        sqlx::Error::Database(db) if db.is_unique_violation() && tag.reverses_id.is_some() => {
-            DbError::Conflict(format!("entry {} has already been reversed", tag.reverses_id.unwrap_or_default()))
-        }
-        sqlx::Error::Database(db) if db.message().contains("cannot be reversed") => {
-            DbError::Conflict("a reversing entry cannot be reversed: book a new entry instead".into())
-        }
-        _ => DbError::Sqlx(e),
-    })?;
-    ids.into_iter().max().ok_or(DbError::NotFound("ledger entry"))
+    let stamp = |id| EntryStamp {
+        id,
+        zone_id,
+        reverses_id: tag.reverses_id,
+        idempotency_key: tag.key,
+        import_id: tag.import_id,
+        booked_at: at,
+        booked_by: tag.actor,
+    };
+    insert_chained(conn, LEDGER_ENTRIES, tip, rows, |e, id| ledger_entry_row(e, &stamp(id))).await.map_err(
+        |e| match &e {
+            sqlx::Error::Database(db)
+                if tag.reverses_id.is_some()
+                    && (db.is_unique_violation() || db.message().contains("already been reversed")) =>
+            {
+                DbError::Conflict(format!("entry {} has already been reversed", tag.reverses_id.unwrap_or_default()))
+            }
+            sqlx::Error::Database(db) if db.message().contains("cannot be reversed") => {
+                DbError::Conflict("a reversing entry cannot be reversed: book a new entry instead".into())
+            }
+            _ => DbError::Sqlx(e),
+        },
+    )?;
+    if rows.is_empty() { Err(DbError::NotFound("ledger entry")) } else { Ok(tip.id) }
 }
 
 /// Book the reversal of entry `id` (negated quantity and amount, same month and item), with

@@ -8,6 +8,7 @@
 
 pub mod audit;
 mod cases;
+mod chain;
 pub mod ledger;
 mod portfolio;
 pub mod readiness;
@@ -17,12 +18,13 @@ mod users;
 mod zones;
 
 pub use cases::{CaseFull, CaseVersion};
+pub use chain::{Problem, Verification, verify};
 
 use rust_decimal::Decimal;
 use sqlx::sqlite::{SqliteConnectOptions, SqliteJournalMode, SqlitePool, SqlitePoolOptions, SqliteSynchronous};
 use sqlx::{Sqlite, Transaction};
 use std::collections::HashMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::str::FromStr;
 use std::sync::{Arc, LazyLock, Mutex, PoisonError};
 use std::time::Duration;
@@ -63,8 +65,18 @@ pub type Actor<'a> = &'a str;
 
 /// Open (creating if missing) the SQLite database at `url` with WAL journal, foreign keys,
 /// a busy timeout and `synchronous = FULL` (an acknowledged write is on disk).
+///
+/// The file is created readable by its owner only (0600) before SQLite opens it, and an
+/// existing one is narrowed to that; SQLite gives its `-wal` and `-shm` files the database
+/// file's permissions (its Unix VFS, `findCreateFileMode` and `unixOpenSharedMemory` in
+/// os_unix.c: from memory, checked by `tests/it/chain.rs`).
 pub async fn connect(url: &str) -> DbResult<SqlitePool> {
-    let options = SqliteConnectOptions::from_str(url)?
+    let options = SqliteConnectOptions::from_str(url)?;
+    let file = options.get_filename();
+    if !url.contains(":memory:") && !url.contains("mode=memory") && !file.as_os_str().is_empty() {
+        owner_only(file)?;
+    }
+    let options = options
         .create_if_missing(true)
         .journal_mode(SqliteJournalMode::Wal)
         .synchronous(SqliteSynchronous::Full)
@@ -74,10 +86,18 @@ pub async fn connect(url: &str) -> DbResult<SqlitePool> {
     Ok(pool)
 }
 
-/// Apply the embedded migrations in `migrations/` (append-only).
+/// Apply the embedded migrations in `migrations/` (append-only), then seal rows written
+/// before the hash chains (once) and rebuild missing ledger totals.
 pub async fn migrate(pool: &SqlitePool) -> DbResult<()> {
     sqlx::migrate!("./migrations").run(pool).await?;
+    chain::seal(pool).await?;
     ledger::rebuild_totals_if_missing(pool).await
+}
+
+/// The first (zone, item) whose kept ledger totals disagree with the sums of its entries, if
+/// any: the server refuses to start on one (it would serve figures the ledger does not back).
+pub async fn totals_problem(pool: &SqlitePool) -> DbResult<Option<Problem>> {
+    Ok(ledger::check_totals(&mut *pool.acquire().await?).await?.1)
 }
 
 /// A write transaction holding this process's turn to write to its database file.
@@ -121,15 +141,73 @@ pub async fn begin_write(pool: &SqlitePool) -> DbResult<WriteTx> {
     Ok(WriteTx { tx: pool.begin_with("BEGIN IMMEDIATE").await?, _turn: turn })
 }
 
+/// Create `path` (or, when it exists, narrow its permissions and those of its `-wal` and
+/// `-shm` files) so that only its owner can read it: mode 0600 on Unix.
+fn owner_only(path: &Path) -> DbResult<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::{OpenOptionsExt, PermissionsExt};
+        match std::fs::OpenOptions::new().write(true).create_new(true).mode(0o600).open(path) {
+            Ok(_) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                for suffix in ["", "-wal", "-shm"] {
+                    let mut name = path.as_os_str().to_owned();
+                    name.push(suffix);
+                    let Ok(meta) = std::fs::metadata(&name) else { continue };
+                    let mode = meta.permissions().mode() & 0o777;
+                    if mode & 0o077 != 0 {
+                        // Someone else's file (a shared mount) stays as it is, with a warning.
+                        let file = Path::new(&name).display();
+                        match std::fs::set_permissions(&name, std::fs::Permissions::from_mode(0o600)) {
+                            Ok(()) => tracing::warn!(%file, "narrowed permissions from {mode:o} to 600"),
+                            Err(e) => tracing::warn!(%file, %e, "readable by others ({mode:o}) and cannot be narrowed"),
+                        }
+                    }
+                }
+            }
+            Err(e) => return Err(file_error(path, e)),
+        }
+    }
+    #[cfg(not(unix))]
+    let _ = path;
+    Ok(())
+}
+
+fn file_error(path: &Path, e: std::io::Error) -> DbError {
+    DbError::Sqlx(sqlx::Error::Io(std::io::Error::new(e.kind(), format!("{}: {e}", path.display()))))
+}
+
 /// Write a consistent copy of the live database to `path` (SQLite's `VACUUM INTO`, which
 /// reads one snapshot while writers carry on); returns its size. An existing file is refused.
-pub async fn backup(pool: &SqlitePool, path: &std::path::Path) -> DbResult<u64> {
-    if path.exists() {
-        return Err(DbError::Conflict(format!("{} exists already; choose a new file", path.display())));
-    }
+/// The copy is created readable by its owner only (0600 on Unix): `VACUUM INTO` fills the
+/// empty file made here and keeps its permissions.
+pub async fn backup(pool: &SqlitePool, path: &Path) -> DbResult<u64> {
     let target = path.to_str().ok_or_else(|| DbError::Conflict("the backup path must be valid UTF-8".into()))?;
-    sqlx::query("VACUUM INTO ?").bind(target).execute(pool).await?;
+    let mut create = std::fs::OpenOptions::new();
+    create.write(true).create_new(true);
+    #[cfg(unix)]
+    std::os::unix::fs::OpenOptionsExt::mode(&mut create, 0o600);
+    match create.open(path) {
+        Ok(_) => {}
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            return Err(DbError::Conflict(format!("{} exists already; choose a new file", path.display())));
+        }
+        Err(e) => return Err(file_error(path, e)),
+    }
+    if let Err(e) = sqlx::query("VACUUM INTO ?").bind(target).execute(pool).await {
+        // Only the empty file made above, never someone else's.
+        let _ = std::fs::remove_file(path);
+        return Err(e.into());
+    }
     Ok(std::fs::metadata(path).map(|m| m.len()).unwrap_or(0))
+}
+
+/// Checkpoint the WAL into the database file and truncate it, then close the pool; the last
+/// connection to close removes the `-wal` and `-shm` files. Called on a graceful stop.
+pub async fn close(pool: &SqlitePool) -> DbResult<()> {
+    sqlx::query("PRAGMA wal_checkpoint(TRUNCATE)").execute(pool).await?;
+    pool.close().await;
+    Ok(())
 }
 
 /// The current time as RFC 3339 UTC text, the one timestamp format of the database.

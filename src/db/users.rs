@@ -61,7 +61,8 @@ pub async fn get_user(conn: &mut SqliteConnection, id: i64) -> DbResult<User> {
     row.as_ref().map(user_from).transpose()?.ok_or(DbError::NotFound("user"))
 }
 
-/// Create a user with an already hashed password.
+/// Create a user with an already hashed password. The id is one above the highest ever
+/// given (`user_ids`, migration 0007), so it is never one a removed user had.
 pub async fn insert_user(
     conn: &mut SqliteConnection,
     name: &str,
@@ -71,8 +72,8 @@ pub async fn insert_user(
     actor: &str,
 ) -> DbResult<i64> {
     sqlx::query_scalar(
-        "INSERT INTO users (name, role, password_hash, created_at, created_by, updated_at, updated_by)
-         VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id",
+        "INSERT INTO users (id, name, role, password_hash, created_at, created_by, updated_at, updated_by)
+         VALUES ((SELECT last + 1 FROM user_ids), ?, ?, ?, ?, ?, ?, ?) RETURNING id",
     )
     .bind(name)
     .bind(role.as_str())
@@ -83,7 +84,13 @@ pub async fn insert_user(
     .bind(actor)
     .fetch_one(conn)
     .await
-    .map_err(|e| unique_as(e, format!("a user named {name} already exists")))
+    .map_err(|e| match &e {
+        // The `users_no_replace` trigger answers before the UNIQUE index does.
+        sqlx::Error::Database(db) if db.message().contains("already exists") => {
+            DbError::Conflict(format!("a user named {name} already exists"))
+        }
+        _ => unique_as(e, format!("a user named {name} already exists")),
+    })
 }
 
 /// Change role and active flag; ends the user's sessions when deactivated or re-roled so the

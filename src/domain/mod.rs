@@ -6,6 +6,7 @@
 
 mod approval;
 mod case;
+pub mod chain;
 mod figures;
 mod ledger;
 mod money;

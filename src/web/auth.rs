@@ -267,9 +267,10 @@ pub async fn login(
     let Some(user) = user else {
         state.throttle.fail(&account_key, clock);
         state.throttle.fail(&address_key, clock);
-        let mut conn = state.pool.acquire().await?;
+        let mut tx = db::begin_write(&state.pool).await?;
         let subject = format!("account {}", form.name.trim().chars().take(64).collect::<String>());
-        db::audit::record(&mut conn, &now, "anonymous", "sign_in_failed", &subject, &address_key).await?;
+        db::audit::record(&mut tx, &now, "anonymous", "sign_in_failed", &subject, &address_key).await?;
+        tx.commit().await?;
         return login_failed(&form, StatusCode::UNAUTHORIZED, "Unknown user name or wrong password.".into());
     };
     state.throttle.clear(&account_key);
@@ -279,8 +280,9 @@ pub async fn login(
     }
     let id: Secret = new_secret("");
     db::insert_session(&state.pool, &hash_secret(id.expose()), user.id, &now).await?;
-    let mut conn = state.pool.acquire().await?;
-    db::audit::record(&mut conn, &now, &user.name, "sign_in", &format!("user {}", user.id), "").await?;
+    let mut tx = db::begin_write(&state.pool).await?;
+    db::audit::record(&mut tx, &now, &user.name, "sign_in", &format!("user {}", user.id), "").await?;
+    tx.commit().await?;
     let mut res = Redirect::to(safe_next(&form.next)).into_response();
     set_cookie(&mut res, &session_cookie(id.expose(), state.secure_cookies));
     Ok(res)
@@ -302,9 +304,10 @@ pub async fn logout(State(state): State<AppState>, CurrentUser(p): CurrentUser) 
     if let Some(hash) = &p.session {
         db::delete_session(&state.pool, hash).await?;
     }
-    let mut conn = state.pool.acquire().await?;
-    db::audit::record(&mut conn, &rfc3339(state.clock.now()), p.name(), "sign_out", &format!("user {}", p.user.id), "")
+    let mut tx = db::begin_write(&state.pool).await?;
+    db::audit::record(&mut tx, &rfc3339(state.clock.now()), p.name(), "sign_out", &format!("user {}", p.user.id), "")
         .await?;
+    tx.commit().await?;
     let mut res = Redirect::to("/login").into_response();
     set_cookie(&mut res, &format!("{}; Max-Age=0", session_cookie("", state.secure_cookies)));
     Ok(res)

@@ -4,6 +4,7 @@
 mod api;
 mod approval;
 mod browser;
+mod chain;
 mod cli;
 mod faults;
 mod finance;
