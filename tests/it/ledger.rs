@@ -863,9 +863,10 @@ async fn an_ambiguous_realized_xirr_lists_every_root() {
     let t = test_app(false).await.as_role(Some(Role::Controller));
     let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "AMB-1").await;
     // -1,600 on 2025-01-31 (month end), +10,000 on 2025-07-31 (50,000 kWh x 0.20, month end),
-    // -10,000 paid on 2026-01-28: equal gaps of 181 days. With x = 1.1^0 ... by hand: the flows
-    // are -1,600 + 10,000 v - 10,000 v^2 with v = (1 + r)^(-181/365); v = 0.2 or 0.8, so
-    // r = 5^(365/181) - 1 or 1.25^(365/181) - 1 (the pump flows of Lorie and Savage, 1955).
+    // -10,000 paid on 2026-01-28: equal gaps of 181 days. By hand (actual/365): the XNPV is
+    // -1,600 + 10,000 v - 10,000 v^2 with v = (1 + r)^(-181/365), zero at v = 0.2 or 0.8, so
+    // r = 5^(365/181) - 1 or 1.25^(365/181) - 1 (the pump flows of Lorie and Savage, 1955,
+    // from memory; the roots follow from the quadratic whatever their source).
     let spend = |period: &str, amount: &str, paid_on: &str| json!({"kind": "spending", "item": z.sensors, "period": period, "amount": amount, "paid_on": paid_on, "evidence": "invoice"});
     assert_eq!(book(&t, z.id, spend("2025-01", "1600", "")).await.status, StatusCode::CREATED);
     assert_eq!(book(&t, z.id, direct(z.energy, "2025-07", "50000")).await.status, StatusCode::CREATED);
