@@ -3,7 +3,9 @@
 use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
-use crate::domain::{Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key};
+use crate::domain::{
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key,
+};
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
 use sqlx::{Row, SqliteConnection, SqlitePool};
@@ -13,7 +15,7 @@ macro_rules! select_entry {
         concat!(
             "SELECT e.id, e.zone_id, e.case_id, e.kind, e.driver_id, e.cost_id, e.period, e.method, e.quantity, e.unit_value,
                     e.amount, e.baseline_intensity, e.reporting_volume, e.measured_consumption, e.evidence, e.reverses_id,
-                    r.id AS reversed_by, e.booked_at, e.booked_by
+                    r.id AS reversed_by, e.booked_at, e.booked_by, e.paid_on, e.implausible_confirmed
              FROM ledger_entries e LEFT JOIN ledger_entries r ON r.reverses_id = e.id ",
             $rest
         )
@@ -45,7 +47,14 @@ fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
         reversed_by: r.try_get("reversed_by")?,
         booked_at: r.try_get("booked_at")?,
         booked_by: r.try_get("booked_by")?,
+        paid_on: r.try_get::<Option<String>, _>("paid_on")?.map(|d| parsed("paid_on", d, parse_date)).transpose()?,
+        implausible_confirmed: r.try_get::<Option<i64>, _>("implausible_confirmed")?.is_some_and(|v| v != 0),
     })
+}
+
+fn parse_date(text: &str) -> Result<time::Date, String> {
+    let format = time::macros::format_description!("[year]-[month]-[day]");
+    time::Date::parse(text, &format).map_err(|e| e.to_string())
 }
 
 /// A zone's entries, oldest first.
@@ -83,18 +92,25 @@ pub async fn booking_baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbRe
     let mut baseline = baseline_from(&row)?;
     let case_id = baseline.case_id;
     let items = sqlx::query(
-        "SELECT 'driver' AS item, id, label, unit_value FROM benefit_drivers WHERE case_id = ?
-         UNION ALL SELECT 'cost', id, label, NULL FROM cost_items WHERE case_id = ? ORDER BY 1, 2",
+        "SELECT 'driver' AS item, id, label, unit, unit_value, qty_high AS base FROM benefit_drivers WHERE case_id = ?
+         UNION ALL SELECT kind, id, label, NULL, NULL, amount FROM cost_items WHERE case_id = ? ORDER BY 1, 2",
     )
     .bind(case_id)
     .bind(case_id)
     .fetch_all(conn)
     .await?;
     for r in items {
-        let (id, label): (i64, String) = (r.try_get("id")?, r.try_get("label")?);
+        let (item, id, label): (String, i64, String) = (r.try_get("item")?, r.try_get("id")?, r.try_get("label")?);
+        let base = decimal("base", r.try_get("base")?)?;
         match r.try_get::<Option<String>, _>("unit_value")? {
-            Some(v) => baseline.drivers.push((id, label, decimal("unit_value", v)?)),
-            None => baseline.costs.push((id, label)),
+            Some(v) => baseline.drivers.push(BaselineDriver {
+                id,
+                label,
+                unit: r.try_get("unit")?,
+                unit_value: decimal("unit_value", v)?,
+                qty_high: base,
+            }),
+            None => baseline.costs.push(BaselineCost { id, label, amount: base, recurring: item == "recurring" }),
         }
     }
     Ok(baseline)
@@ -104,7 +120,7 @@ pub async fn booking_baseline(conn: &mut SqliteConnection, zone_id: i64) -> DbRe
 pub enum Booked {
     /// A new entry was written.
     New(LedgerEntry),
-    /// The idempotency key was seen before: the entry first booked with it.
+    /// The idempotency key was seen before with the same request: the entry first booked with it.
     Replayed(LedgerEntry),
 }
 
@@ -112,38 +128,49 @@ pub enum Booked {
 pub struct Tag<'a> {
     /// The user booking.
     pub actor: &'a str,
-    /// Makes a retried request book once (single entries only).
-    pub key: Option<&'a str>,
     /// The CSV import the entries came from.
     pub import_id: Option<i64>,
     /// The entry a reversal reverses.
     pub reverses_id: Option<i64>,
 }
 
+/// An `Idempotency-Key` with its owner and the fingerprint of the request that carries it.
+pub struct Idempotency<'a> {
+    /// The user sending it: keys are per user.
+    pub user_id: i64,
+    /// The key as sent (validated by the caller: printable ASCII, at most 100 characters).
+    pub key: &'a str,
+    /// SHA-256 of the request's method, path and canonical body.
+    pub fingerprint: &'a str,
+}
+
 /// Book one entry in the caller's transaction. Checks against the baseline are reported as
-/// field errors: unknown driver or cost item, a month outside the horizon or in the future.
-/// `key` makes a retried request book once.
+/// field errors: unknown driver or cost item, a month outside the horizon or in the future, an
+/// implausible figure not confirmed. `key` makes a retried request book once; the same key with
+/// another request (body or URL) is a conflict and books nothing.
 ///
-/// The hot path of the API: one query reads the replayed entry's id, the baseline, the item,
-/// its running totals and the ledger chain's tip; then the insert, the totals and (the
-/// caller's) audit row.
+/// The hot path of the API: one query reads the key's earlier use, the baseline, the item,
+/// its running totals and the ledger chain's tip; then the insert, the totals, the key and
+/// (the caller's) audit row.
 pub async fn book(
     conn: &mut SqliteConnection,
     zone_id: i64,
     b: &Booking,
-    current_month: Month,
+    today: time::Date,
     actor: &str,
-    key: Option<&str>,
+    key: Option<&Idempotency<'_>>,
 ) -> DbResult<Booked> {
     let saving = b.kind == EntryKind::Saving;
     let item = item_key(saving.then_some(b.item_id), (!saving).then_some(b.item_id)).unwrap_or_default();
     let row = sqlx::query(
-        "SELECT (SELECT id FROM ledger_entries WHERE idempotency_key = ?) AS replay,
+        "SELECT i.entry_id AS replay, i.fingerprint,
                 c.id AS case_id, c.start_month, c.horizon_months,
-                d.id AS driver_id, d.label AS driver_label, d.unit_value, k.id AS cost_id, k.label AS cost_label,
+                d.id AS driver_id, d.label AS driver_label, d.unit, d.unit_value, d.qty_high,
+                k.id AS cost_id, k.label AS cost_label, k.kind AS cost_kind, k.amount AS cost_amount,
                 t.amount, t.quantity, t.entries, t.last_period,
                 l.id AS tip_id, l.hash AS tip_hash
          FROM zones z
+         LEFT JOIN idempotency_keys i ON i.user_id = ? AND i.key = ?
          LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved'
          LEFT JOIN benefit_drivers d ON d.case_id = c.id AND d.id = ? AND ?
          LEFT JOIN cost_items k ON k.case_id = c.id AND k.id = ? AND NOT ?
@@ -151,7 +178,8 @@ pub async fn book(
          LEFT JOIN (SELECT id, hash FROM ledger_entries ORDER BY id DESC LIMIT 1) l
          WHERE z.id = ?",
     )
-    .bind(key)
+    .bind(key.map(|k| k.user_id))
+    .bind(key.map(|k| k.key))
     .bind(b.item_id)
     .bind(saving)
     .bind(b.item_id)
@@ -162,22 +190,77 @@ pub async fn book(
     .await?
     .ok_or(DbError::NotFound("zone"))?;
     if let Some(id) = row.try_get::<Option<i64>, _>("replay")? {
+        let first: Option<String> = row.try_get("fingerprint")?;
+        // A key carried over from before migration 0009 has no fingerprint: it replays as before.
+        if let (Some(first), Some(k)) = (first, key)
+            && first != k.fingerprint
+        {
+            return Err(DbError::Conflict(format!(
+                "the Idempotency-Key {:?} was already used by you for a different request (another body or URL), \
+                 which booked entry {id}; nothing was booked: use a new key for a new booking",
+                k.key
+            )));
+        }
         return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
     }
     let mut baseline = baseline_from(&row)?;
     if let Some(id) = row.try_get::<Option<i64>, _>("driver_id")? {
-        baseline.drivers.push((id, row.try_get("driver_label")?, decimal("unit_value", row.try_get("unit_value")?)?));
+        baseline.drivers.push(BaselineDriver {
+            id,
+            label: row.try_get("driver_label")?,
+            unit: row.try_get("unit")?,
+            unit_value: decimal("unit_value", row.try_get("unit_value")?)?,
+            qty_high: decimal("qty_high", row.try_get("qty_high")?)?,
+        });
     }
     if let Some(id) = row.try_get::<Option<i64>, _>("cost_id")? {
-        baseline.costs.push((id, row.try_get("cost_label")?));
+        baseline.costs.push(BaselineCost {
+            id,
+            label: row.try_get("cost_label")?,
+            amount: decimal("cost_amount", row.try_get("cost_amount")?)?,
+            recurring: row.try_get::<String, _>("cost_kind")? == "recurring",
+        });
     }
-    let e = baseline.check(b, current_month).map_err(DbError::Invalid)?;
-    let tag = Tag { actor, key, import_id: None, reverses_id: None };
+    let e = baseline.check(b, today).map_err(DbError::Invalid)?;
+    let tag = Tag { actor, import_id: None, reverses_id: None };
     let at = now();
     let mut tip = Tip { id: row.try_get::<Option<i64>, _>("tip_id")?.unwrap_or(0), hash: row.try_get("tip_hash")? };
     let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at, &mut tip).await?;
     write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &Totals::of(&e)).await?;
+    if let Some(k) = key {
+        sqlx::query(
+            "INSERT INTO idempotency_keys (user_id, key, fingerprint, entry_id, used_at) VALUES (?, ?, ?, ?, ?)",
+        )
+        .bind(k.user_id)
+        .bind(k.key)
+        .bind(k.fingerprint)
+        .bind(id)
+        .bind(&at)
+        .execute(&mut *conn)
+        .await?;
+    }
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
+}
+
+/// What a one-time form token already did (`entry 12`, `import 3`), if it was used.
+pub async fn form_outcome(conn: &mut SqliteConnection, token: &str) -> DbResult<Option<String>> {
+    Ok(sqlx::query_scalar("SELECT outcome FROM form_submissions WHERE token = ?")
+        .bind(token)
+        .fetch_optional(conn)
+        .await?)
+}
+
+/// Record a one-time form token as used, with what it did, in the booking's transaction.
+pub async fn use_form_token(conn: &mut SqliteConnection, token: &str, user_id: i64, outcome: &str) -> DbResult<()> {
+    sqlx::query("INSERT INTO form_submissions (token, user_id, outcome, used_at) VALUES (?, ?, ?, ?)")
+        .bind(token)
+        .bind(user_id)
+        .bind(outcome)
+        .bind(now())
+        .execute(conn)
+        .await
+        .map_err(|e| super::unique_as(e, "this form was already submitted"))?;
+    Ok(())
 }
 
 /// The baseline's case (`case_id`, NULL when the zone has no approved case), start and horizon
@@ -231,6 +314,8 @@ fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> Ledg
         reversed_by: None,
         booked_at: at,
         booked_by: tag.actor.to_string(),
+        paid_on: e.paid_on,
+        implausible_confirmed: e.implausible_confirmed,
     }
 }
 
@@ -244,7 +329,7 @@ pub async fn insert_checked(
 ) -> DbResult<()> {
     let at = now();
     let mut tip = chain::tip(conn, LEDGER_ENTRIES).await?;
-    // About 20 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
+    // About 22 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
     for chunk in entries.chunks(500) {
         insert_rows(conn, zone_id, chunk, tag, &at, &mut tip).await?;
     }
@@ -455,6 +540,41 @@ pub(super) async fn totals_in(
         .collect()
 }
 
+/// The latest month with a live entry (neither reversed nor a reversal) of the zone's approved
+/// baseline, per zone (all zones, or one): what makes a month "elapsed" (as
+/// `domain::realized_view` counts it from the entries).
+pub(super) async fn latest_live_in(conn: &mut SqliteConnection, zone: Option<i64>) -> DbResult<Vec<(i64, Month)>> {
+    macro_rules! live {
+        () => {
+            "e.reverses_id IS NULL AND NOT EXISTS (SELECT 1 FROM ledger_entries r WHERE r.reverses_id = e.id)
+             AND e.case_id = (SELECT c.id FROM case_versions c WHERE c.zone_id = e.zone_id AND c.state = 'approved')"
+        };
+    }
+    let rows: Vec<(i64, String)> = match zone {
+        None => {
+            sqlx::query_as(concat!(
+                "SELECT e.zone_id, MAX(e.period) FROM ledger_entries e WHERE ",
+                live!(),
+                " GROUP BY e.zone_id"
+            ))
+            .fetch_all(conn)
+            .await?
+        }
+        // Walks the (zone_id, period) index from the latest month down to the first live entry.
+        Some(id) => {
+            sqlx::query_as(concat!(
+                "SELECT e.zone_id, e.period FROM ledger_entries e WHERE e.zone_id = ? AND ",
+                live!(),
+                " ORDER BY e.period DESC LIMIT 1"
+            ))
+            .bind(id)
+            .fetch_all(conn)
+            .await?
+        }
+    };
+    rows.into_iter().map(|(zone, p)| Ok((zone, parsed("period", p, Month::parse)?))).collect()
+}
+
 /// Insert rows in one statement, hash-chained after `tip` (read in this write transaction);
 /// returns the last row's id.
 async fn insert_rows(
@@ -469,7 +589,8 @@ async fn insert_rows(
         id,
         zone_id,
         reverses_id: tag.reverses_id,
-        idempotency_key: tag.key,
+        // Keys live in idempotency_keys since migration 0009.
+        idempotency_key: None,
         import_id: tag.import_id,
         booked_at: at,
         booked_by: tag.actor,
@@ -520,37 +641,81 @@ pub async fn reverse(
         amount: -original.amount,
         inputs: [original.baseline_intensity, original.reporting_volume, original.measured_consumption],
         evidence: evidence.to_string(),
+        // Dated like the original, so that the pair nets to zero in XNPV too.
+        paid_on: original.paid_on,
+        implausible_confirmed: false,
     };
-    insert_one(conn, zone_id, entry, &Tag { actor, key: None, import_id: None, reverses_id: Some(id) }).await
+    insert_one(conn, zone_id, entry, &Tag { actor, import_id: None, reverses_id: Some(id) }).await
 }
 
-/// Record an imported file; the same content twice is refused.
+/// A CSV file to record as an import.
+pub struct ImportFile<'a> {
+    /// SHA-256 of the normalised rows: the file's identity.
+    pub rows_hash: &'a str,
+    /// SHA-256 of the bytes as uploaded (imports before migration 0009 were identified by it).
+    pub bytes_hash: &'a str,
+    /// The uploaded file's name.
+    pub file_name: &'a str,
+    /// Rows booked.
+    pub rows: usize,
+    /// Book it even if the same rows were imported before (an explicit override).
+    pub again: bool,
+}
+
+/// The first earlier import of the same rows: id, time, author.
+pub type EarlierImport = (i64, String, String);
+
+/// Record an imported file. The same rows imported before are refused, naming the first
+/// import's time and author, unless `again`; then the earlier import is returned for the
+/// audit trail.
 pub async fn insert_import(
     conn: &mut SqliteConnection,
     zone_id: i64,
-    hash: &str,
-    file_name: &str,
-    rows: usize,
+    file: &ImportFile<'_>,
     actor: &str,
-) -> DbResult<i64> {
-    let earlier = sqlx::query("SELECT imported_at, imported_by FROM ledger_imports WHERE content_hash = ?")
-        .bind(hash)
-        .fetch_optional(&mut *conn)
-        .await?;
-    if let Some(r) = earlier {
-        let (at, by): (String, String) = (r.try_get("imported_at")?, r.try_get("imported_by")?);
-        return Err(DbError::Conflict(format!("this file was already imported at {at} by {by}; nothing was booked")));
-    }
-    Ok(sqlx::query_scalar(
-        "INSERT INTO ledger_imports (zone_id, content_hash, file_name, row_count, imported_at, imported_by)
-         VALUES (?, ?, ?, ?, ?, ?) RETURNING id",
+) -> DbResult<(i64, Option<EarlierImport>)> {
+    let earlier: Option<EarlierImport> = sqlx::query_as(
+        "SELECT id, imported_at, imported_by FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?
+         ORDER BY id LIMIT 1",
+    )
+    .bind(file.rows_hash)
+    .bind(file.bytes_hash)
+    .fetch_optional(&mut *conn)
+    .await?;
+    let content_hash = match &earlier {
+        None => file.bytes_hash.to_string(),
+        Some((id, at, by)) if !file.again => {
+            return Err(DbError::Conflict(format!(
+                "this file has the same rows as import {id}, imported at {at} by {by} (line ends, spaces around \
+                 cells, the final newline and the column order do not count); nothing was booked. To book it \
+                 again anyway, tick \"import again although the same rows were imported\""
+            )));
+        }
+        Some(_) => {
+            // content_hash is UNIQUE: a deliberate repeat gets a numbered suffix.
+            let n: i64 =
+                sqlx::query_scalar("SELECT COUNT(*) FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?")
+                    .bind(file.rows_hash)
+                    .bind(file.bytes_hash)
+                    .fetch_one(&mut *conn)
+                    .await?;
+            format!("{}+repeat-{n}", file.bytes_hash)
+        }
+    };
+    let id = sqlx::query_scalar(
+        "INSERT INTO ledger_imports (zone_id, content_hash, file_name, row_count, imported_at, imported_by, rows_hash,
+                                     repeats_import_id)
+         VALUES (?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
     )
     .bind(zone_id)
-    .bind(hash)
-    .bind(file_name)
-    .bind(rows as i64)
+    .bind(content_hash)
+    .bind(file.file_name)
+    .bind(file.rows as i64)
     .bind(now())
     .bind(actor)
+    .bind(file.rows_hash)
+    .bind(earlier.as_ref().map(|e| e.0))
     .fetch_one(conn)
-    .await?)
+    .await?;
+    Ok((id, earlier))
 }

@@ -45,6 +45,9 @@ pub async fn snapshot(pool: &SqlitePool, fresh: impl Fn(i64, i64, i64) -> bool) 
     if stale_ids.len() > FEW {
         let mut scores = readiness::scores_in(&mut tx, None).await?;
         let mut totals = totals_by_zone(ledger::totals_in(&mut tx, None).await?);
+        for (zone, month) in ledger::latest_live_in(&mut tx, None).await? {
+            totals.entry(zone).or_default().latest = Some(month);
+        }
         for zone in list_zones_in(&mut tx).await? {
             let Some(&n) = stale_ids.get(&zone.id) else { continue };
             let (scores, ledger) = (scores.remove(&zone.id), totals.remove(&zone.id));
@@ -54,7 +57,10 @@ pub async fn snapshot(pool: &SqlitePool, fresh: impl Fn(i64, i64, i64) -> bool) 
         for (&id, &n) in &stale_ids {
             let zone = get_zone_in(&mut tx, id).await?;
             let scores = readiness::scores_in(&mut tx, Some(id)).await?.remove(&id);
-            let ledger = totals_by_zone(ledger::totals_in(&mut tx, Some(id)).await?).remove(&id);
+            let mut ledger = totals_by_zone(ledger::totals_in(&mut tx, Some(id)).await?).remove(&id);
+            if let Some((_, month)) = ledger::latest_live_in(&mut tx, Some(id)).await?.pop() {
+                ledger.get_or_insert_default().latest = Some(month);
+            }
             stale.push((n, zone_data(&mut tx, zone, scores, ledger).await?));
         }
     }
@@ -62,12 +68,12 @@ pub async fn snapshot(pool: &SqlitePool, fresh: impl Fn(i64, i64, i64) -> bool) 
     Ok(Snapshot { site, counters, stale })
 }
 
-/// Group `ledger_totals` rows by zone: driver amounts and the latest booked month.
+/// Group `ledger_totals` rows by zone: driver amounts. The latest month comes from
+/// [`ledger::latest_live_in`]: `last_period` there counts reversed entries too.
 fn totals_by_zone(rows: Vec<(i64, String, Decimal, Month)>) -> HashMap<i64, LedgerTotals> {
     let mut totals: HashMap<i64, LedgerTotals> = HashMap::new();
-    for (zone, item, amount, last) in rows {
+    for (zone, item, amount, _) in rows {
         let t = totals.entry(zone).or_default();
-        t.latest = Some(t.latest.map_or(last, |l| l.max(last)));
         if let Some(id) = item.strip_prefix("driver:").and_then(|d| d.parse::<i64>().ok()) {
             t.drivers.insert(id, amount);
         }

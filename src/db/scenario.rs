@@ -1,7 +1,7 @@
 //! Loading a whole scenario file in one transaction.
 
 use super::{DbError, DbResult, begin_write, insert_case, insert_zone, ledger, put_site};
-use crate::domain::{EntryKind, FieldErrors, Month, Scenario};
+use crate::domain::{EntryKind, FieldErrors, Scenario};
 use sqlx::{SqliteConnection, SqlitePool};
 
 /// What a load stored.
@@ -15,9 +15,9 @@ pub struct LoadSummary {
     pub entries: usize,
 }
 
-/// The calendar month now: a scenario may not book later months either.
-fn this_month() -> Month {
-    Month::of(time::OffsetDateTime::now_utc().date())
+/// The date now: a scenario may not book later months (or payment dates) either.
+fn today() -> time::Date {
+    time::OffsetDateTime::now_utc().date()
 }
 
 /// Store one zone's readiness scores and ledger; errors name the scenario's JSON path.
@@ -50,7 +50,7 @@ async fn load_zone_extras(
         DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one(format!("zones[{i}].ledger"), msg)),
         other => other,
     })?;
-    let now = this_month();
+    let now = today();
     let mut errors = FieldErrors::default();
     let mut entries = Vec::with_capacity(z.ledger.len());
     for (j, entry) in z.ledger.iter().enumerate() {
@@ -71,7 +71,7 @@ async fn load_zone_extras(
     if !errors.is_empty() {
         return Err(DbError::Invalid(errors));
     }
-    let tag = ledger::Tag { actor, key: None, import_id: None, reverses_id: None };
+    let tag = ledger::Tag { actor, import_id: None, reverses_id: None };
     ledger::insert_checked(conn, zone_id, &entries, &tag).await?;
     Ok(z.ledger.len())
 }

@@ -131,6 +131,9 @@ pub fn ledger_entry_row(e: &NewEntry, s: &EntryStamp<'_>) -> Row {
         ("import_id", Value::opt_int(s.import_id)),
         ("booked_at", Value::text(s.booked_at)),
         ("booked_by", Value::text(s.booked_by)),
+        ("paid_on", Value::opt_text(e.paid_on.map(|d| d.to_string()).as_deref())),
+        // NULL unless confirmed, so rows from before the column keep their hashes.
+        ("implausible_confirmed", Value::opt_int(e.implausible_confirmed.then_some(1))),
     ]
 }
 

@@ -2,7 +2,7 @@
 //! and as validated bookings. Context checks (the item belongs to the zone's baseline, the
 //! month lies inside its horizon and not in the future) need the stored case: see `db::ledger`.
 
-use super::de::string_or_number;
+use super::de::{flexible_bool, string_or_number};
 use super::{FieldErrors, Month, NumberFormat, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
@@ -40,12 +40,14 @@ impl EntryKind {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 #[serde(tag = "method", rename_all = "snake_case")]
 pub enum Measurement {
-    /// The avoided quantity itself (e.g. 1,240 kWh).
+    /// The avoided quantity itself (e.g. 1,240 kWh): always more than zero.
     Direct {
-        /// Avoided quantity in the driver's unit; negative when the period did worse.
+        /// Avoided quantity in the driver's unit, more than zero (a period that did worse than
+        /// its baseline is measured with [`Measurement::Normalized`], which may be negative).
         quantity: Decimal,
     },
-    /// IPMVP-style avoided quantity: baseline intensity x reporting volume - measured consumption.
+    /// IPMVP-style avoided quantity: baseline intensity x reporting volume - measured consumption;
+    /// negative when the zone did worse than its baseline.
     Normalized {
         /// Baseline consumption per unit of volume (e.g. kWh per unit produced).
         baseline_intensity: Decimal,
@@ -102,6 +104,11 @@ pub struct BookingInput {
     pub amount: String,
     /// How it was measured (meter, report, sample...).
     pub evidence: String,
+    /// Spending: the day it was paid, `YYYY-MM-DD` inside the booked month (optional).
+    pub paid_on: String,
+    /// Book it although it is far outside its item's expectation (see [`Plausibility`]).
+    #[serde(deserialize_with = "flexible_bool")]
+    pub confirm_implausible: bool,
 }
 
 /// A booking whose fields are each valid.
@@ -117,6 +124,28 @@ pub struct Booking {
     pub measurement: Measurement,
     /// Evidence note.
     pub evidence: String,
+    /// Spending: the payment date, inside `period`.
+    pub paid_on: Option<time::Date>,
+    /// The author confirmed a booking beyond the plausibility threshold.
+    pub confirm_implausible: bool,
+}
+
+/// Parse an optional payment date (`YYYY-MM-DD`) that must fall in `period`.
+fn paid_on(value: &str, period: Option<Month>) -> Result<Option<time::Date>, String> {
+    let v = value.trim();
+    if v.is_empty() {
+        return Ok(None);
+    }
+    let format = time::macros::format_description!("[year]-[month]-[day]");
+    let date = time::Date::parse(v, &format).map_err(|_| "a date as YYYY-MM-DD, e.g. 2025-12-12".to_string())?;
+    match period {
+        Some(p) if Month::of(date) != p => Err(format!("a day of the booked month {p} (YYYY-MM-DD)")),
+        _ => Ok(Some(date)),
+    }
+}
+
+fn positive(message: &'static str) -> impl Fn(Decimal) -> Result<Decimal, String> {
+    move |d| if d > Decimal::ZERO { Ok(d) } else { Err(message.into()) }
 }
 
 fn non_negative(field: &'static str) -> impl Fn(Decimal) -> Result<Decimal, String> {
@@ -150,7 +179,13 @@ impl Booking {
         );
         let measurement = match (kind, input.method.trim()) {
             (Some(EntryKind::Saving), "direct") => e
-                .take("quantity", f.read(&input.quantity).and_then(bounded(f)))
+                .take(
+                    "quantity",
+                    f.read(&input.quantity).and_then(bounded(f)).and_then(positive(
+                        "an avoided quantity, more than zero: a period that did worse than its baseline is booked \
+                         with the normalized method; a wrong entry is corrected by reversal",
+                    )),
+                )
                 .map(|quantity| Measurement::Direct { quantity }),
             (Some(EntryKind::Saving), "normalized") => {
                 let i = e.take(
@@ -179,13 +214,9 @@ impl Booking {
             (Some(EntryKind::Spending), "" | "spend") => e
                 .take(
                     "amount",
-                    f.read(&input.amount).and_then(bounded(f)).and_then(|d| {
-                        if d > Decimal::ZERO {
-                            Ok(d)
-                        } else {
-                            Err("the amount spent, more than zero (correct by reversal)".into())
-                        }
-                    }),
+                    f.read(&input.amount)
+                        .and_then(bounded(f))
+                        .and_then(positive("the amount spent, more than zero (correct by reversal)")),
                 )
                 .map(|amount| Measurement::Spend { amount }),
             (Some(EntryKind::Spending), _) => {
@@ -194,9 +225,17 @@ impl Booking {
             }
             (None, _) => None,
         };
+        let paid_on = match kind {
+            Some(EntryKind::Saving) if !input.paid_on.trim().is_empty() => {
+                e.push("paid_on", "only spending carries a payment date: leave it empty for a saving");
+                None
+            }
+            _ => e.take("paid_on", paid_on(&input.paid_on, period)).flatten(),
+        };
+        let confirm_implausible = input.confirm_implausible;
         match (kind, item_id, period, measurement, evidence) {
             (Some(kind), Some(item_id), Some(period), Some(measurement), Some(evidence)) if e.is_empty() => {
-                Ok(Self { kind, item_id, period, measurement, evidence })
+                Ok(Self { kind, item_id, period, measurement, evidence, paid_on, confirm_implausible })
             }
             _ => Err(e),
         }
@@ -245,6 +284,26 @@ pub struct LedgerEntry {
     pub booked_at: String,
     /// Who booked it.
     pub booked_by: String,
+    /// Spending: the day it was paid (XNPV / XIRR date; the month's end when `None`).
+    #[serde(serialize_with = "ser_date")]
+    pub paid_on: Option<time::Date>,
+    /// Beyond the plausibility threshold and confirmed by its author.
+    pub implausible_confirmed: bool,
+}
+
+impl LedgerEntry {
+    /// Whether the entry counts as booked: neither reversed nor a reversal. Only such entries
+    /// make a month "elapsed" (a reversed booking in a later month does not stretch the window).
+    pub fn is_live(&self) -> bool {
+        self.reverses_id.is_none() && self.reversed_by.is_none()
+    }
+}
+
+fn ser_date<S: serde::Serializer>(d: &Option<time::Date>, s: S) -> Result<S::Ok, S::Error> {
+    match d {
+        Some(d) => s.collect_str(d),
+        None => s.serialize_none(),
+    }
 }
 
 /// What bookings are checked against: the zone's approved baseline, its horizon and items.
@@ -256,10 +315,79 @@ pub struct BookingBaseline {
     pub start: Month,
     /// Its horizon in months.
     pub horizon: u32,
-    /// Benefit drivers: id, label, unit value; by id.
-    pub drivers: Vec<(i64, String, Decimal)>,
-    /// Cost items: id, label; by id.
-    pub costs: Vec<(i64, String)>,
+    /// Benefit drivers, by id.
+    pub drivers: Vec<BaselineDriver>,
+    /// Cost items, by id.
+    pub costs: Vec<BaselineCost>,
+}
+
+/// A benefit driver as bookings are checked against it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BaselineDriver {
+    /// Driver id.
+    pub id: i64,
+    /// Label.
+    pub label: String,
+    /// Unit of its quantity.
+    pub unit: String,
+    /// Money per unit, frozen on each entry.
+    pub unit_value: Decimal,
+    /// High yearly quantity of the business case (the plausibility threshold's base).
+    pub qty_high: Decimal,
+}
+
+/// A cost item as bookings are checked against it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BaselineCost {
+    /// Cost item id.
+    pub id: i64,
+    /// Label.
+    pub label: String,
+    /// One-off amount, or yearly amount of a recurring item.
+    pub amount: Decimal,
+    /// Recurring (amount per year) rather than one-off.
+    pub recurring: bool,
+}
+
+/// How far a booking may lie outside its item's expectation before it needs an explicit
+/// confirmation: [`PLAUSIBLE_FACTOR`] times the driver's monthly high quantity (`qty_high /
+/// 12`), or times the cost item's amount (one-off) or monthly amount (recurring: yearly / 12).
+/// A rule of thumb of our own (no published source): wide enough for a good month, narrow
+/// enough to catch a mistyped order of magnitude.
+pub struct Plausibility;
+
+/// The factor of [`Plausibility`].
+pub const PLAUSIBLE_FACTOR: u32 = 10;
+
+/// The start of every plausibility refusal (so a page can offer the confirmation).
+const IMPLAUSIBLE: &str = "implausible:";
+
+impl Plausibility {
+    /// The refusal message when `value` (a quantity or an amount, taken as its magnitude)
+    /// exceeds `factor x base / per` (`per` = 12 for monthly, 1 otherwise), else `None`.
+    fn check(value: Decimal, base: Decimal, per: u32, what: &str, unit: &str) -> Option<String> {
+        let factor = Decimal::from(PLAUSIBLE_FACTOR);
+        // Compared multiplied out, so no rounding of base / 12 decides.
+        if value.abs() * Decimal::from(per) <= factor * base {
+            return None;
+        }
+        // Written as the page writing the refusal writes numbers.
+        let write = |d: Decimal| NumberFormat::current().write(d, 2);
+        let limit = write(factor * base / Decimal::from(per));
+        let base_text = if per == 1 { write(base) } else { format!("{} / {per}", write(base)) };
+        let unit = if unit.is_empty() { String::new() } else { format!(" {unit}") };
+        Some(format!(
+            "{IMPLAUSIBLE} {}{unit} is more than {PLAUSIBLE_FACTOR} times {what} ({PLAUSIBLE_FACTOR} × {base_text} = \
+             {limit}{unit}); if it is right, tick \"confirm this implausible figure\" and book again (API: \
+             \"confirm_implausible\": true; CSV: a confirm_implausible column with yes)",
+            write(value.abs())
+        ))
+    }
+
+    /// Whether `errors` hold a plausibility refusal (the form then shows the confirmation).
+    pub fn refused(errors: &FieldErrors) -> bool {
+        errors.0.iter().any(|e| e.message.starts_with(IMPLAUSIBLE))
+    }
 }
 
 /// A booking checked against the baseline, with its amount: ready to store.
@@ -287,6 +415,10 @@ pub struct NewEntry {
     pub inputs: [Option<Decimal>; 3],
     /// Evidence note.
     pub evidence: String,
+    /// Spending: the payment date.
+    pub paid_on: Option<time::Date>,
+    /// Beyond the plausibility threshold and confirmed by its author.
+    pub implausible_confirmed: bool,
 }
 
 /// The running-totals key of a ledger item: `driver:<id>` or `cost:<id>`.
@@ -309,16 +441,22 @@ impl BookingBaseline {
     /// Ids of the drivers (`saving`) or cost items with this exact label, in id order.
     pub fn items_labelled(&self, saving: bool, label: &str) -> Vec<i64> {
         if saving {
-            self.drivers.iter().filter(|(_, l, _)| l == label).map(|(id, _, _)| *id).collect()
+            self.drivers.iter().filter(|d| d.label == label).map(|d| d.id).collect()
         } else {
-            self.costs.iter().filter(|(_, l)| l == label).map(|(id, _)| *id).collect()
+            self.costs.iter().filter(|c| c.label == label).map(|c| c.id).collect()
         }
     }
 
     /// Check a booking: its item must belong to the baseline, its month must lie inside the
-    /// horizon and not after `current_month`. Savings are valued at the driver's unit value.
-    pub fn check(&self, b: &Booking, current_month: Month) -> Result<NewEntry, FieldErrors> {
+    /// horizon and not after the month of `today` (nor its payment date after `today`), and
+    /// it must be plausible ([`Plausibility`]) unless confirmed. Savings are valued at the
+    /// driver's unit value.
+    pub fn check(&self, b: &Booking, today: time::Date) -> Result<NewEntry, FieldErrors> {
+        let current_month = Month::of(today);
         let mut e = FieldErrors::default();
+        if let Some(paid) = b.paid_on.filter(|d| *d > today) {
+            e.push("paid_on", format!("{paid} is in the future; the latest payment date is {today}"));
+        }
         let last = self.start.plus(self.horizon.saturating_sub(1));
         if b.period < self.start || b.period > last {
             e.push("period", format!("a month of the baseline's horizon: {} to {last}", self.start));
@@ -328,16 +466,17 @@ impl BookingBaseline {
                 format!("{} is in the future; the latest month that can be booked is {current_month}", b.period),
             );
         }
+        let driver = self.drivers.iter().find(|d| d.id == b.item_id && b.kind == EntryKind::Saving);
+        let cost = self.costs.iter().find(|c| c.id == b.item_id && b.kind == EntryKind::Spending);
         let (driver_id, cost_id, unit_value) = match b.kind {
             EntryKind::Saving => {
-                let v = self.drivers.iter().find(|(id, _, _)| *id == b.item_id).map(|(_, _, v)| *v);
-                if v.is_none() {
+                if driver.is_none() {
                     e.push("item", format!("driver {} is not a benefit driver of the zone's baseline", b.item_id));
                 }
-                (Some(b.item_id), None, v)
+                (Some(b.item_id), None, driver.map(|d| d.unit_value))
             }
             EntryKind::Spending => {
-                if !self.costs.iter().any(|(id, _)| *id == b.item_id) {
+                if cost.is_none() {
                     e.push("item", format!("cost item {} is not a cost item of the zone's baseline", b.item_id));
                 }
                 (None, Some(b.item_id), None)
@@ -357,6 +496,34 @@ impl BookingBaseline {
             }
             Measurement::Spend { amount } => (None, -*amount, [None, None, None]),
         };
+        let refusal = match (&b.measurement, driver, cost) {
+            (Measurement::Direct { quantity }, Some(d), _) => {
+                Plausibility::check(*quantity, d.qty_high, 12, "the driver's monthly high quantity", &d.unit)
+                    .map(|m| ("quantity", m))
+            }
+            (Measurement::Normalized { .. }, Some(d), _) => Plausibility::check(
+                quantity.unwrap_or_default(),
+                d.qty_high,
+                12,
+                "the driver's monthly high quantity (the avoided quantity, intensity × volume − consumption)",
+                &d.unit,
+            )
+            .map(|m| ("measured_consumption", m)),
+            (Measurement::Spend { amount }, _, Some(c)) => {
+                let (per, what) = if c.recurring {
+                    (12, "the cost item's monthly amount (yearly amount / 12)")
+                } else {
+                    (1, "the cost item's amount")
+                };
+                Plausibility::check(*amount, c.amount, per, what, "").map(|m| ("amount", m))
+            }
+            _ => None,
+        };
+        if let Some((field, message)) = &refusal
+            && !b.confirm_implausible
+        {
+            return Err(FieldErrors::one(*field, message.clone()));
+        }
         Ok(NewEntry {
             case_id: self.case_id,
             kind: b.kind,
@@ -369,6 +536,21 @@ impl BookingBaseline {
             amount,
             inputs,
             evidence: b.evidence.clone(),
+            paid_on: b.paid_on,
+            implausible_confirmed: refusal.is_some(),
         })
     }
+}
+
+/// Longest `Idempotency-Key` accepted.
+pub const IDEMPOTENCY_KEY_MAX: usize = 100;
+
+/// Validate an `Idempotency-Key` header value: 1 to [`IDEMPOTENCY_KEY_MAX`] printable ASCII
+/// characters (space to `~`), used exactly as sent.
+pub fn idempotency_key(raw: &[u8]) -> Result<&str, String> {
+    let rule = format!("1 to {IDEMPOTENCY_KEY_MAX} printable ASCII characters (letters, digits, punctuation, space)");
+    if raw.is_empty() || raw.len() > IDEMPOTENCY_KEY_MAX || !raw.iter().all(|b| (0x20..=0x7e).contains(b)) {
+        return Err(rule);
+    }
+    std::str::from_utf8(raw).map_err(|_| rule)
 }

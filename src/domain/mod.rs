@@ -25,7 +25,10 @@ pub use case::{
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
 };
 pub use figures::{CaseFigures, View, case_figures};
-pub use ledger::{Booking, BookingBaseline, BookingInput, EntryKind, LedgerEntry, Measurement, NewEntry, item_key};
+pub use ledger::{
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, BookingInput, EntryKind, IDEMPOTENCY_KEY_MAX, LedgerEntry,
+    Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key, item_key,
+};
 pub use money::{Money, Percent, money, pct, quantity};
 pub use numbers::{NumberFormat, read, read_percent};
 pub use portfolio::{
@@ -190,7 +193,12 @@ pub mod de {
             Some(Raw::Bool(b)) => b,
             Some(Raw::Int(i)) => i != 0,
             Some(Raw::Float(f)) => f != 0.0,
-            Some(Raw::Text(s)) => matches!(s.trim().to_ascii_lowercase().as_str(), "on" | "true" | "1" | "yes"),
+            Some(Raw::Text(s)) => flag_text(&s),
         })
+    }
+
+    /// A checkbox or CSV flag as text: `on`, `true`, `1` or `yes` (any case) is set.
+    pub fn flag_text(s: &str) -> bool {
+        matches!(s.trim().to_ascii_lowercase().as_str(), "on" | "true" | "1" | "yes")
     }
 }

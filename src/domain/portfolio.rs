@@ -231,11 +231,12 @@ pub struct CaseParts {
     pub frozen: Option<ApprovalSettings>,
 }
 
-/// A zone's ledger as running totals: what each baseline driver booked, and the latest month
-/// booked on any item (kept in the booking's transaction, see `db::ledger`).
+/// A zone's ledger as running totals: what each baseline driver booked (kept in the booking's
+/// transaction, see `db::ledger`), and the latest month with a live entry of the baseline
+/// (neither reversed nor a reversal), as the ledger page counts elapsed months.
 #[derive(Debug, Clone, Default)]
 pub struct LedgerTotals {
-    /// Latest booked month.
+    /// Latest month with a live entry.
     pub latest: Option<Month>,
     /// Booked money per driver id.
     pub drivers: HashMap<i64, Decimal>,
@@ -347,7 +348,7 @@ fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigure
 }
 
 /// Realization to date and per-driver evidence from the ledger totals: months count from the
-/// baseline's start through the latest booked month (as on the ledger page).
+/// baseline's start through the latest month with a live entry (as on the ledger page).
 fn realized(
     c: &CaseParts,
     ledger: &LedgerTotals,

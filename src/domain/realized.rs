@@ -1,7 +1,10 @@
 //! The realized view of a zone: its ledger against its approved baseline, month by month.
 //!
 //! Months are counted from the baseline's start month. "Elapsed" runs through the latest month
-//! with a booking, so a month not yet booked does not pull the realization rate down.
+//! with a live booking (neither reversed nor a reversal, [`LedgerEntry::is_live`]), so a month
+//! not yet booked does not pull the realization rate down, and a booking reversed later does
+//! not stretch the window either. Dated flows carry a spending entry's payment date, or the
+//! month's end.
 
 use super::{CaseHeader, EntryKind, LedgerEntry, Month, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
 use crate::finance::schedule::build_schedule;
@@ -100,7 +103,9 @@ pub fn realized_view(
             if e.kind == EntryKind::Spending {
                 measured_spend[i] += e.amount;
             }
-            elapsed = elapsed.max(i + 1);
+            if e.is_live() {
+                elapsed = elapsed.max(i + 1);
+            }
         }
     }
     let mut out_drivers = Vec::with_capacity(drivers.len());
@@ -131,7 +136,7 @@ pub fn realized_view(
         });
     }
     let flows: Vec<(time::Date, Decimal)> =
-        entries.iter().filter_map(|e| month_end(e.period).map(|d| (d, e.amount))).collect();
+        entries.iter().filter_map(|e| e.paid_on.or_else(|| month_end(e.period)).map(|d| (d, e.amount))).collect();
     let realized = if flows.is_empty() { None } else { Some(realized_return(hurdle, &flows)?) };
     Ok(RealizedView {
         elapsed,

@@ -208,6 +208,12 @@ pub struct RealizedReturn {
     /// Why `xirr` is `None` (always set then), or, when `xirr` is set but other rates also make
     /// XNPV zero, a caution naming them. `None` when `xirr` is the only root.
     pub xirr_note: Option<String>,
+    /// Every annual rate found to make XNPV zero, ascending (empty when the flows never change
+    /// sign).
+    pub roots: Vec<f64>,
+    /// The flows change sign more than once, so the rate of return may not be unique:
+    /// [`crate::finance::IrrOutcome::ambiguous`].
+    pub ambiguous: bool,
 }
 
 /// A rate as a percentage for a note: `0.1234` -> `12.34 %`. Close to -100 % (flows ending in an
@@ -309,7 +315,9 @@ pub fn realized_return(annual_rate: f64, flows: &[(Date, Decimal)]) -> Result<Re
         }
     }
     let xnpv = xnpv(annual_rate, &amounts, &dates)?;
-    let (xirr, xirr_note) = match xirr_outcome(&amounts, &dates) {
+    let outcome = xirr_outcome(&amounts, &dates);
+    let (roots, ambiguous) = outcome.as_ref().map_or((Vec::new(), false), |o| (o.roots.clone(), o.ambiguous));
+    let (xirr, xirr_note) = match outcome {
         Ok(outcome) => match outcome.chosen {
             Some(rate) if outcome.roots.len() <= 1 => (Some(rate), None),
             Some(rate) => {
@@ -327,7 +335,7 @@ pub fn realized_return(annual_rate: f64, flows: &[(Date, Decimal)]) -> Result<Re
         },
         Err(e) => (None, Some(missing_xirr_note(&e))),
     };
-    Ok(RealizedReturn { xnpv, xirr, xirr_note })
+    Ok(RealizedReturn { xnpv, xirr, xirr_note, roots, ambiguous })
 }
 
 #[cfg(test)]

@@ -58,22 +58,29 @@ fn payback_text(p: &Option<Payback>, what: &str, warnings: &mut Vec<String>) -> 
     }
 }
 
+/// The caution shown beside a rate of return whose flows change sign more than once: `rate`
+/// names it (IRR, XIRR), `roots` are annual rates, `decide` what should decide instead. The
+/// case page (IRR) and the ledger page (realized XIRR) share it.
+pub(super) fn ambiguous_rate_warning(rate: &str, roots: &[f64], decide: &str) -> String {
+    let roots: Vec<String> = roots.iter().map(|r| Percent(*r).to_string()).collect();
+    format!(
+        "The cash flow changes sign more than once: {rate} is ambiguous (roots {}); let {decide} decide.",
+        roots.join(", ")
+    )
+}
+
 impl From<&CaseMetrics> for MetricsView {
     fn from(m: &CaseMetrics) -> Self {
         let mut warnings = Vec::new();
         let irr = match (&m.irr, m.irr_annual) {
             (Ok(outcome), Some(annual)) => {
                 if outcome.ambiguous {
-                    let roots: Vec<String> = outcome
+                    let roots: Vec<f64> = outcome
                         .roots
                         .iter()
                         .filter_map(|r| crate::finance::annual_from_periodic(*r, 12).ok())
-                        .map(|r| Percent(r).to_string())
                         .collect();
-                    warnings.push(format!(
-                        "The cash flow changes sign more than once: IRR is ambiguous (roots {}); let NPV and MIRR decide.",
-                        roots.join(", ")
-                    ));
+                    warnings.push(ambiguous_rate_warning("IRR", &roots, "NPV and MIRR"));
                 }
                 Percent(annual).to_string()
             }

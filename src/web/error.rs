@@ -15,6 +15,9 @@ pub enum AppError {
     /// Input fields were rejected (422); each names its field.
     #[error("some fields are not valid: {0}")]
     Invalid(FieldErrors),
+    /// Request headers were rejected (400); each names its header (`Idempotency-Key`).
+    #[error("some request headers are not valid: {0}")]
+    InvalidHeader(FieldErrors),
     /// The body could not be read as the expected format (400 or 415).
     #[error("{message}")]
     BadRequest {
@@ -45,6 +48,7 @@ impl AppError {
     pub fn status(&self) -> StatusCode {
         match self {
             Self::Invalid(_) => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::InvalidHeader(_) => StatusCode::BAD_REQUEST,
             Self::BadRequest { status, .. } => *status,
             Self::Unauthenticated => StatusCode::UNAUTHORIZED,
             Self::Forbidden => StatusCode::FORBIDDEN,
@@ -116,7 +120,7 @@ impl IntoResponse for AppError {
         self.log();
         let status = self.status();
         let fields = match &self {
-            Self::Invalid(f) => f.clone(),
+            Self::Invalid(f) | Self::InvalidHeader(f) => f.clone(),
             _ => FieldErrors::default(),
         };
         let page = ErrorPage {
@@ -150,7 +154,7 @@ impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
         self.0.log();
         let fields = match &self.0 {
-            AppError::Invalid(f) => f.clone(),
+            AppError::Invalid(f) | AppError::InvalidHeader(f) => f.clone(),
             _ => FieldErrors::default(),
         };
         let body = json!({ "error": self.0.public_message(), "fields": fields });

@@ -7,11 +7,11 @@ use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
     Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, NumberFormat,
-    Percent, RealizedView, SiteSettings, Zone, quantity, realized_view,
+    Percent, Plausibility, RealizedView, SiteSettings, Zone, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
-use axum::extract::{Multipart, Path, State};
+use axum::extract::{Multipart, Path, Query, State};
 use axum::http::{HeaderMap, StatusCode, header};
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
@@ -35,9 +35,56 @@ pub const CSV_COLUMNS: [&str; 10] = [
     "evidence",
 ];
 
-/// The month the clock is in: nothing later can be booked.
-fn current_month(state: &AppState) -> Month {
-    Month::of(state.clock.now().date())
+/// Optional import columns, read when present and written by the export.
+pub const CSV_OPTIONAL_COLUMNS: [&str; 2] = ["paid_on", "confirm_implausible"];
+
+/// The clock's date: nothing later can be booked (month) or paid (day).
+fn today(state: &AppState) -> time::Date {
+    state.clock.now().date()
+}
+
+/// A fresh one-time token for a form: 128 random bits. It is recorded only when the form books
+/// (in that transaction), so a page view writes nothing; a forged token can only stop a
+/// booking, never allow one.
+fn form_token() -> String {
+    crate::auth::new_secret("f").expose().chars().take(23).collect()
+}
+
+/// The one-time token of a submitted form, from the action URL (`?form=...`).
+#[derive(Deserialize, Default)]
+#[serde(default)]
+pub struct FormQuery {
+    form: String,
+}
+
+impl FormQuery {
+    /// The token, or the error that asks for a resubmission from the page.
+    fn token(&self) -> Result<&str, AppError> {
+        let t = self.form.trim();
+        if t.is_empty() || t.len() > 64 || !t.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'_') {
+            return Err(AppError::Invalid(FieldErrors::one(
+                "form",
+                "this form was not sent from the ledger page (its one-time token is missing): reload the page and \
+                 submit it again",
+            )));
+        }
+        Ok(t)
+    }
+}
+
+/// The outcome of a form or API write: done, or (a form) already done by an earlier submit of
+/// the same one-time token, with what that did (`entry 12`, `import 3`).
+pub enum Once<T> {
+    /// Written now.
+    Done(T),
+    /// The token was used before: nothing was written.
+    Already(String),
+}
+
+/// Where a form submitted twice sends the browser: the ledger page, saying what the first
+/// submit booked.
+fn already(zone_id: i64, outcome: &str) -> Response {
+    Redirect::to(&format!("/zones/{zone_id}/ledger?already={}#entries", outcome.replace(' ', "-"))).into_response()
 }
 
 /// Realization and its parts, formatted.
@@ -57,6 +104,8 @@ pub struct EntryRow {
     item: String,
     amount: Money,
     inputs: String,
+    /// One-time token of its reversal form.
+    token: String,
 }
 
 #[derive(Template)]
@@ -73,9 +122,16 @@ struct LedgerPage {
     form: BookingInput,
     errors: FieldErrors,
     notice: Option<String>,
+    /// A form submitted twice: what its first submit booked.
+    info: Option<String>,
     period_hint: String,
     /// The import's header row, separated as this site's CSV files are.
     csv_header: String,
+    /// One-time tokens of the booking and import forms.
+    book_token: String,
+    import_token: String,
+    /// Show the plausibility confirmation (after a refusal, or when already ticked).
+    ask_confirm: bool,
 }
 
 /// The realized figures of the page.
@@ -91,6 +147,8 @@ pub struct Figures {
     xnpv: String,
     xirr: String,
     xirr_note: Option<String>,
+    /// Several rates make XNPV zero: the shared ambiguity caution with every root.
+    xirr_warning: Option<String>,
     drivers: Vec<DriverRow>,
     cumulative: PairChart,
 }
@@ -112,7 +170,17 @@ fn figures(view: &RealizedView) -> Figures {
         spending_expected: Money(view.spending_expected_to_date),
         xnpv: view.realized.as_ref().map_or_else(|| "–".into(), |r| Money(r.xnpv).to_string()),
         xirr: view.realized.as_ref().and_then(|r| r.xirr).map_or_else(|| "none".into(), |x| Percent(x).to_string()),
-        xirr_note: view.realized.as_ref().and_then(|r| r.xirr_note.clone()),
+        xirr_warning: view
+            .realized
+            .as_ref()
+            .filter(|r| r.ambiguous && !r.roots.is_empty())
+            .map(|r| super::cases::ambiguous_rate_warning("XIRR", &r.roots, "XNPV")),
+        // The ambiguity caution lists every root; the note says why else there is no XIRR.
+        xirr_note: view
+            .realized
+            .as_ref()
+            .filter(|r| !r.ambiguous || r.roots.is_empty())
+            .and_then(|r| r.xirr_note.clone()),
         drivers: view
             .drivers
             .iter()
@@ -173,6 +241,18 @@ async fn page(
     errors: FieldErrors,
     notice: Option<String>,
 ) -> Result<Response, AppError> {
+    page_with(state, me, zone_id, form, errors, notice, None).await
+}
+
+async fn page_with(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    form: BookingInput,
+    errors: FieldErrors,
+    notice: Option<String>,
+    info: Option<String>,
+) -> Result<Response, AppError> {
     let (site, zone, baseline, entries, view) = load(state, zone_id).await?;
     let rows = entries
         .into_iter()
@@ -184,7 +264,7 @@ async fn page(
                 }
                 _ => String::new(),
             };
-            EntryRow { item: item_name(&baseline, &e), amount: Money(e.amount), inputs, e }
+            EntryRow { item: item_name(&baseline, &e), amount: Money(e.amount), inputs, e, token: form_token() }
         })
         .collect();
     let status = if !errors.is_empty() {
@@ -203,8 +283,12 @@ async fn page(
         notes,
         can_book: me.role().allows(crate::auth::Permission::Ledger) && baseline.is_some(),
         figures: view.as_ref().map(figures),
-        period_hint: format!("up to {}", current_month(state)),
+        period_hint: format!("up to {}", Month::of(today(state))),
         csv_header: CSV_COLUMNS.join(&char::from(site.number_format.csv_delimiter()).to_string()),
+        info,
+        book_token: form_token(),
+        import_token: form_token(),
+        ask_confirm: form.confirm_implausible || Plausibility::refused(&errors),
         site,
         zone,
         baseline,
@@ -216,54 +300,96 @@ async fn page(
     Ok((status, Html(page.render()?)).into_response())
 }
 
+/// The ledger page's query: `already=entry-12` after a form was submitted twice.
+#[derive(Deserialize, Default)]
+#[serde(default)]
+pub struct ShowQuery {
+    already: String,
+}
+
 /// GET /zones/{id}/ledger
 pub async fn show(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
+    Query(q): Query<ShowQuery>,
 ) -> Result<Response, AppError> {
-    page(
+    // Only the two shapes the redirect writes are shown, never free text from the URL.
+    let info = q.already.split_once('-').and_then(|(what, n)| {
+        let n: i64 = n.parse().ok()?;
+        let what = match what {
+            "entry" => "entry",
+            "import" => "import",
+            _ => return None,
+        };
+        Some(format!("that form was already submitted: it booked {what} #{n}; nothing was booked again."))
+    });
+    page_with(
         &state,
         &me,
         id,
         BookingInput { kind: "saving".into(), method: "direct".into(), ..Default::default() },
         FieldErrors::default(),
         None,
+        info,
     )
     .await
 }
 
-/// Book one entry with its audit row in one transaction.
+/// Book one entry with its audit row in one transaction; a form's one-time token is used in
+/// the same transaction (a second submit of it books nothing).
 async fn book_one(
     state: &AppState,
     me: &Principal,
     zone_id: i64,
     booking: &Booking,
-    key: Option<&str>,
-) -> Result<Booked, AppError> {
+    key: Option<&db::ledger::Idempotency<'_>>,
+    form: Option<&str>,
+) -> Result<Once<Booked>, AppError> {
     let mut tx = db::begin_write(&state.pool).await?;
-    let booked = db::ledger::book(&mut tx, zone_id, booking, current_month(state), me.name(), key).await?;
+    if let Some(token) = form
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+    {
+        return Ok(Once::Already(outcome));
+    }
+    let booked = db::ledger::book(&mut tx, zone_id, booking, today(state), me.name(), key).await?;
     if let Booked::New(e) = &booked {
-        let detail = format!("{} {} {} {}", e.kind.as_str(), e.period, e.method, e.amount);
+        let mut detail = format!("{} {} {} {}", e.kind.as_str(), e.period, e.method, e.amount);
+        if let Some(paid) = e.paid_on {
+            detail.push_str(&format!(" paid on {paid}"));
+        }
+        if e.implausible_confirmed {
+            detail.push_str(" (beyond the plausibility threshold, confirmed by the author)");
+        }
         db::audit::record(&mut tx, &db::now(), me.name(), "ledger.book", &format!("entry {}", e.id), &detail).await?;
+        if let Some(token) = form {
+            db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", e.id)).await?;
+        }
     }
     tx.commit().await?;
-    Ok(booked)
+    Ok(Once::Done(booked))
 }
 
-/// POST /zones/{id}/ledger: book from the form.
+/// POST /zones/{id}/ledger?form=TOKEN: book from the form.
 pub async fn book(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
+    Query(q): Query<FormQuery>,
     FormBody(input): FormBody<BookingInput>,
 ) -> Result<Response, AppError> {
+    let token = match q.token() {
+        Ok(t) => t,
+        Err(AppError::Invalid(e)) => return page(&state, &me, id, input, e, None).await,
+        Err(other) => return Err(other),
+    };
     let booking = match Booking::parse(&input, NumberFormat::current()) {
         Ok(b) => b,
         Err(e) => return page(&state, &me, id, input, e, None).await,
     };
-    match book_one(&state, &me, id, &booking, None).await {
-        Ok(_) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+    match book_one(&state, &me, id, &booking, None, Some(token)).await {
+        Ok(Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Invalid(e)) => page(&state, &me, id, input, e, None).await,
         Err(AppError::Conflict(msg)) => page(&state, &me, id, input, FieldErrors::default(), Some(msg)).await,
         Err(other) => Err(other),
@@ -283,12 +409,21 @@ async fn reverse_one(
     zone_id: i64,
     entry: i64,
     evidence: &str,
-) -> Result<LedgerEntry, AppError> {
+    form: Option<&str>,
+) -> Result<Once<LedgerEntry>, AppError> {
     let evidence = crate::domain::required_text(evidence, 80).map_err(|_| {
         AppError::Invalid(FieldErrors::one("evidence", "required: why the entry is reversed, at most 80 characters"))
     })?;
     let mut tx = db::begin_write(&state.pool).await?;
+    if let Some(token) = form
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+    {
+        return Ok(Once::Already(outcome));
+    }
     let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
+    if let Some(token) = form {
+        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", r.id)).await?;
+    }
     db::audit::record(
         &mut tx,
         &db::now(),
@@ -299,18 +434,24 @@ async fn reverse_one(
     )
     .await?;
     tx.commit().await?;
-    Ok(r)
+    Ok(Once::Done(r))
 }
 
-/// POST /zones/{id}/ledger/{entry}/reverse
+/// POST /zones/{id}/ledger/{entry}/reverse?form=TOKEN
 pub async fn reverse(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     Path((id, entry)): Path<(i64, i64)>,
+    Query(q): Query<FormQuery>,
     FormBody(input): FormBody<ReverseInput>,
 ) -> Result<Response, AppError> {
-    match reverse_one(&state, &me, id, entry, &input.evidence).await {
-        Ok(_) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+    let result = match q.token() {
+        Ok(token) => reverse_one(&state, &me, id, entry, &input.evidence, Some(token)).await,
+        Err(e) => Err(e),
+    };
+    match result {
+        Ok(Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Conflict(msg)) => {
             page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
         }
@@ -321,21 +462,24 @@ pub async fn reverse(
 
 /// Parse and book a whole CSV file in one transaction: all rows or none. Every bad row is
 /// reported with its line number and column. Cells are read in the site's number format, and a
-/// decimal-comma site's files are separated by `;`.
+/// decimal-comma site's files are separated by `;`. A file with the same rows as an earlier
+/// import is refused unless `again`; a form's one-time token is used in the same transaction.
 pub async fn import_csv(
     state: &AppState,
     me: &Principal,
     zone_id: i64,
     file_name: &str,
     bytes: Vec<u8>,
-) -> Result<usize, AppError> {
+    again: bool,
+    form: Option<&str>,
+) -> Result<Once<usize>, AppError> {
     if bytes.len() > IMPORT_MAX_BYTES {
         return Err(AppError::Invalid(FieldErrors::one(
             "file",
             format!("larger than {} MiB; split it by month", IMPORT_MAX_BYTES / 1024 / 1024),
         )));
     }
-    let month = current_month(state);
+    let day = today(state);
     let numbers = db::number_format(&state.pool).await?;
     // Parse and check off the async threads and outside the write lock (a large file takes a
     // noticeable fraction of a second); under the lock, the baseline is read again and the rows
@@ -345,33 +489,56 @@ pub async fn import_csv(
     let bytes = Arc::new(bytes);
     let (mut rows, checked_with) = {
         let (bytes, baseline) = (bytes.clone(), baseline.clone());
-        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, month, numbers), baseline))
+        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, day, numbers), baseline))
             .await
             .map_err(|e| AppError::Internal(e.into()))?
     };
     let mut tx = db::begin_write(&state.pool).await?;
+    if let Some(token) = form
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+    {
+        return Ok(Once::Already(outcome));
+    }
     let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
     if current != checked_with {
-        rows = checked_rows(&bytes, &current, month, numbers);
+        rows = checked_rows(&bytes, &current, day, numbers);
     }
-    let rows = rows?;
-    let hash = crate::auth::sha256_hex(&bytes);
-    let import_id = db::ledger::insert_import(&mut tx, zone_id, &hash, file_name, rows.len(), me.name()).await?;
-    let tag = db::ledger::Tag { actor: me.name(), key: None, import_id: Some(import_id), reverses_id: None };
+    let (rows, rows_hash) = rows?;
+    let file = db::ledger::ImportFile {
+        rows_hash: &rows_hash,
+        bytes_hash: &crate::auth::sha256_hex(&bytes),
+        file_name,
+        rows: rows.len(),
+        again,
+    };
+    let (import_id, earlier) = db::ledger::insert_import(&mut tx, zone_id, &file, me.name()).await?;
+    let tag = db::ledger::Tag { actor: me.name(), import_id: Some(import_id), reverses_id: None };
     db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
-    let detail = format!("{file_name}: {} rows", rows.len());
+    let mut detail = format!("{file_name}: {} rows", rows.len());
+    if let Some((id, at, by)) = earlier {
+        detail.push_str(&format!("; the same rows as import {id} of {at} by {by}, booked again on purpose"));
+    }
     db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
+    if let Some(token) = form {
+        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("import {import_id}")).await?;
+    }
     tx.commit().await?;
-    Ok(rows.len())
+    Ok(Once::Done(rows.len()))
 }
 
-/// Every row of a CSV file checked against the baseline, or every error by line and column.
+/// Every row of a CSV file checked against the baseline, with the hash of its normalised rows
+/// (the file's identity), or every error by line and column.
+///
+/// The hash covers the header names sorted and, per record, the cells (trimmed, as booked) in
+/// that column order: line ends (CRLF or LF), spaces around cells, the final newline and the
+/// column order do not change it.
 fn checked_rows(
     bytes: &[u8],
     baseline: &BookingBaseline,
-    month: Month,
+    day: time::Date,
     numbers: NumberFormat,
-) -> Result<Vec<NewEntry>, AppError> {
+) -> Result<(Vec<NewEntry>, String), AppError> {
+    use sha2::Digest;
     let invalid = |field: &str, message: String| AppError::Invalid(FieldErrors::one(field, message));
     let delimiter = numbers.csv_delimiter();
     let mut reader =
@@ -389,6 +556,18 @@ fn checked_rows(
             ),
         ));
     }
+    let mut order: Vec<usize> = (0..headers.len()).collect();
+    order.sort_by(|&a, &b| headers[a].cmp(&headers[b]));
+    let mut hasher = sha2::Sha256::new();
+    // Unit and record separators cannot occur in a trimmed cell's meaning here: they delimit.
+    let mut hash_record = |cells: &csv::StringRecord| {
+        for &i in &order {
+            hasher.update(cells.get(i).unwrap_or_default().as_bytes());
+            hasher.update([0x1f]);
+        }
+        hasher.update([0x1e]);
+    };
+    hash_record(&headers);
     let col = |name: &str| headers.iter().position(|h| h == name);
     let mut errors = FieldErrors::default();
     let mut rows = Vec::new();
@@ -401,6 +580,7 @@ fn checked_rows(
                 continue;
             }
         };
+        hash_record(&record);
         let line = record.position().map_or(0, |p| p.line());
         let get = |name: &str| col(name).and_then(|i| record.get(i)).unwrap_or_default().to_string();
         let kind = get("kind");
@@ -438,8 +618,10 @@ fn checked_rows(
             measured_consumption: get("measured_consumption"),
             amount: get("amount"),
             evidence: get("evidence"),
+            paid_on: get("paid_on"),
+            confirm_implausible: crate::domain::de::flag_text(&get("confirm_implausible")),
         };
-        match Booking::parse(&input, numbers).and_then(|b| baseline.check(&b, month)) {
+        match Booking::parse(&input, numbers).and_then(|b| baseline.check(&b, day)) {
             Ok(entry) => rows.push(entry),
             Err(e) => errors.extend_prefixed(&format!("line {line}, column "), e),
         }
@@ -450,7 +632,8 @@ fn checked_rows(
     if !errors.is_empty() {
         return Err(AppError::Invalid(errors));
     }
-    Ok(rows)
+    let hash = hasher.finalize().iter().map(|b| format!("{b:02x}")).collect();
+    Ok((rows, hash))
 }
 
 /// An upload that could not be read. A body cut by the outer size limit reaches multipart as
@@ -470,30 +653,43 @@ fn upload_error(e: axum::extract::multipart::MultipartError) -> AppError {
     AppError::BadRequest { status, message: e.body_text() }
 }
 
-/// POST /zones/{id}/ledger/import: a CSV file from the form (multipart).
+/// POST /zones/{id}/ledger/import?form=TOKEN: a CSV file from the form (multipart), with the
+/// optional `again` checkbox (book the same rows again on purpose).
 pub async fn import(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
+    Query(q): Query<FormQuery>,
     mut multipart: Multipart,
 ) -> Result<Response, AppError> {
     let mut file: Option<(String, Vec<u8>)> = None;
+    let mut again = false;
     while let Some(field) = multipart.next_field().await.map_err(upload_error)? {
-        if field.name() == Some("file") {
-            let name = field.file_name().unwrap_or("upload.csv").to_string();
-            let bytes = field.bytes().await.map_err(upload_error)?;
-            file = Some((name, bytes.to_vec()));
+        match field.name() {
+            Some("file") => {
+                let name = field.file_name().unwrap_or("upload.csv").to_string();
+                let bytes = field.bytes().await.map_err(upload_error)?;
+                file = Some((name, bytes.to_vec()));
+            }
+            Some("again") => again = crate::domain::de::flag_text(&field.text().await.map_err(upload_error)?),
+            _ => {}
         }
     }
+    let token = match q.token() {
+        Ok(t) => t,
+        Err(AppError::Invalid(e)) => return page(&state, &me, id, BookingInput::default(), e, None).await,
+        Err(other) => return Err(other),
+    };
     let Some((name, bytes)) = file else {
         return page(&state, &me, id, BookingInput::default(), FieldErrors::one("file", "choose a CSV file"), None)
             .await;
     };
-    match import_csv(&state, &me, id, &name, bytes).await {
-        Ok(n) => {
+    match import_csv(&state, &me, id, &name, bytes, again, Some(token)).await {
+        Ok(Once::Done(n)) => {
             tracing::info!(zone = id, rows = n, file = %name, "CSV imported");
             Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response())
         }
+        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
         Err(AppError::Conflict(msg)) => {
             page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
@@ -512,6 +708,7 @@ fn csv_of(
     let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let mut head: Vec<&str> = vec!["entry", "zone"];
     head.extend(CSV_COLUMNS);
+    head.extend(CSV_OPTIONAL_COLUMNS);
     head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by"]);
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&head).map_err(internal)?;
@@ -532,6 +729,8 @@ fn csv_of(
             text(e.measured_consumption),
             amount,
             e.evidence.clone(),
+            e.paid_on.map(|d| d.to_string()).unwrap_or_default(),
+            if e.implausible_confirmed { "yes".into() } else { String::new() },
             text(e.unit_value),
             id(e.reverses_id),
             id(e.reversed_by),
@@ -583,6 +782,9 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
             "spending_to_date": v.spending_to_date.to_string(),
             "xnpv": v.realized.as_ref().map(|r| super::metrics::money_text(r.xnpv)),
             "xirr": v.realized.as_ref().and_then(|r| r.xirr).map(super::metrics::rate_text),
+            "xirr_ambiguous": v.realized.as_ref().is_some_and(|r| r.ambiguous),
+            "xirr_roots": v.realized.as_ref().map(|r| r.roots.iter().map(|x| super::metrics::rate_text(*x)).collect::<Vec<_>>()).unwrap_or_default(),
+            "xirr_note": v.realized.as_ref().and_then(|r| r.xirr_note.clone()),
             "drivers": v.drivers.iter().map(|d| json!({
                 "id": d.id, "label": d.label, "expected_to_date": d.realization.expected_to_date.to_string(),
                 "measured_to_date": d.realization.measured_to_date.to_string(),
@@ -600,8 +802,10 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
     })))
 }
 
-/// POST /api/v1/zones/{id}/ledger: book one entry. An `Idempotency-Key` header makes a retry
-/// book once: the repeat answers 200 with the first entry.
+/// POST /api/v1/zones/{id}/ledger: book one entry. An `Idempotency-Key` header (per user)
+/// makes a retry book once: the repeat answers 200 with the first entry; the same key with a
+/// different body or URL answers 409 and books nothing; a key that is not 1 to 100 printable
+/// ASCII characters is a 400.
 pub async fn api_book(
     State(state): State<AppState>,
     CurrentUser(me): CurrentUser,
@@ -609,13 +813,26 @@ pub async fn api_book(
     headers: HeaderMap,
     JsonBody(input): JsonBody<BookingInput>,
 ) -> Result<Response, ApiError> {
+    let key = match headers.get("idempotency-key") {
+        None => None,
+        Some(v) => Some(
+            crate::domain::idempotency_key(v.as_bytes())
+                .map_err(|message| AppError::InvalidHeader(FieldErrors::one("Idempotency-Key", message)))?,
+        ),
+    };
     let booking = Booking::parse(&input, NumberFormat::Plain)?;
-    let key =
-        headers.get("idempotency-key").and_then(|v| v.to_str().ok()).map(|k| format!("{}:{}", me.name(), k.trim()));
-    if key.as_ref().is_some_and(|k| k.len() > 200) {
-        return Err(AppError::Invalid(FieldErrors::one("Idempotency-Key", "at most 150 characters")).into());
-    }
-    Ok(match book_one(&state, &me, id, &booking, key.as_deref()).await? {
+    // The request's fingerprint: method, path and the body as parsed, in one canonical form.
+    let canonical = serde_json::to_string(&input).map_err(|e| AppError::Internal(e.into()))?;
+    let fingerprint = crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{canonical}").as_bytes());
+    let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
+    let booked = match book_one(&state, &me, id, &booking, key.as_ref(), None).await? {
+        Once::Done(b) => b,
+        // Only forms carry a one-time token; kept total all the same.
+        Once::Already(outcome) => {
+            return Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into());
+        }
+    };
+    Ok(match booked {
         Booked::New(e) => (StatusCode::CREATED, Json(json!({ "entry": e }))).into_response(),
         Booked::Replayed(e) => {
             (StatusCode::OK, [("idempotent-replayed", "true")], Json(json!({ "entry": e }))).into_response()
@@ -630,6 +847,8 @@ pub async fn api_reverse(
     Path((id, entry)): Path<(i64, i64)>,
     JsonBody(input): JsonBody<ReverseInput>,
 ) -> Result<Response, ApiError> {
-    let r = reverse_one(&state, &me, id, entry, &input.evidence).await?;
-    Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response())
+    match reverse_one(&state, &me, id, entry, &input.evidence, None).await? {
+        Once::Done(r) => Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response()),
+        Once::Already(outcome) => Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into()),
+    }
 }

@@ -349,6 +349,8 @@ async fn every_column_is_chained() {
         amount: rust_decimal::Decimal::ONE,
         inputs: [None; 3],
         evidence: "x".into(),
+        paid_on: None,
+        implausible_confirmed: false,
     };
     let stamp = EntryStamp {
         id: 1,

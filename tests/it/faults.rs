@@ -83,13 +83,9 @@ async fn sigkill_during_concurrent_bookings_loses_no_acknowledged_write() {
     let pool = sqlx::SqlitePool::connect(&url).await.unwrap();
     let check: String = sqlx::query_scalar("PRAGMA integrity_check").fetch_one(&pool).await.unwrap();
     assert_eq!(check, "ok");
-    // The server keeps keys per user: "controller:crash-w-i".
-    let stored: Vec<String> = sqlx::query_scalar(
-        "SELECT substr(idempotency_key, 12) FROM ledger_entries WHERE idempotency_key LIKE 'controller:crash-%'",
-    )
-    .fetch_all(&pool)
-    .await
-    .unwrap();
+    // The server keeps keys per user, with the entry each booked (migration 0009).
+    let stored: Vec<String> =
+        sqlx::query_scalar("SELECT key FROM idempotency_keys WHERE key LIKE 'crash-%'").fetch_all(&pool).await.unwrap();
     let unique: std::collections::HashSet<&String> = stored.iter().collect();
     assert_eq!(unique.len(), stored.len(), "no key booked twice");
     for key in &acked {
@@ -97,8 +93,8 @@ async fn sigkill_during_concurrent_bookings_loses_no_acknowledged_write() {
     }
     // Every stored row is whole: its evidence is its own key.
     let torn: i64 = sqlx::query_scalar(
-        "SELECT COUNT(*) FROM ledger_entries WHERE idempotency_key LIKE 'controller:crash-%'
-         AND 'controller:' || evidence <> idempotency_key",
+        "SELECT COUNT(*) FROM idempotency_keys k JOIN ledger_entries e ON e.id = k.entry_id
+         WHERE k.key LIKE 'crash-%' AND e.evidence <> k.key",
     )
     .fetch_one(&pool)
     .await

@@ -157,3 +157,17 @@ impl TestApp {
         addr
     }
 }
+
+/// A one-time form token as the ledger page writes into its forms' action URLs (any fresh
+/// value works: the server records it when the form books).
+pub fn form_token() -> String {
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(1);
+    format!("test-{}", NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed))
+}
+
+/// The one-time token in the first action URL of `page` that starts with `action` (e.g.
+/// `/zones/3/ledger?form=`).
+pub fn token_in(page: &str, action: &str) -> String {
+    let at = page.find(action).unwrap_or_else(|| panic!("no form posting to {action}")) + action.len();
+    page[at..].chars().take_while(|c| c.is_ascii_alphanumeric() || *c == '-' || *c == '_').collect()
+}

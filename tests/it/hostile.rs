@@ -117,7 +117,7 @@ fn multipart(zone: i64, csv: &str) -> Request<Body> {
     let body = format!(
         "--{boundary}\r\nContent-Disposition: form-data; name=\"file\"; filename=\"x.csv\"\r\nContent-Type: text/csv\r\n\r\n{csv}\r\n--{boundary}--\r\n"
     );
-    Request::post(format!("/zones/{zone}/ledger/import"))
+    Request::post(format!("/zones/{zone}/ledger/import?form={}", crate::helpers::form_token()))
         .header(header::CONTENT_TYPE, format!("multipart/form-data; boundary={boundary}"))
         .body(Body::from(body))
         .unwrap()

@@ -2,7 +2,7 @@
 //! database refuses changes to booked rows, reversals net to zero, CSV imports are all or
 //! nothing, concurrent writers each book exactly once, and realized returns match references.
 
-use crate::helpers::{TestApp, test_app};
+use crate::helpers::{TestApp, test_app, token_in};
 use axum::body::Body;
 use axum::http::{Request, StatusCode, header};
 use pilot_ledger::auth::Role;
@@ -243,7 +243,7 @@ fn multipart(name: &str, csv: &str) -> Request<Body> {
 
 pub async fn import(t: &TestApp, zone: i64, name: &str, csv: &str) -> crate::helpers::Answer {
     let mut req = multipart(name, csv);
-    *req.uri_mut() = format!("/zones/{zone}/ledger/import").parse().unwrap();
+    *req.uri_mut() = format!("/zones/{zone}/ledger/import?form={}", crate::helpers::form_token()).parse().unwrap();
     t.send(req).await
 }
 
@@ -276,7 +276,7 @@ async fn csv_import_is_all_or_nothing_and_once_only() {
     assert_eq!(n, 1000);
     let again = import(&t, z.id, "march-copy.csv", &good).await;
     assert_eq!(again.status, StatusCode::CONFLICT);
-    assert!(again.text.contains("already imported"));
+    assert!(again.text.contains("the same rows as import 1, imported at "), "{}", again.text);
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
     assert_eq!(n, 1000);
 
@@ -339,10 +339,8 @@ async fn eight_writers_book_four_thousand_entries_exactly_once() {
     let amounts: Vec<String> =
         sqlx::query_scalar("SELECT amount FROM ledger_entries").fetch_all(&t.pool).await.unwrap();
     assert_eq!(amounts.len(), 4000, "each booking present exactly once");
-    let keys: i64 = sqlx::query_scalar("SELECT COUNT(DISTINCT idempotency_key) FROM ledger_entries")
-        .fetch_one(&t.pool)
-        .await
-        .unwrap();
+    let keys: i64 =
+        sqlx::query_scalar("SELECT COUNT(DISTINCT entry_id) FROM idempotency_keys").fetch_one(&t.pool).await.unwrap();
     assert_eq!(keys, 4000);
     let booked: Decimal = amounts.iter().map(|a| Decimal::from_str(a).unwrap()).sum();
     assert_eq!(booked, sent);
@@ -404,7 +402,7 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
         "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence";
     // 40,000 rows, about 2.6 MB: more than the 2 MiB other requests may carry.
     let rows: Vec<String> = (0..40_000)
-        .map(|i| format!("2025-{:02},saving,Energy,direct,{},,,,,meter M1 row {i}", i % 12 + 1, i % 50))
+        .map(|i| format!("2025-{:02},saving,Energy,direct,{},,,,,meter M1 row {i}", i % 12 + 1, i % 50 + 1))
         .collect();
     let csv = format!("{header}\n{}\n", rows.join("\n"));
     assert!(csv.len() > 2 * 1024 * 1024);
@@ -412,7 +410,8 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
     assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", &a.text[..a.text.len().min(400)]);
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
     assert_eq!(n, 40_000);
-    // Quantities 0..49 repeat 800 times: 800 x 1,225 = 980,000 kWh, x 0.20 EUR/kWh = 196,000 EUR.
+    // Quantities 1..50 (a direct saving is more than zero) repeat 800 times: 800 x 1,275 =
+    // 1,020,000 kWh, x 0.20 EUR/kWh = 204,000 EUR.
     let (amount, quantity, entries): (String, String, i64) =
         sqlx::query_as("SELECT amount, quantity, entries FROM ledger_totals WHERE zone_id = ? AND item = ?")
             .bind(z.id)
@@ -420,7 +419,7 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
             .fetch_one(&t.pool)
             .await
             .unwrap();
-    assert_eq!((amount.as_str(), quantity.as_str(), entries), ("196000", "980000", 40_000));
+    assert_eq!((amount.as_str(), quantity.as_str(), entries), ("204000", "1020000", 40_000));
 
     // Beyond the import limit the upload is refused before anything is read.
     let huge = format!("{header}\n{}", "2025-01,saving,Energy,direct,1,,,,,x\n".repeat(500_000));
@@ -429,4 +428,472 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
     assert_eq!(a.status, StatusCode::PAYLOAD_TOO_LARGE);
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
     assert_eq!(n, 40_000);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Ledger rules (issue 11, point 5)
+// ---------------------------------------------------------------------------------------------
+
+/// The portfolio's realization of a zone, by code.
+async fn portfolio_realization(t: &TestApp, code: &str) -> Value {
+    let p = t.get("/api/v1/portfolio").await.json();
+    let row = p["zones"].as_array().unwrap().iter().find(|r| r["code"] == code).unwrap().clone();
+    row["realization_to_date"].clone()
+}
+
+fn rate(v: &Value) -> f64 {
+    v.as_str().unwrap_or_else(|| panic!("rate string expected: {v}")).parse().unwrap()
+}
+
+#[tokio::test]
+async fn a_reversed_later_booking_does_not_stretch_the_elapsed_months() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "ELP-1").await;
+    // Hand arithmetic: the Energy driver expects 200,000 kWh a year x 0.20 EUR/kWh / 12 =
+    // 3,333.3333 EUR a month (the schedule rounds each month to 4 places) from go-live in
+    // month 1 (2025-02); month 0 (2025-01) expects nothing. Booked: 15,000 kWh in 2025-02 and
+    // in 2025-03 = 3,000 EUR each. Three months elapsed: 6,000 / 6,666.6666 = 0.900000009
+    // (90.00 %).
+    for period in ["2025-02", "2025-03"] {
+        assert_eq!(book(&t, z.id, direct(z.energy, period, "15000")).await.status, StatusCode::CREATED);
+    }
+    let expected = 6000.0 / 6666.6666;
+    let realized = || async { t.get(&format!("/api/v1/zones/{}/ledger", z.id)).await.json()["realized"].clone() };
+    let before = realized().await;
+    assert_eq!(before["elapsed_months"], 3);
+    assert!((rate(&before["savings_realization"]) - expected).abs() < 1e-12, "{before}");
+    assert!((rate(&portfolio_realization(&t, "ELP-1").await) - expected).abs() < 1e-12);
+
+    // A booking in 2025-06, then its reversal: on today's code the window stretched to six
+    // months (6,000 / 16,666.6665 = 36.00 %) on both pages.
+    let late = book(&t, z.id, direct(z.energy, "2025-06", "15000")).await.json();
+    let late_id = late["entry"]["id"].as_i64().unwrap();
+    let rev = t
+        .post_json(&format!("/api/v1/zones/{}/ledger/{late_id}/reverse", z.id), r#"{"evidence": "wrong month"}"#)
+        .await;
+    assert_eq!(rev.status, StatusCode::CREATED, "{}", rev.text);
+    let after = realized().await;
+    assert_eq!(after["elapsed_months"], 3, "{after}");
+    assert_eq!(dec(&after["savings_expected_to_date"]), Decimal::from_str("6666.6666").unwrap());
+    assert!((rate(&after["savings_realization"]) - expected).abs() < 1e-12, "{after}");
+    assert!((rate(&portfolio_realization(&t, "ELP-1").await) - expected).abs() < 1e-12, "the portfolio agrees");
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    assert!(page.text.contains("(3 months booked)") && page.text.contains(">90.00 %<"), "{}", page.text);
+
+    // Positive control: a live booking in 2025-06 does extend the window to six months:
+    // expected 5 x 3,333.3333 = 16,666.6665, measured 9,000: 54.00 %.
+    assert_eq!(book(&t, z.id, direct(z.energy, "2025-06", "15000")).await.status, StatusCode::CREATED);
+    let live = realized().await;
+    assert_eq!(live["elapsed_months"], 6);
+    assert!((rate(&live["savings_realization"]) - 9000.0 / 16666.6665).abs() < 1e-12, "{live}");
+    assert!((rate(&portfolio_realization(&t, "ELP-1").await) - 9000.0 / 16666.6665).abs() < 1e-12);
+}
+
+#[tokio::test]
+async fn direct_savings_are_more_than_zero_and_normalized_ones_may_be_negative() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "SGN-1").await;
+    let refusal = "an avoided quantity, more than zero: a period that did worse than its baseline is booked with \
+                   the normalized method; a wrong entry is corrected by reversal";
+    for q in ["0", "-5", "-0.01"] {
+        let a = book(&t, z.id, direct(z.energy, "2025-03", q)).await;
+        assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{q}: {}", a.text);
+        assert_eq!(a.json()["fields"], json!([{"field": "quantity", "message": refusal}]), "{q}");
+    }
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 0);
+    // Positive control: the smallest positive quantity is a saving.
+    assert_eq!(book(&t, z.id, direct(z.energy, "2025-03", "0.01")).await.status, StatusCode::CREATED);
+    // A normalized saving may be negative (hand arithmetic): 41.5 kWh per unit x 2,900 units =
+    // 120,350 kWh adjusted baseline; 124,000 kWh metered: -3,650 kWh x 0.20 EUR/kWh = -730.00 EUR.
+    let body = json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-04",
+        "baseline_intensity": "41.5", "reporting_volume": "2900", "measured_consumption": "124000", "evidence": "main meter"});
+    let a = book(&t, z.id, body).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    assert_eq!(dec(&a.json()["entry"]["quantity"]), Decimal::from(-3650));
+    assert_eq!(dec(&a.json()["entry"]["amount"]), Decimal::from(-730));
+    // The page shows it with a minus sign.
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    assert!(page.text.contains("<td class=\"num\">-730.00</td>"), "{}", page.text);
+    assert!(page.text.contains("<td class=\"num\">-3,650</td>"), "{}", page.text);
+}
+
+#[tokio::test]
+async fn an_implausible_booking_needs_an_explicit_confirmation() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "PLS-1").await;
+    // Threshold (our rule, README): 10 x the high quantity per month, 10 x 250,000 / 12 =
+    // 208,333.33 kWh.
+    let how = "if it is right, tick \"confirm this implausible figure\" and book again (API: \
+               \"confirm_implausible\": true; CSV: a confirm_implausible column with yes)";
+    let a = book(&t, z.id, direct(z.energy, "2025-03", "99999999999")).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+    let message = format!(
+        "implausible: 99,999,999,999.00 kWh is more than 10 times the driver's monthly high quantity \
+         (10 × 250,000.00 / 12 = 208,333.33 kWh); {how}"
+    );
+    assert_eq!(a.json()["fields"], json!([{"field": "quantity", "message": message}]));
+    let a = book(&t, z.id, direct(z.energy, "2025-03", "208333.34")).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "just above the threshold");
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 0);
+    // Positive control: at the threshold it books without a confirmation, and is not flagged.
+    let a = book(&t, z.id, direct(z.energy, "2025-03", "208333.33")).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    assert_eq!(a.json()["entry"]["implausible_confirmed"], false);
+    // Confirmed, the implausible figure books; the entry and the audit trail keep the confirmation.
+    let mut body = direct(z.energy, "2025-04", "99999999999");
+    body["confirm_implausible"] = json!(true);
+    let a = book(&t, z.id, body).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    let id = a.json()["entry"]["id"].as_i64().unwrap();
+    assert_eq!(a.json()["entry"]["implausible_confirmed"], true);
+    let flag: i64 = sqlx::query_scalar("SELECT implausible_confirmed FROM ledger_entries WHERE id = ?")
+        .bind(id)
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
+    assert_eq!(flag, 1);
+    let detail: String =
+        sqlx::query_scalar("SELECT detail FROM audit_log WHERE action = 'ledger.book' AND subject = ?")
+            .bind(format!("entry {id}"))
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+    assert!(detail.ends_with("(beyond the plausibility threshold, confirmed by the author)"), "{detail}");
+
+    // Spending: a one-off above 10 x its amount (10 x 30,000.00 = 300,000.00), a recurring
+    // item above 10 x its monthly amount (10 x 9,600.00 / 12 = 8,000.00).
+    let spend = |item: i64, amount: &str| json!({"kind": "spending", "item": item, "period": "2025-03", "amount": amount, "evidence": "invoice"});
+    let a = book(&t, z.id, spend(z.sensors, "300000.01")).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    let message = format!(
+        "implausible: 300,000.01 is more than 10 times the cost item's amount (10 × 30,000.00 = 300,000.00); {how}"
+    );
+    assert_eq!(a.json()["fields"], json!([{"field": "amount", "message": message}]));
+    let a = book(&t, z.id, spend(z.software, "8000.01")).await;
+    assert_eq!(a.json()["fields"][0]["field"], "amount");
+    assert!(a.json()["fields"][0]["message"].as_str().unwrap().contains("(10 × 9,600.00 / 12 = 8,000.00)"));
+    assert_eq!(book(&t, z.id, spend(z.sensors, "300000")).await.status, StatusCode::CREATED);
+    assert_eq!(book(&t, z.id, spend(z.software, "8000")).await.status, StatusCode::CREATED);
+
+    // The form: the first refusal shows the confirmation checkbox; ticked, it books.
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    assert!(!page.text.contains("id=\"confirm_implausible\""), "no checkbox before a refusal");
+    let action = format!("/zones/{}/ledger?form=", z.id);
+    let form =
+        format!("kind=saving&method=direct&item={}&period=2025-05&quantity=99999999999&evidence=meter", z.energy);
+    let a = t.post_form(&format!("{action}{}", token_in(&page.text, &action)), &form).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("id=\"confirm_implausible\"") && a.text.contains("208,333.33 kWh"), "{}", a.text);
+    let again = format!("{action}{}", token_in(&a.text, &action));
+    let a = t.post_form(&again, &format!("{form}&confirm_implausible=on")).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    // CSV: the optional column confirms a row.
+    let header =
+        "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence";
+    let csv = format!("{header},confirm_implausible\n2025-06,saving,Energy,direct,99999999999,,,,,meter,\n");
+    let a = import(&t, z.id, "big.csv", &csv).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("line 2, column quantity"), "{}", a.text);
+    let csv = format!("{header},confirm_implausible\n2025-06,saving,Energy,direct,99999999999,,,,,meter,yes\n");
+    assert_eq!(import(&t, z.id, "big.csv", &csv).await.status, StatusCode::SEE_OTHER);
+    let confirmed: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries WHERE implausible_confirmed = 1")
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
+    assert_eq!(confirmed, 3, "API, form and CSV");
+}
+
+async fn book_keyed(t: &TestApp, path: &str, key: &[u8], body: &Value) -> crate::helpers::Answer {
+    let req = Request::post(path)
+        .header(header::CONTENT_TYPE, "application/json")
+        .header("idempotency-key", axum::http::HeaderValue::from_bytes(key).unwrap())
+        .body(Body::from(body.to_string()))
+        .unwrap();
+    t.send(req).await
+}
+
+#[tokio::test]
+async fn an_idempotency_key_belongs_to_its_user_and_its_request() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "IDK-1").await;
+    let other = zone_with_baseline(&t.as_role(Some(Role::Lead)), "IDK-2").await;
+    let path = format!("/api/v1/zones/{}/ledger", z.id);
+    let body = direct(z.energy, "2025-03", "100");
+    let entries = || async {
+        sqlx::query_scalar::<_, i64>("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap()
+    };
+    let first = book_keyed(&t, &path, b"k-1", &body).await;
+    assert_eq!(first.status, StatusCode::CREATED);
+    let id = first.json()["entry"]["id"].as_i64().unwrap();
+    // Positive control: the same request again replays the first entry.
+    let replay = book_keyed(&t, &path, b"k-1", &body).await;
+    assert_eq!(replay.status, StatusCode::OK);
+    assert_eq!(replay.json()["entry"]["id"], id);
+    // The same key with another body, or on another zone's URL: 409, nothing booked.
+    let conflict = format!(
+        "the Idempotency-Key \"k-1\" was already used by you for a different request (another body or URL), which \
+         booked entry {id}; nothing was booked: use a new key for a new booking"
+    );
+    let a = book_keyed(&t, &path, b"k-1", &direct(z.energy, "2025-03", "101")).await;
+    assert_eq!(a.status, StatusCode::CONFLICT);
+    assert_eq!(a.json()["error"], conflict);
+    let a =
+        book_keyed(&t, &format!("/api/v1/zones/{}/ledger", other.id), b"k-1", &direct(other.energy, "2025-03", "100"))
+            .await;
+    assert_eq!(a.status, StatusCode::CONFLICT);
+    assert_eq!(a.json()["error"], conflict);
+    assert_eq!(entries().await, 1);
+    // The key belongs to its user: the admin's "k-1" is a booking of its own.
+    let admin = t.as_role(Some(Role::Admin));
+    let a = book_keyed(&admin, &path, b"k-1", &body).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    assert_ne!(a.json()["entry"]["id"], id);
+    assert_eq!(entries().await, 2);
+    // A key that is not printable ASCII, or longer than 100 characters: 400 naming the header.
+    let rule = "1 to 100 printable ASCII characters (letters, digits, punctuation, space)";
+    for key in ["caf\u{e9}".as_bytes(), "tab\there".as_bytes(), &[b'x'; 101][..]] {
+        let a = book_keyed(&t, &path, key, &direct(z.energy, "2025-04", "5")).await;
+        assert_eq!(a.status, StatusCode::BAD_REQUEST, "{key:?}: {}", a.text);
+        assert_eq!(a.json()["fields"], json!([{"field": "Idempotency-Key", "message": rule}]));
+    }
+    assert_eq!(entries().await, 2);
+    // Positive control: 100 characters with a space inside are a key.
+    let long = format!("a b{}", "c".repeat(97));
+    assert_eq!(
+        book_keyed(&t, &path, long.as_bytes(), &direct(z.energy, "2025-04", "5")).await.status,
+        StatusCode::CREATED
+    );
+}
+
+#[tokio::test]
+async fn a_form_submitted_twice_books_once() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "TWC-1").await;
+    let count = || async {
+        sqlx::query_scalar::<_, i64>("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap()
+    };
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    let action = format!("/zones/{}/ledger?form=", z.id);
+    let url = format!("{action}{}", token_in(&page.text, &action));
+    let form = format!("kind=saving&method=direct&item={}&period=2025-03&quantity=120&evidence=meter", z.energy);
+    let first = t.post_form(&url, &form).await;
+    assert_eq!(first.status, StatusCode::SEE_OTHER);
+    assert_eq!(first.location.as_deref(), Some(format!("/zones/{}/ledger#entries", z.id).as_str()));
+    let id: i64 = sqlx::query_scalar("SELECT MAX(id) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    // The double click: the same token again books nothing and shows the entry already booked.
+    let second = t.post_form(&url, &form).await;
+    assert_eq!(second.status, StatusCode::SEE_OTHER);
+    let there = format!("/zones/{}/ledger?already=entry-{id}#entries", z.id);
+    assert_eq!(second.location.as_deref(), Some(there.as_str()));
+    assert_eq!(count().await, 1);
+    let shown = t.get(&there).await;
+    assert!(
+        shown.text.contains("that form was already submitted: it booked entry #")
+            && shown.text.contains(&format!("entry #{id}; nothing was booked again.")),
+        "{}",
+        shown.text
+    );
+    // Without its token the form is refused (it did not come from the page).
+    let a = t.post_form(&format!("/zones/{}/ledger", z.id), &form).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("its one-time token is missing"));
+    assert_eq!(count().await, 1);
+    // Positive control: a fresh page's token books again.
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    assert_eq!(
+        t.post_form(&format!("{action}{}", token_in(&page.text, &action)), &form).await.status,
+        StatusCode::SEE_OTHER
+    );
+    assert_eq!(count().await, 2);
+    // The reversal form twice: one reversal, the second submit shows it.
+    let reverse = format!("/zones/{}/ledger/{id}/reverse?form=", z.id);
+    let url = format!("{reverse}{}", token_in(&page.text, &reverse));
+    assert_eq!(t.post_form(&url, "evidence=counted+twice").await.status, StatusCode::SEE_OTHER);
+    let again = t.post_form(&url, "evidence=counted+twice").await;
+    assert_eq!(again.status, StatusCode::SEE_OTHER);
+    assert!(again.location.unwrap().contains("?already=entry-"), "the second submit is not a 409");
+    assert_eq!(count().await, 3);
+    // The import form twice: booked once, even with "import again" ticked the second time.
+    let import_action = format!("/zones/{}/ledger/import?form=", z.id);
+    let token = token_in(&page.text, &import_action);
+    let csv = "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+               2025-05,saving,Energy,direct,10,,,,,meter\n";
+    assert_eq!(import_with(&t, z.id, &token, csv, false).await.status, StatusCode::SEE_OTHER);
+    let again = import_with(&t, z.id, &token, csv, true).await;
+    assert_eq!(again.status, StatusCode::SEE_OTHER);
+    assert!(again.location.unwrap().contains("?already=import-1"));
+    assert_eq!(count().await, 4);
+}
+
+/// Import with a given form token and the "import again" checkbox.
+async fn import_with(t: &TestApp, zone: i64, token: &str, csv: &str, again: bool) -> crate::helpers::Answer {
+    let boundary = "----pilot-ledger-test-boundary";
+    let mut body = format!(
+        "--{boundary}\r\nContent-Disposition: form-data; name=\"file\"; filename=\"month.csv\"\r\nContent-Type: text/csv\r\n\r\n{csv}\r\n"
+    );
+    if again {
+        body.push_str(&format!("--{boundary}\r\nContent-Disposition: form-data; name=\"again\"\r\n\r\non\r\n"));
+    }
+    body.push_str(&format!("--{boundary}--\r\n"));
+    let req = Request::post(format!("/zones/{zone}/ledger/import?form={token}"))
+        .header(header::CONTENT_TYPE, format!("multipart/form-data; boundary={boundary}"))
+        .body(Body::from(body))
+        .unwrap();
+    t.send(req).await
+}
+
+#[tokio::test]
+async fn a_csv_file_is_the_same_file_whatever_its_line_ends_spaces_or_column_order() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "SAM-1").await;
+    let count = || async {
+        sqlx::query_scalar::<_, i64>("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap()
+    };
+    let original = "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+                    2025-03,saving,Energy,direct,120,,,,,meter M1\n\
+                    2025-03,spending,Software,,,,,,800,invoice 7\n";
+    assert_eq!(
+        import_with(&t, z.id, &crate::helpers::form_token(), original, false).await.status,
+        StatusCode::SEE_OTHER
+    );
+    let (at, by): (String, String) =
+        sqlx::query_as("SELECT imported_at, imported_by FROM ledger_imports").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(by, "t-controller");
+    let crlf = original.replace('\n', "\r\n");
+    let spaces = original.replace(",meter M1\n", ",meter M1  \n").replace("invoice 7\n", "invoice 7 ");
+    let reordered = "evidence,amount,measured_consumption,reporting_volume,baseline_intensity,quantity,method,item,kind,period\n\
+                     meter M1,,,,,120,direct,Energy,saving,2025-03\n\
+                     invoice 7,800,,,,,,Software,spending,2025-03\n";
+    let message = format!(
+        "this file has the same rows as import 1, imported at {at} by t-controller (line ends, spaces around cells, \
+         the final newline and the column order do not count); nothing was booked. To book it again anyway, tick \
+         \"import again although the same rows were imported\""
+    );
+    for (what, copy) in [("CRLF", crlf.as_str()), ("trailing spaces", spaces.as_str()), ("reordered", reordered)] {
+        let a = import_with(&t, z.id, &crate::helpers::form_token(), copy, false).await;
+        assert_eq!(a.status, StatusCode::CONFLICT, "{what}");
+        assert!(a.text.contains(&format!("Not booked: {}", message.replace('"', "&#34;"))), "{what}: {}", a.text);
+        assert_eq!(count().await, 2, "{what}");
+    }
+    // Positive control: one row different is another file.
+    let other = original.replace(",120,", ",121,");
+    assert_eq!(import_with(&t, z.id, &crate::helpers::form_token(), &other, false).await.status, StatusCode::SEE_OTHER);
+    assert_eq!(count().await, 4);
+    // The explicit override books the copy anyway, and the audit trail says so.
+    let a = import_with(&t, z.id, &crate::helpers::form_token(), &crlf, true).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    assert_eq!(count().await, 6);
+    let repeats: Option<i64> =
+        sqlx::query_scalar("SELECT repeats_import_id FROM ledger_imports ORDER BY id DESC LIMIT 1")
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+    assert_eq!(repeats, Some(1));
+    let detail: String =
+        sqlx::query_scalar("SELECT detail FROM audit_log WHERE action = 'ledger.import' ORDER BY id DESC LIMIT 1")
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+    assert_eq!(
+        detail,
+        format!("month.csv: 2 rows; the same rows as import 1 of {at} by t-controller, booked again on purpose")
+    );
+    // A byte-identical repeat can be overridden too (the stored content hash stays unique).
+    assert_eq!(
+        import_with(&t, z.id, &crate::helpers::form_token(), original, true).await.status,
+        StatusCode::SEE_OTHER
+    );
+    assert_eq!(count().await, 8);
+}
+
+#[tokio::test]
+async fn a_payment_date_dates_the_spending_in_xnpv() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "PAY-1").await;
+    let spend = |period: &str, paid_on: &str| json!({"kind": "spending", "item": z.sensors, "period": period, "amount": "30000", "paid_on": paid_on, "evidence": "invoice"});
+    let a = book(&t, z.id, spend("2025-01", "2025-02-03")).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(
+        a.json()["fields"],
+        json!([{"field": "paid_on", "message": "a day of the booked month 2025-01 (YYYY-MM-DD)"}])
+    );
+    let a = book(&t, z.id, spend("2025-01", "12.01.2025")).await;
+    assert_eq!(a.json()["fields"], json!([{"field": "paid_on", "message": "a date as YYYY-MM-DD, e.g. 2025-12-12"}]));
+    let mut saving = direct(z.energy, "2025-12", "100000");
+    saving["paid_on"] = json!("2025-12-12");
+    let a = book(&t, z.id, saving).await;
+    assert_eq!(
+        a.json()["fields"],
+        json!([{"field": "paid_on", "message": "only spending carries a payment date: leave it empty for a saving"}])
+    );
+    // A payment date later this month than today is in the future (only checkable before the
+    // month's last day).
+    let today = pilot_ledger::auth::Clock::now(&*t.clock).date();
+    if let Some(tomorrow) = today.next_day().filter(|d| d.month() == today.month()) {
+        let period = format!("{:04}-{:02}", today.year(), u8::from(today.month()));
+        let a = book(&t, z.id, spend(&period, &tomorrow.to_string())).await;
+        let message = format!("{tomorrow} is in the future; the latest payment date is {today}");
+        assert_eq!(a.json()["fields"], json!([{"field": "paid_on", "message": message}]));
+    }
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 0);
+
+    // A tiny ledger: 30,000 EUR paid on 2025-01-12, 100,000 kWh x 0.20 = 20,000 EUR saved in
+    // 2025-12 (dated at the month's end, 2025-12-31).
+    let a = book(&t, z.id, spend("2025-01", "2025-01-12")).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    assert_eq!(a.json()["entry"]["paid_on"], "2025-01-12");
+    assert_eq!(book(&t, z.id, direct(z.energy, "2025-12", "100000")).await.status, StatusCode::CREATED);
+    // Spreadsheet XNPV convention (actual/365 from the first date; the public XNPV function
+    // reference), by hand: 2025-01-12 to 2025-12-31 is 19 + 334 = 353 days.
+    let expected = -30000.0 + 20000.0 / 1.1f64.powf(353.0 / 365.0);
+    let r = t.get(&format!("/api/v1/zones/{}/ledger", z.id)).await.json()["realized"].clone();
+    let xnpv: f64 = r["xnpv"].as_str().unwrap().parse().unwrap();
+    assert!((xnpv - expected).abs() < 1e-6, "{xnpv} vs {expected}");
+    // Control: dated at the month's end (2025-01-31, 334 days) the XNPV differs.
+    let month_end = -30000.0 + 20000.0 / 1.1f64.powf(334.0 / 365.0);
+    assert!((xnpv - month_end).abs() > 10.0);
+    // The export carries the payment date.
+    let csv = t.get(&format!("/zones/{}/ledger.csv", z.id)).await.text;
+    assert!(csv.lines().nth(1).unwrap().contains(",invoice,2025-01-12,"), "{csv}");
+}
+
+#[tokio::test]
+async fn an_ambiguous_realized_xirr_lists_every_root() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "AMB-1").await;
+    // -1,600 on 2025-01-31 (month end), +10,000 on 2025-07-31 (50,000 kWh x 0.20, month end),
+    // -10,000 paid on 2026-01-28: equal gaps of 181 days. By hand (actual/365): the XNPV is
+    // -1,600 + 10,000 v - 10,000 v^2 with v = (1 + r)^(-181/365), zero at v = 0.2 or 0.8, so
+    // r = 5^(365/181) - 1 or 1.25^(365/181) - 1 (the pump flows of Lorie and Savage, 1955,
+    // from memory; the roots follow from the quadratic whatever their source).
+    let spend = |period: &str, amount: &str, paid_on: &str| json!({"kind": "spending", "item": z.sensors, "period": period, "amount": amount, "paid_on": paid_on, "evidence": "invoice"});
+    assert_eq!(book(&t, z.id, spend("2025-01", "1600", "")).await.status, StatusCode::CREATED);
+    assert_eq!(book(&t, z.id, direct(z.energy, "2025-07", "50000")).await.status, StatusCode::CREATED);
+    assert_eq!(book(&t, z.id, spend("2026-01", "10000", "2026-01-28")).await.status, StatusCode::CREATED);
+    let low = 1.25f64.powf(365.0 / 181.0) - 1.0;
+    let high = 5f64.powf(365.0 / 181.0) - 1.0;
+    let r = t.get(&format!("/api/v1/zones/{}/ledger", z.id)).await.json()["realized"].clone();
+    assert_eq!(r["xirr_ambiguous"], true, "{r}");
+    let roots: Vec<f64> = r["xirr_roots"].as_array().unwrap().iter().map(rate).collect();
+    assert_eq!(roots.len(), 2, "{r}");
+    assert!((roots[0] - low).abs() < 1e-9 && (roots[1] - high).abs() < 1e-9, "{roots:?} vs {low}, {high}");
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    let caution = format!(
+        "Caution: The cash flow changes sign more than once: XIRR is ambiguous (roots {}, {}); let XNPV decide.",
+        pilot_ledger::domain::Percent(low),
+        pilot_ledger::domain::Percent(high)
+    );
+    assert!(page.text.contains(&caution), "{caution}\n{}", page.text);
+    // Control: one sign change is not ambiguous (the first two flows alone).
+    let z2 = zone_with_baseline(&t.as_role(Some(Role::Lead)), "AMB-2").await;
+    let spend2 =
+        json!({"kind": "spending", "item": z2.sensors, "period": "2025-01", "amount": "1600", "evidence": "invoice"});
+    assert_eq!(book(&t, z2.id, spend2).await.status, StatusCode::CREATED);
+    assert_eq!(book(&t, z2.id, direct(z2.energy, "2025-07", "50000")).await.status, StatusCode::CREATED);
+    let r = t.get(&format!("/api/v1/zones/{}/ledger", z2.id)).await.json()["realized"].clone();
+    assert_eq!(r["xirr_ambiguous"], false);
+    assert_eq!(r["xirr_roots"].as_array().unwrap().len(), 1);
 }

@@ -81,13 +81,14 @@ async fn a_form_booking_reads_back_in_the_site_format() {
     let t = test_app(false).await;
     let z = zone_with_baseline(&t, "NUM-2").await;
     let c = t.as_role(Some(Role::Controller));
-    let path = format!("/zones/{}/ledger", z.id);
+    // Each submit carries a fresh one-time form token, as the page writes it.
+    let path = || format!("/zones/{}/ledger?form={}", z.id, crate::helpers::form_token());
     let form = |q: &str| {
         format!("kind=saving&method=direct&item={}&period=2025-03&quantity={q}&evidence=sub-meter+M3", z.energy)
     };
 
     // Decimal-point site: `1.250,75` is refused, naming the field.
-    let a = c.post_form(&path, &form("1.250%2C75")).await;
+    let a = c.post_form(&path(), &form("1.250%2C75")).await;
     refused_beside(
         &a,
         "quantity",
@@ -98,16 +99,16 @@ async fn a_form_booking_reads_back_in_the_site_format() {
 
     set_number_format(&t, "decimal_comma").await;
     // Decimal-comma site: a decimal point with comma grouping is refused (the control follows).
-    let a = c.post_form(&path, &form("1%2C250.75")).await;
+    let a = c.post_form(&path(), &form("1%2C250.75")).await;
     refused_beside(&a, "quantity", "&#34;1,250.75&#34; is written with a decimal point; this site writes digits");
     assert_eq!(entries(&t).await, 0);
-    let booked = c.post_form(&path, &form("1.250%2C75")).await;
+    let booked = c.post_form(&path(), &form("1.250%2C75")).await;
     assert_eq!(booked.status, StatusCode::SEE_OTHER, "{}", booked.text);
 
     let api = c.get(&format!("/api/v1/zones/{}/ledger", z.id)).await.json();
     assert_eq!(api["entries"][0]["quantity"], "1250.75");
     assert_eq!(api["entries"][0]["amount"], "250.15");
-    let page = c.get(&path).await;
+    let page = c.get(&format!("/zones/{}/ledger", z.id)).await;
     assert!(page.text.contains("<td class=\"num\">1.250,75</td>"), "quantity in the site format");
     assert!(page.text.contains("<td class=\"num\">250,15</td>"), "amount in the site format");
 }
@@ -153,7 +154,7 @@ async fn a_decimal_comma_csv_uses_semicolons_and_reads_back() {
     // The export writes the same format, ungrouped, so that the importer reads it back.
     let csv = c.get(&format!("/zones/{}/ledger.csv", z.id)).await.text;
     assert!(csv.starts_with("entry;zone;period;kind;item;method;quantity;"), "{csv}");
-    assert!(csv.contains(";saving;") && csv.contains(";direct;1250,75;;;;;meter;0,2;"), "{csv}");
+    assert!(csv.contains(";saving;") && csv.contains(";direct;1250,75;;;;;meter;;;0,2;"), "{csv}");
     assert!(csv.contains(";12000,5;invoice;"), "{csv}");
 }
 
