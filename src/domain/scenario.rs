@@ -218,7 +218,7 @@ mod tests {
             err.0,
             vec![crate::domain::FieldError {
                 field: "site.hurdle_rate".into(),
-                message: "\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09 or 0.090".into()
+                message: "\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09".into()
             }]
         );
     }
