@@ -2,7 +2,7 @@
 //! the translation into the finance engine's pure input.
 
 use super::de::{flexible_bool, string_or_number};
-use super::{FieldErrors, NumberFormat, parse_count, required_text};
+use super::{FieldErrors, NumberFormat, read_count, required_text};
 use crate::finance::schedule::{CaseInput, CostInput as FinCost, CostTiming, DriverInput as FinDriver, TaxInput};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
@@ -175,10 +175,10 @@ impl CaseHeader {
     pub fn parse(input: &CaseHeaderInput, style: RateStyle) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let label = e.take("label", required_text(&input.label, 80));
-        let horizon = e.take("horizon_months", parse_count(&input.horizon_months, 1, 240));
+        let horizon = e.take("horizon_months", read_count(&input.horizon_months, 1, 240));
         let start = e.take("start_month", Month::parse(&input.start_month));
-        let go_live = e.take("go_live_offset", parse_count(&input.go_live_offset, 0, 239));
-        let ramp = e.take("ramp_up_months", parse_count(&input.ramp_up_months, 0, 120));
+        let go_live = e.take("go_live_offset", read_count(&input.go_live_offset, 0, 239));
+        let ramp = e.take("ramp_up_months", read_count(&input.ramp_up_months, 0, 120));
         let p = e.take(
             "success_probability",
             style.parse(&input.success_probability).and_then(|p| {
@@ -333,7 +333,7 @@ impl NewCostItem {
         let amount = e.take("amount", f.read(&input.amount).and_then(positive_money(f)));
         let month = e.take(
             "month_offset",
-            parse_count(
+            read_count(
                 if input.month_offset.trim().is_empty() { "0" } else { &input.month_offset },
                 0,
                 horizon.saturating_sub(1),

@@ -30,7 +30,7 @@ pub use ledger::{
     Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key, item_key,
 };
 pub use money::{Money, Percent, money, pct, quantity};
-pub use numbers::{NumberFormat, read, read_percent};
+pub use numbers::{NumberFormat, read, read_count, read_percent, read_whole};
 pub use portfolio::{
     BaseFigures, BudgetChoice, CaseParts, LedgerTotals, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
     RankBy, Standing, ValueBasis, ZoneBase, ZoneData, build_portfolio, calibration_of, zone_base,
@@ -150,14 +150,6 @@ const CONTROL: &str = "contains a control character (such as NUL); type plain te
 /// truncates strings in SQLite's C interface and in many tools that read an export.
 fn has_control(v: &str) -> bool {
     v.chars().any(|c| c.is_control() && !matches!(c, '\t' | '\n' | '\r'))
-}
-
-/// Parse a whole number within `min..=max`.
-pub(crate) fn parse_count(value: &str, min: u32, max: u32) -> Result<u32, String> {
-    match value.trim().parse::<u32>() {
-        Ok(n) if (min..=max).contains(&n) => Ok(n),
-        _ => Err(format!("a whole number from {min} to {max}")),
-    }
 }
 
 /// Lenient deserializers: JSON bodies may give numbers as strings or numbers, and flags as

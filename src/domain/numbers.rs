@@ -17,7 +17,6 @@
 use rust_decimal::{Decimal, RoundingStrategy};
 use serde::Serialize;
 use std::future::Future;
-use std::str::FromStr;
 
 /// How numbers are written and read.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize)]
@@ -131,7 +130,9 @@ impl NumberFormat {
             // Say so when the text is a well-formed number of the other site format.
             let written_other = self
                 .other()
-                .filter(|o| !matches!(reason, Refusal::Ambiguous(_)) && t.contains(o.decimal()))
+                .filter(|o| {
+                    !matches!(reason, Refusal::Ambiguous(_) | Refusal::LeadingZero(_)) && t.contains(o.decimal())
+                })
                 .filter(|o| o.read_strict(t).is_ok());
             match (written_other, reason) {
                 (Some(o), _) => format!(
@@ -151,7 +152,13 @@ impl NumberFormat {
                 (None, Refusal::Grouping) => {
                     format!("{t:?} is not grouped in threes; enter {}", self.accepts())
                 }
-                (None, Refusal::TooLong) => format!("{t:?} has too many digits (at most 28)"),
+                (None, Refusal::LeadingZero(options)) => {
+                    format!("{t:?} is ambiguous here (a group of thousands cannot follow a leading 0): use {options}")
+                }
+                (None, Refusal::TooLong) => format!(
+                    "{t:?} has more digits than can be kept exactly: at most 28 significant digits, 28 after the decimal {}",
+                    if self.decimal() == ',' { "comma" } else { "point" }
+                ),
                 (None, Refusal::NotANumber) => format!("not a number: {t:?}; enter {}", self.accepts()),
             }
         })
@@ -172,6 +179,8 @@ impl NumberFormat {
         if (body.contains(self.decimal()) && frac.is_empty()) || !frac.chars().all(|c| c.is_ascii_digit()) {
             return Err(Refusal::NotANumber);
         }
+        // Options offered in messages keep the sign typed.
+        let sign = if negative { "-" } else { "" };
         let mut seps = int.chars().filter(|c| !c.is_ascii_digit());
         let digits: String = match seps.next() {
             None if int.is_empty() && frac.is_empty() => return Err(Refusal::NotANumber),
@@ -190,12 +199,28 @@ impl NumberFormat {
                     && tail.len() != 3
                     && !tail.is_empty()
                 {
-                    let mut options = format!("{head}{}{tail}", self.decimal());
-                    // The thousands reading only when its first group is a valid one.
-                    if tail.len() < 3 && head.len() <= 3 {
-                        options.push_str(&format!(" or {head}{sep}{tail:0<3}"));
+                    let mut options = format!("{sign}{head}{}{tail}", self.decimal());
+                    // The thousands reading only when its first group is a valid one (`0,500`
+                    // is not).
+                    if tail.len() < 3 && head.len() <= 3 && !head.starts_with('0') {
+                        options.push_str(&format!(" or {sign}{head}{sep}{tail:0<3}"));
                     }
                     return Err(Refusal::Ambiguous(options));
+                }
+                // `0,500` is no thousands figure: most likely a decimal of the other format.
+                if groups.len() > 1 && groups.first().is_some_and(|g| g.starts_with('0')) {
+                    let whole = groups.concat();
+                    let whole = whole.trim_start_matches('0');
+                    let whole = if whole.is_empty() { "0" } else { whole };
+                    let whole =
+                        if frac.is_empty() { whole.to_string() } else { format!("{whole}{}{frac}", self.decimal()) };
+                    let options = match groups.as_slice() {
+                        [head, tail] if frac.is_empty() => {
+                            format!("{sign}{head}{}{tail} or {sign}{whole}", self.decimal())
+                        }
+                        _ => format!("{sign}{whole}"),
+                    };
+                    return Err(Refusal::LeadingZero(options));
                 }
                 let well_formed = groups.first().is_some_and(|g| (1..=3).contains(&g.len()))
                     && groups.iter().skip(1).all(|g| g.len() == 3);
@@ -205,9 +230,14 @@ impl NumberFormat {
                 groups.concat()
             }
         };
-        let plain =
-            format!("{}{}.{}", if negative { "-" } else { "" }, digits, if frac.is_empty() { "0" } else { frac });
-        Decimal::from_str(&plain).map(|d| d.normalize()).map_err(|_| Refusal::TooLong)
+        // Zeros that change no value are dropped first, so that only significant digits count
+        // against Decimal's 28; `from_str_exact` refuses what `from_str` would round.
+        let digits = digits.trim_start_matches('0');
+        let frac = frac.trim_end_matches('0');
+        let digits = if digits.is_empty() { "0" } else { digits };
+        // No `.0` for a whole number: its scale would cost a digit of the 29 at Decimal::MAX.
+        let plain = if frac.is_empty() { format!("{sign}{digits}") } else { format!("{sign}{digits}.{frac}") };
+        Decimal::from_str_exact(&plain).map(|d| d.normalize()).map_err(|_| Refusal::TooLong)
     }
 
     /// Read a percentage (`8.5` or `8.5 %` means 8.5 %) into a fraction (`0.085`).
@@ -281,12 +311,40 @@ enum Refusal {
     Grouping,
     /// What would be accepted instead.
     Ambiguous(String),
+    /// A grouped number whose first group starts with 0; what would be accepted instead.
+    LeadingZero(String),
+    /// More significant digits than a Decimal holds exactly.
     TooLong,
 }
 
 /// Read `text` in `format`: the one number reader (see the module docs).
 pub fn read(text: &str, format: NumberFormat) -> Result<Decimal, String> {
     format.read(text)
+}
+
+/// Read a whole number in `min..=max` typed as digits only: no sign, no grouping, no decimals,
+/// in every format (counts, scores, weights, seeds: small enough to type ungrouped, and a seed
+/// is an identifier that grouping would only disguise).
+pub fn read_whole(text: &str, min: u64, max: u64) -> Result<u64, String> {
+    let t = text.trim();
+    if t.is_empty() {
+        return Err(format!("required: a whole number from {min} to {max}"));
+    }
+    if !t.chars().all(|c| c.is_ascii_digit()) {
+        return Err(format!(
+            "{t:?} is not a whole number from {min} to {max}: enter digits only (no sign, grouping or decimals)"
+        ));
+    }
+    // Only digits are left, so a failure is a value past u64.
+    match t.parse::<u64>() {
+        Ok(n) if (min..=max).contains(&n) => Ok(n),
+        _ => Err(format!("{t:?} is outside {min} to {max}: enter a whole number from {min} to {max}")),
+    }
+}
+
+/// [`read_whole`] for a count that fits `u32`.
+pub fn read_count(text: &str, min: u32, max: u32) -> Result<u32, String> {
+    read_whole(text, min.into(), max.into()).map(|n| u32::try_from(n).unwrap_or(max))
 }
 
 /// Read a percentage typed in `format` into a fraction.
@@ -404,6 +462,101 @@ mod tests {
             Err("not a number: \"1,5\"; enter a plain decimal: digits with a decimal point and no grouping, e.g. 1250.75"
                 .into())
         );
+    }
+
+    #[test]
+    fn a_leading_zero_group_is_refused_not_read_a_thousand_times_larger() {
+        // Positive controls: a plain leading zero and real thousands are read.
+        assert_eq!(Point.read("0.500"), Ok(dec!(0.5)));
+        assert_eq!(Comma.read("0,250"), Ok(dec!(0.25)));
+        assert_eq!(Point.read("1,500"), Ok(dec!(1500)));
+        assert_eq!(Point.read("0500"), Ok(dec!(500)));
+        assert_eq!(
+            Point.read("0,500"),
+            Err("\"0,500\" is ambiguous here (a group of thousands cannot follow a leading 0): use 0.500 or 500".into())
+        );
+        assert_eq!(
+            Comma.read("0.250"),
+            Err("\"0.250\" is ambiguous here (a group of thousands cannot follow a leading 0): use 0,250 or 250".into())
+        );
+        assert_eq!(
+            Point.read("0 500,000.5"),
+            Err("\"0 500,000.5\" mixes grouping characters; enter digits with a decimal point, grouped in threes by \
+                 comma or space or not at all, e.g. 1,250.75 or 1250.75"
+                .into())
+        );
+        assert_eq!(
+            Point.read("0,500,000.5"),
+            Err("\"0,500,000.5\" is ambiguous here (a group of thousands cannot follow a leading 0): use 500000.5"
+                .into())
+        );
+        // The hint for `0,5` offers no `0,500`.
+        assert_eq!(
+            Point.read("0,5"),
+            Err("\"0,5\" is ambiguous here (groups of thousands have three digits): use 0.5".into())
+        );
+    }
+
+    #[test]
+    fn the_ambiguity_hint_keeps_the_sign() {
+        assert_eq!(
+            Point.read("-1,5"),
+            Err("\"-1,5\" is ambiguous here (groups of thousands have three digits): use -1.5 or -1,500".into())
+        );
+        assert_eq!(
+            Point.read("-0,500"),
+            Err("\"-0,500\" is ambiguous here (a group of thousands cannot follow a leading 0): use -0.500 or -500"
+                .into())
+        );
+        // Positive control: the same text read where it is well formed.
+        assert_eq!(Comma.read("-1,5"), Ok(dec!(-1.5)));
+    }
+
+    #[test]
+    fn more_digits_than_a_decimal_holds_are_refused_not_rounded() {
+        // 28 significant digits are kept exactly; `Decimal::from_str` rounds the 30-digit text to 1.
+        assert_eq!(Point.read("1.000000000000000000000000001"), Ok(dec!(1.000000000000000000000000001)));
+        assert_eq!(Point.read("79,228,162,514,264,337,593,543,950,335"), Ok(Decimal::MAX));
+        // Zeros that change no value do not count.
+        assert_eq!(Point.read("0001.5000000000000000000000000000000"), Ok(dec!(1.5)));
+        let too_long = "has more digits than can be kept exactly: at most 28 significant digits, 28 after the decimal";
+        assert_eq!(
+            Point.read("1.00000000000000000000000000001"),
+            Err(format!("\"1.00000000000000000000000000001\" {too_long} point"))
+        );
+        assert_eq!(
+            Comma.read("79.228.162.514.264.337.593.543.950.336"),
+            Err(format!("\"79.228.162.514.264.337.593.543.950.336\" {too_long} comma"))
+        );
+    }
+
+    #[test]
+    fn whole_numbers_are_digits_only() {
+        assert_eq!(read_count("36", 1, 240), Ok(36));
+        assert_eq!(read_count(" 007 ", 0, 10), Ok(7));
+        assert_eq!(read_whole("18446744073709551615", 0, u64::MAX), Ok(u64::MAX));
+        let digits_only = "enter digits only (no sign, grouping or decimals)";
+        assert_eq!(
+            read_count("+36", 1, 240),
+            Err(format!("\"+36\" is not a whole number from 1 to 240: {digits_only}"))
+        );
+        assert_eq!(read_count("-1", 0, 240), Err(format!("\"-1\" is not a whole number from 0 to 240: {digits_only}")));
+        assert_eq!(
+            read_count("1,200", 1, 5000),
+            Err(format!("\"1,200\" is not a whole number from 1 to 5000: {digits_only}"))
+        );
+        assert_eq!(read_count("3.0", 1, 5), Err(format!("\"3.0\" is not a whole number from 1 to 5: {digits_only}")));
+        assert_eq!(
+            read_count("241", 1, 240),
+            Err("\"241\" is outside 1 to 240: enter a whole number from 1 to 240".into())
+        );
+        assert_eq!(
+            read_whole("18446744073709551616", 0, u64::MAX),
+            Err("\"18446744073709551616\" is outside 0 to 18446744073709551615: enter a whole number from 0 to \
+                 18446744073709551615"
+                .into())
+        );
+        assert_eq!(read_count(" ", 1, 240), Err("required: a whole number from 1 to 240".into()));
     }
 
     #[test]

@@ -72,9 +72,10 @@ pub fn parse_scores(
             out.push((c.id, None));
             continue;
         }
-        match value.parse::<u8>() {
-            Ok(s) if SCORE_RANGE.contains(&s) => out.push((c.id, Some(s))),
-            _ => e.push(field, "a score from 1 to 5, or empty"),
+        let (lo, hi) = (*SCORE_RANGE.start(), *SCORE_RANGE.end());
+        match super::read_whole(value, lo.into(), hi.into()) {
+            Ok(s) => out.push((c.id, u8::try_from(s).ok())),
+            Err(msg) => e.push(field, format!("{msg}; or leave it empty")),
         }
     }
     e.into_result(|| out)
@@ -86,9 +87,9 @@ pub fn parse_weights(criteria: &[Criterion], form: &HashMap<String, String>) -> 
     let mut out = Vec::with_capacity(criteria.len());
     for c in criteria {
         let field = format!("weight_{}", c.key);
-        match form.get(&field).map(|v| v.trim().parse::<u8>()) {
-            Some(Ok(w)) if w <= MAX_WEIGHT => out.push((c.id, w)),
-            _ => e.push(field, "a whole number from 0 to 10"),
+        match super::read_whole(form.get(&field).map_or("", String::as_str), 0, MAX_WEIGHT.into()) {
+            Ok(w) => out.push((c.id, u8::try_from(w).unwrap_or(MAX_WEIGHT))),
+            Err(msg) => e.push(field, msg),
         }
     }
     if e.is_empty() && out.iter().all(|(_, w)| *w == 0) {
@@ -132,7 +133,32 @@ mod tests {
         let c = criteria();
         let form = HashMap::from([("score_a".to_string(), "6".to_string()), ("score_b".into(), "".into())]);
         let e = parse_scores(&c, &form).err().unwrap_or_default();
-        assert_eq!(e.get("score_a"), Some("a score from 1 to 5, or empty"));
+        assert_eq!(
+            e.get("score_a"),
+            Some("\"6\" is outside 1 to 5: enter a whole number from 1 to 5; or leave it empty")
+        );
+        // Scores and weights go through the one whole-number reader: a sign is refused.
+        let form = HashMap::from([("score_a".to_string(), "+3".to_string())]);
+        let e = parse_scores(&c, &form).err().unwrap_or_default();
+        assert_eq!(
+            e.get("score_a"),
+            Some(
+                "\"+3\" is not a whole number from 1 to 5: enter digits only (no sign, grouping or decimals); or leave it empty"
+            )
+        );
+        let form = HashMap::from([("score_a".to_string(), " 3 ".to_string())]);
+        assert_eq!(parse_scores(&c, &form).ok(), Some(vec![(1, Some(3)), (2, None), (3, None)]));
+        let w = HashMap::from([
+            ("weight_a".to_string(), "+2".to_string()),
+            ("weight_b".into(), "2".into()),
+            ("weight_c".into(), "0".into()),
+        ]);
+        let e = parse_weights(&c, &w).err().unwrap_or_default();
+        assert_eq!(
+            e.get("weight_a"),
+            Some("\"+2\" is not a whole number from 0 to 10: enter digits only (no sign, grouping or decimals)")
+        );
+        assert_eq!(e.get("weight_b"), None);
         let w = HashMap::from([
             ("weight_a".to_string(), "0".to_string()),
             ("weight_b".into(), "0".into()),

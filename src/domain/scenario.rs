@@ -93,11 +93,22 @@ impl Scenario {
             e
         };
         let mut value: serde_json::Value = serde_json::from_str(text).map_err(at)?;
-        let numbers = match value.pointer("/site") {
+        // A `site` without `number_format` keeps the stored format, for reading the file's
+        // strings and for saving (on an empty database `stored` is the decimal point).
+        let numbers = match value.pointer_mut("/site") {
             None | Some(serde_json::Value::Null) => stored,
-            Some(site) => match site.get("number_format").and_then(|f| f.as_str()) {
-                None => NumberFormat::default(),
-                Some(f) => NumberFormat::parse(f).unwrap_or_default(),
+            Some(site) => match site.get("number_format") {
+                Some(serde_json::Value::String(f)) if !f.trim().is_empty() => {
+                    NumberFormat::parse(f).unwrap_or_default()
+                }
+                Some(serde_json::Value::String(_) | serde_json::Value::Null) | None => {
+                    if let Some(site) = site.as_object_mut() {
+                        site.insert("number_format".into(), stored.as_str().into());
+                    }
+                    stored
+                }
+                // Not a string: refused by name when the settings are read.
+                Some(_) => NumberFormat::default(),
             },
         };
         written_in(&mut value, numbers);
@@ -218,8 +229,33 @@ mod tests {
             err.0,
             vec![crate::domain::FieldError {
                 field: "site.hurdle_rate".into(),
-                message: "\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09 or 0.090".into()
+                message: "\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09".into()
             }]
+        );
+    }
+
+    #[test]
+    fn a_site_without_number_format_keeps_the_stored_one() {
+        use rust_decimal::dec;
+        let file = comma_site("0,09").replace(r#""number_format": "decimal_comma""#, r#""tax_rate": "0,25""#);
+        let read = |stored| {
+            Scenario::parse(&file, stored)
+                .map(|s| s.site.map(|x| (x.hurdle_rate, x.tax_rate, x.number_format)))
+                .map_err(|e| e.to_string())
+        };
+        // A decimal-comma database: the strings are read, and saved, in its format.
+        assert_eq!(
+            read(NumberFormat::DecimalComma),
+            Ok(Some((dec!(0.09), Some(dec!(0.25)), NumberFormat::DecimalComma)))
+        );
+        // An empty (or decimal-point) database: the decimal point, and `0,09` is refused by name.
+        let file = file.replace("0,09", "0.09").replace("0,25", "0.25").replace("38.000,50", "38000.50");
+        let point = Scenario::parse(&file, NumberFormat::DecimalPoint).map(|s| s.site.map(|x| x.number_format));
+        assert_eq!(point.map_err(|e| e.to_string()), Ok(Some(NumberFormat::DecimalPoint)));
+        let err = Scenario::parse(&file, NumberFormat::DecimalComma).err().unwrap_or_default();
+        assert_eq!(
+            err.get("site.hurdle_rate"),
+            Some("\"0.09\" is ambiguous here (groups of thousands have three digits): use 0,09")
         );
     }
 

@@ -1,7 +1,7 @@
 //! Site settings: currency, hurdle rate, tax view and defaults.
 
 use super::de::string_or_number;
-use super::{FieldErrors, NumberFormat, parse_count, required_text};
+use super::{FieldErrors, NumberFormat, read_count, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 
@@ -80,12 +80,12 @@ impl SiteSettings {
         let depreciation_years = if input.depreciation_years.trim().is_empty() {
             Some(None)
         } else {
-            e.take("depreciation_years", parse_count(&input.depreciation_years, 1, 50).map(Some))
+            e.take("depreciation_years", read_count(&input.depreciation_years, 1, 50).map(Some))
         };
         let default_horizon_months = if input.default_horizon_months.trim().is_empty() {
             Some(60)
         } else {
-            e.take("default_horizon_months", parse_count(&input.default_horizon_months, 1, 240))
+            e.take("default_horizon_months", read_count(&input.default_horizon_months, 1, 240))
         };
         let expert_multiplier = if input.expert_multiplier.trim().is_empty() {
             Some(Decimal::from(3))

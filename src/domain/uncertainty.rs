@@ -32,7 +32,7 @@ impl Default for Trials {
 pub fn parse_seed(value: &str) -> Result<u64, String> {
     match value.trim() {
         "" => Ok(DEFAULT_SEED),
-        s => s.parse().map_err(|_| "a whole number from 0 to 18446744073709551615".into()),
+        s => super::read_whole(s, 0, u64::MAX),
     }
 }
 
@@ -178,4 +178,21 @@ pub fn case_uncertainty(
         tornado: swings.iter().map(|s| s.driver).collect(),
         simulation,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_seed_is_digits_only() {
+        assert_eq!(parse_seed(""), Ok(DEFAULT_SEED));
+        assert_eq!(parse_seed("36"), Ok(36));
+        assert_eq!(
+            parse_seed("+36"),
+            Err("\"+36\" is not a whole number from 0 to 18446744073709551615: enter digits only (no sign, grouping or \
+                 decimals)"
+                .into())
+        );
+    }
 }

@@ -252,17 +252,62 @@ async fn site_numbers(
     req: Request,
     next: axum::middleware::Next,
 ) -> axum::response::Response {
+    use axum::response::IntoResponse;
     if req.uri().path().starts_with("/api/") {
         return next.run(req).await;
     }
     let numbers = match crate::db::number_format(&state.pool).await {
         Ok(f) => f,
         Err(e) => {
-            tracing::error!(error = ?e, "number format unreadable; using the default");
-            NumberFormat::default()
+            // Guessing a format could misread a figure by a factor of 1000; refuse instead.
+            tracing::error!(error = ?e, "number format unreadable; answering 503");
+            return numbers_unavailable().into_response();
         }
     };
-    numbers.scope(next.run(req)).await
+    numbers
+        .scope(async move {
+            // A GET form (the portfolio query) carries its shown format in the query string.
+            let shown = axum::extract::Query::<ShownFormat>::try_from_uri(req.uri()).ok();
+            match shown.map_or(Ok(()), |q| q.0.check()) {
+                Ok(()) => next.run(req).await,
+                Err(e) => e.into_response(),
+            }
+        })
+        .await
+}
+
+/// The answer when the site's number format cannot be read: no figure can be read or written
+/// safely, so nothing is served (the API does not depend on it and is not refused).
+fn numbers_unavailable() -> AppError {
+    AppError::BadRequest {
+        status: StatusCode::SERVICE_UNAVAILABLE,
+        message: "the site's number format cannot be read just now; nothing was changed, try again shortly".into(),
+    }
+}
+
+/// The refusal of a form shown in another number format than the site's current one.
+pub const FORMAT_CHANGED: &str =
+    "the site's number format changed since this form was shown; check the figures and submit again";
+
+/// The format a form that carries numbers was shown in, from its hidden field
+/// `shown_number_format` (not `number_format`: the settings form's field of that name is the
+/// new setting); absent (a script posting a form) means the current format.
+#[derive(serde::Deserialize)]
+struct ShownFormat {
+    shown_number_format: Option<String>,
+}
+
+impl ShownFormat {
+    /// Refuse (422) a form shown in another format than [`NumberFormat::current`]: `1.250` is
+    /// valid in both formats, so reading it in the new one would be silently wrong.
+    fn check(&self) -> Result<(), AppError> {
+        match self.shown_number_format.as_deref().map(str::trim) {
+            Some(shown) if !shown.is_empty() && shown != NumberFormat::current().as_str() => {
+                Err(AppError::BadRequest { status: StatusCode::UNPROCESSABLE_ENTITY, message: FORMAT_CHANGED.into() })
+            }
+            _ => Ok(()),
+        }
+    }
 }
 
 /// A JSON body whose rejection is answered as an [`ApiError`] (400 syntax, 415 content type,
@@ -278,22 +323,19 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
     type Rejection = ApiError;
 
     async fn from_request(req: Request, state: &S) -> Result<Self, Self::Rejection> {
-        let (parts, body) = req.into_parts();
-        let bytes = axum::body::Bytes::from_request(Request::from_parts(parts.clone(), body), state)
+        // One parse into a `Value` (content type, syntax, nesting depth and number range are
+        // checked here, answered 415 or 400), then the body type is built from that same value:
+        // a second parse of the bytes could fail where the first passed (an ignored field
+        // holding `1e400`), which would be a 500.
+        let Json(sent) = Json::<serde_json::Value>::from_request(req, state)
             .await
             .map_err(|r| ApiError(AppError::BadRequest { status: r.status(), message: r.body_text() }))?;
-        let req = Request::from_parts(parts, axum::body::Body::from(bytes.clone()));
-        let parsed = match Json::<T>::from_request(req, state).await {
-            Ok(Json(v)) => v,
-            Err(rejection) => {
-                return Err(ApiError(AppError::BadRequest {
-                    status: rejection.status(),
-                    message: rejection.body_text(),
-                }));
-            }
-        };
-        let sent: serde_json::Value =
-            serde_json::from_slice(&bytes).map_err(|e| ApiError(AppError::Internal(e.into())))?;
+        let parsed = serde_path_to_error::deserialize(&sent).map_err(|e| {
+            ApiError(AppError::BadRequest {
+                status: StatusCode::UNPROCESSABLE_ENTITY,
+                message: format!("Failed to deserialize the JSON body into the target type: {e}"),
+            })
+        })?;
         let known = serde_json::to_value(&parsed).map_err(|e| ApiError(AppError::Internal(e.into())))?;
         let mut unknown = FieldErrors::default();
         unknown_fields(&sent, &known, "", &mut unknown);
@@ -326,14 +368,23 @@ fn unknown_fields(sent: &serde_json::Value, known: &serde_json::Value, path: &st
     }
 }
 
-/// A form body whose rejection is answered with the error page.
+/// A form body whose rejection is answered with the error page. A form shown in another
+/// number format than the site's current one is refused (hidden field `shown_number_format`).
 pub struct FormBody<T>(pub T);
 
 impl<S: Send + Sync, T: DeserializeOwned> FromRequest<S> for FormBody<T> {
     type Rejection = AppError;
 
     async fn from_request(req: Request, state: &S) -> Result<Self, Self::Rejection> {
-        match Form::<T>::from_request(req, state).await {
+        let (parts, body) = req.into_parts();
+        let bytes = axum::body::Bytes::from_request(Request::from_parts(parts.clone(), body), state)
+            .await
+            .map_err(|r| AppError::BadRequest { status: r.status(), message: r.body_text() })?;
+        // Other fields are ignored here; a malformed body is refused by the typed read below.
+        if let Ok(shown) = serde_urlencoded::from_bytes::<ShownFormat>(&bytes) {
+            shown.check()?;
+        }
+        match Form::<T>::from_request(Request::from_parts(parts, axum::body::Body::from(bytes)), state).await {
             Ok(Form(v)) => Ok(Self(v)),
             Err(rejection) => Err(AppError::BadRequest { status: rejection.status(), message: rejection.body_text() }),
         }

@@ -287,3 +287,115 @@ async fn the_settings_form_reads_and_shows_the_site_format() {
     let page = admin.get("/admin").await.text;
     assert!(page.contains("name=\"hurdle_rate\" value=\"9,5\"") && page.contains("value=\"1,5\""), "{page}");
 }
+
+#[tokio::test]
+async fn a_body_that_parses_once_is_never_a_500() {
+    let t = test_app(false).await;
+    // An ignored field holding a number past f64 was accepted by the typed parse and failed the
+    // second, generic one: a 500. One parse now: 400 naming the problem and where.
+    let a = t.post_json("/api/v1/metrics", r#"{"rate":"0.1","flows":["-100","110"],"x":1e400}"#).await;
+    assert_eq!(a.status, StatusCode::BAD_REQUEST, "{}", a.text);
+    assert_eq!(
+        a.json(),
+        json!({"error": "Failed to parse the request body as JSON: x: number out of range at line 1 column 46", "fields": []})
+    );
+    // More than 128 nested arrays (serde_json's recursion limit) in an unknown field: 400 too.
+    let deep = format!(r#"{{"rate":"0.1","flows":["-100","110"],"x":{}{}}}"#, "[".repeat(200), "]".repeat(200));
+    let a = t.post_json("/api/v1/metrics", &deep).await;
+    assert_eq!(a.status, StatusCode::BAD_REQUEST, "{}", a.text);
+    // The body object and 127 arrays are the 128 levels allowed: the path shows 126 indices.
+    let path = format!("x{}", "[0]".repeat(126));
+    assert_eq!(
+        a.json(),
+        json!({"error": format!("Failed to parse the request body as JSON: {path}: recursion limit exceeded at line 1 column 168"),
+               "fields": []})
+    );
+    // A shape error keeps its path; a plain unknown field is the 422 naming it.
+    let a = t.post_json("/api/v1/zones", r#"{"code": 5, "name": "Numbers"}"#).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+    assert_eq!(
+        a.json(),
+        json!({"error": "Failed to deserialize the JSON body into the target type: code: invalid type: integer `5`, expected a string",
+               "fields": []})
+    );
+    let a = t.post_json("/api/v1/metrics", r#"{"rate":"0.1","flows":["-100","110"],"x":1}"#).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(a.json()["fields"][0]["field"], "x");
+    // Positive control: the body without the extra field is answered.
+    let a = t.post_json("/api/v1/metrics", r#"{"rate":"0.1","flows":["-100","110"]}"#).await;
+    assert_eq!(a.status, StatusCode::OK, "{}", a.text);
+}
+
+#[tokio::test]
+async fn a_form_shown_in_another_format_is_refused() {
+    let t = test_app(false).await;
+    let case = draft_case(&t, "NUM-7").await;
+    let path = format!("/cases/{case}/costs");
+    // The form carries the format it was shown in.
+    let edit = t.get(&format!("/cases/{case}/edit")).await.text;
+    assert!(edit.contains(r#"<input type="hidden" name="shown_number_format" value="decimal_point">"#), "{edit}");
+    set_number_format(&t, "decimal_comma").await;
+    // Shown on the decimal-point site, `1.250` meant 1.25; read now it would be 1250.
+    let a = t.post_form(&path, &format!("{}&shown_number_format=decimal_point", cost_form("1.250"))).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(
+        a.text.contains(
+            "the site&#39;s number format changed since this form was shown; check the figures and submit again"
+        ),
+        "{}",
+        a.text
+    );
+    assert_eq!(cost_amounts(&t, case).await, Vec::<Value>::new(), "nothing was stored");
+    // Positive controls: shown in the current format, or without the field (a script), it is read.
+    let a = t.post_form(&path, &format!("{}&shown_number_format=decimal_comma", cost_form("1.250"))).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    assert_eq!(t.post_form(&path, &cost_form("2.500")).await.status, StatusCode::SEE_OTHER);
+    assert_eq!(cost_amounts(&t, case).await, vec![json!("1250"), json!("2500")]);
+    let edit = t.get(&format!("/cases/{case}/edit")).await.text;
+    assert!(edit.contains(r#"<input type="hidden" name="shown_number_format" value="decimal_comma">"#));
+
+    // The portfolio query form (a GET) likewise.
+    let a = t.get("/portfolio?budget=1.250&shown_number_format=decimal_point").await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("the site&#39;s number format changed since this form was shown"), "{}", a.text);
+    let a = t.get("/portfolio?budget=1.250&shown_number_format=decimal_comma").await;
+    assert_eq!(a.status, StatusCode::OK);
+    assert!(a.text.contains("1.250,00"), "{}", a.text);
+}
+
+#[tokio::test]
+async fn whole_numbers_refuse_a_sign() {
+    let t = test_app(false).await;
+    let admin = t.as_role(Some(Role::Admin));
+    let form = |months: &str| {
+        format!(
+            "plant_name=Test+works&currency=EUR&hurdle_rate=10&tax_rate=&depreciation_years=&default_horizon_months={months}&expert_multiplier=3&number_format=decimal_point"
+        )
+    };
+    let a = admin.post_form("/admin/settings", &form("%2B36")).await;
+    refused_beside(
+        &a,
+        "default_horizon_months",
+        "&#34;+36&#34; is not a whole number from 1 to 240: enter digits only (no sign, grouping or decimals)",
+    );
+    assert_eq!(pilot_ledger::db::get_site(&t.pool).await.unwrap().default_horizon_months, 60);
+    // Positive control.
+    assert_eq!(admin.post_form("/admin/settings", &form("36")).await.status, StatusCode::SEE_OTHER);
+    assert_eq!(pilot_ledger::db::get_site(&t.pool).await.unwrap().default_horizon_months, 36);
+}
+
+#[tokio::test]
+async fn pages_are_refused_when_the_number_format_cannot_be_read() {
+    let t = test_app(false).await;
+    // Positive control: readable, the page is served.
+    assert_eq!(t.get("/login").await.status, StatusCode::OK);
+    // The database gone: no guessed format, a 503 error page.
+    t.pool.close().await;
+    let a = t.get("/login").await;
+    assert_eq!(a.status, StatusCode::SERVICE_UNAVAILABLE, "{}", a.text);
+    assert!(
+        a.text.contains("the site&#39;s number format cannot be read just now; nothing was changed, try again shortly"),
+        "{}",
+        a.text
+    );
+}

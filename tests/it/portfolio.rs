@@ -297,7 +297,7 @@ async fn readiness_scores_and_weights() {
     let before = readiness_of(&t, "PAINT-1").await;
     let bad = t.post_form(&format!("/zones/{id}/readiness"), "score_data_reach=7&score_expert_time=1").await;
     assert_eq!(bad.status, StatusCode::UNPROCESSABLE_ENTITY);
-    assert!(bad.text.contains("a score from 1 to 5, or empty"));
+    assert!(bad.text.contains("is outside 1 to 5: enter a whole number from 1 to 5; or leave it empty"));
     assert_eq!(readiness_of(&t, "PAINT-1").await, before);
     let viewer = t.as_role(Some(Role::Viewer)).post_form(&format!("/zones/{id}/readiness"), form).await;
     assert_eq!(viewer.status, StatusCode::FORBIDDEN);
