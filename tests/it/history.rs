@@ -221,3 +221,131 @@ async fn a_rebaseline_keeps_seven_booked_months_and_measures_later_months_agains
     // The kept totals still equal the entries.
     assert!(pilot_ledger::db::totals_problem(&base.pool).await.unwrap().is_none());
 }
+
+/// A database from before migration 0011: items get identities by label (the earliest
+/// version's item), baselines their months (the approval month), and the realized view then
+/// reads entries of both versions; copies carry identities, a re-added label takes its old
+/// identity once, and an identity never changes.
+#[tokio::test]
+async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_months() {
+    use pilot_ledger::db;
+    use pilot_ledger::domain::{DriverKind, NewBenefitDriver, realized_view};
+    let dir = tempfile::tempdir().unwrap();
+    let old = dir.path().join("old-migrations");
+    std::fs::create_dir(&old).unwrap();
+    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
+        let f = f.unwrap();
+        let name = f.file_name().into_string().unwrap();
+        // Before the hash chain, so that raw entries can be written (0007 seals them).
+        if name.as_str() < "0007" {
+            std::fs::copy(f.path(), old.join(&name)).unwrap();
+        }
+    }
+    let url = format!("sqlite://{}", dir.path().join("old.db").display());
+    let pool = db::connect(&url).await.unwrap();
+    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
+    // v1 (approved 2025-01-10, then superseded): Energy 120,000 kWh a year at 0.10 = 1,000 EUR
+    // a month, Scrap 1,200 pcs at 1.00 = 100 EUR a month. v2 (approved 2025-04-05): Energy
+    // 240,000 kWh = 2,000 EUR a month, Air 12,000 at 0.10 = 100 EUR a month. Go-live month 0.
+    for sql in [
+        "INSERT INTO site_settings (id, plant_name, currency, hurdle_rate, default_horizon_months, expert_multiplier,
+             updated_at, updated_by) VALUES (1, 'Test works', 'EUR', '0.1', 36, '3', 't', 'u')",
+        "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
+         VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
+        "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
+             ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
+         VALUES (1, 1, 1, 'Base', 24, '2025-01', 0, 0, '1', 'draft', 't', 'lead', 't', 'lead'),
+                (2, 1, 2, 'More', 24, '2025-01', 0, 0, '1', 'draft', 't', 'lead', 't', 'lead')",
+        "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
+             escalation, created_at, created_by)
+         VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '120000', '200000', '0.1', '0', 't', 'u'),
+                (2, 1, 'Scrap', 'scrap', 'pcs', '1', '1200', '2000', '1', '0', 't', 'u'),
+                (3, 2, 'Energy', 'energy', 'kWh', '1', '240000', '300000', '0.1', '0', 't', 'u'),
+                (4, 2, 'Air', 'other', 'Nm3', '1', '12000', '20000', '0.1', '0', 't', 'u')",
+        "UPDATE case_versions SET state = 'superseded', approved_at = '2025-01-10T08:00:00Z', approved_by = 'admin'
+         WHERE id = 1",
+        "UPDATE case_versions SET state = 'approved', approved_at = '2025-04-05T08:00:00Z', approved_by = 'admin'
+         WHERE id = 2",
+        // Energy: 900 EUR in each of 2025-01 to 2025-03 against v1, 1,800 EUR in 2025-04 against v2.
+        "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, period, method, quantity, unit_value, amount,
+             evidence, booked_at, booked_by)
+         VALUES (1, 1, 'saving', 1, '2025-01', 'direct', '9000', '0.1', '900', 'meter', 't', 'u'),
+                (1, 1, 'saving', 1, '2025-02', 'direct', '9000', '0.1', '900', 'meter', 't', 'u'),
+                (1, 1, 'saving', 1, '2025-03', 'direct', '9000', '0.1', '900', 'meter', 't', 'u'),
+                (1, 2, 'saving', 3, '2025-04', 'direct', '18000', '0.1', '1800', 'meter', 't', 'u')",
+    ] {
+        sqlx::query(sql).execute(&pool).await.unwrap();
+    }
+    db::migrate(&pool).await.unwrap();
+    let uids: Vec<(i64, i64)> =
+        sqlx::query_as("SELECT id, item_uid FROM benefit_drivers ORDER BY id").fetch_all(&pool).await.unwrap();
+    assert_eq!(uids, [(1, 1), (2, 2), (3, 1), (4, 4)], "v2's Energy is v1's Energy");
+    let froms: Vec<(i64, String)> =
+        sqlx::query_as("SELECT id, in_force_from FROM case_versions ORDER BY id").fetch_all(&pool).await.unwrap();
+    assert_eq!(froms, [(1, "2025-01".to_string()), (2, "2025-04".to_string())]);
+
+    // Four months elapsed. Expected: Energy 3 x 1,000 (v1) + 2,000 (v2) = 5,000; Scrap 3 x 100
+    // = 300 (v1 only); Air 100 (April, v2): 5,400. Measured: 3 x 900 + 1,800 = 4,500.
+    let history = db::baseline_history(&pool, 1).await.unwrap();
+    let site = db::get_site(&pool).await.unwrap();
+    let entries = db::ledger::zone_entries(&pool, 1).await.unwrap();
+    let view = realized_view(&db::history_of(&history).unwrap(), &entries, &site).unwrap();
+    assert_eq!(view.elapsed, 4);
+    assert_eq!(view.savings.expected_to_date.normalize().to_string(), "5400");
+    assert_eq!(view.savings.measured_to_date.normalize().to_string(), "4500");
+    let lines: Vec<(i64, String, String, String)> = view
+        .drivers
+        .iter()
+        .map(|d| {
+            let r = &d.realization;
+            (
+                d.uid,
+                d.label.clone(),
+                r.expected_to_date.normalize().to_string(),
+                r.measured_to_date.normalize().to_string(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        lines,
+        [
+            (1, "Energy".into(), "5000".into(), "4500".into()),
+            (4, "Air".into(), "100".into(), "0".into()),
+            (2, "Scrap".into(), "300".into(), "0".into()),
+        ]
+    );
+
+    // A copy of v2 carries its identities; Scrap added again takes its old identity, a second
+    // Scrap its own id.
+    let mut tx = db::begin_write(&pool).await.unwrap();
+    let v3 = db::copy_case(&mut tx, 2, "Copy", "lead").await.unwrap();
+    let scrap = NewBenefitDriver {
+        label: "Scrap".into(),
+        kind: DriverKind::Scrap,
+        unit: "pcs".into(),
+        qty_low: 1.into(),
+        qty_likely: 2.into(),
+        qty_high: 3.into(),
+        unit_value: 1.into(),
+        escalation: 0.into(),
+    };
+    let again = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
+    let second = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
+    tx.commit().await.unwrap();
+    let v3_uids: Vec<i64> = sqlx::query_scalar("SELECT item_uid FROM benefit_drivers WHERE case_id = ? ORDER BY id")
+        .bind(v3)
+        .fetch_all(&pool)
+        .await
+        .unwrap();
+    assert_eq!(v3_uids, [1, 4, 2, second]);
+    // An identity never changes, even in a draft; other fields of a draft's item may.
+    let changed = sqlx::query("UPDATE benefit_drivers SET item_uid = 77 WHERE id = ?").bind(again).execute(&pool).await;
+    assert!(changed.unwrap_err().to_string().contains("an item keeps its identity across versions"));
+    let edited =
+        sqlx::query("UPDATE benefit_drivers SET qty_likely = '5' WHERE id = ?").bind(again).execute(&pool).await;
+    assert_eq!(edited.unwrap().rows_affected(), 1);
+    // Items of an approved or superseded version stay frozen after the migration.
+    let frozen = sqlx::query("UPDATE benefit_drivers SET qty_likely = '5' WHERE id = 1").execute(&pool).await;
+    assert!(frozen.unwrap_err().to_string().contains("an approved business case is frozen"));
+    assert!(db::totals_problem(&pool).await.unwrap().is_none());
+}
