@@ -231,19 +231,8 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
     use pilot_ledger::db;
     use pilot_ledger::domain::{DriverKind, NewBenefitDriver, realized_view};
     let dir = tempfile::tempdir().unwrap();
-    let old = dir.path().join("old-migrations");
-    std::fs::create_dir(&old).unwrap();
-    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
-        let f = f.unwrap();
-        let name = f.file_name().into_string().unwrap();
-        // Before the hash chain, so that raw entries can be written (0007 seals them).
-        if name.as_str() < "0007" {
-            std::fs::copy(f.path(), old.join(&name)).unwrap();
-        }
-    }
-    let url = format!("sqlite://{}", dir.path().join("old.db").display());
-    let pool = db::connect(&url).await.unwrap();
-    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
+    // Before the hash chain, so that raw entries can be written (0007 seals them).
+    let pool = crate::helpers::pool_before(dir.path(), "0007").await;
     // v1 (approved 2025-01-10, then superseded): Energy 120,000 kWh a year at 0.10 = 1,000 EUR
     // a month, Scrap 1,200 pcs at 1.00 = 100 EUR a month. v2 (approved 2025-04-05): Energy
     // 240,000 kWh = 2,000 EUR a month, Air 12,000 at 0.10 = 100 EUR a month. Go-live month 0.
