@@ -187,7 +187,8 @@ fn figures(view: &RealizedView) -> Figures {
             .drivers
             .iter()
             .map(|d| DriverRow {
-                label: d.label.clone(),
+                // A driver a re-baseline retired keeps its booked months; the name says so.
+                label: if d.current { d.label.clone() } else { format!("{} (retired)", d.label) },
                 unit: d.unit.clone(),
                 expected: Money(d.realization.expected_to_date),
                 measured: Money(d.realization.measured_to_date),

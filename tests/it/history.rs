@@ -190,6 +190,12 @@ async fn a_rebaseline_keeps_seven_booked_months_and_measures_later_months_agains
     // Old entries show under the current item's name.
     let page = controller.get(&format!("/zones/{zone}/ledger")).await;
     assert!(!page.text.contains("item of version"), "{}", page.text);
+    assert!(page.text.contains("<td>Scrap (retired)</td>"), "{}", page.text);
+    assert!(page.text.contains(&format!("<td>from {today} (current)</td>")), "the ledger page lists the history too");
+    assert!(
+        page.text.contains("<td>pilot funded</td>")
+            && page.text.contains("<td>meter data shows more idle running</td>")
+    );
 
     // Both baselines on the zone page, with approver, how and why.
     let zp = lead.get(&format!("/zones/{zone}")).await.text;
