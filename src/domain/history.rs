@@ -180,3 +180,92 @@ impl BaselineHistory {
         Ok(Expected { start, drivers, net, spending, by_driver })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    #![expect(clippy::unwrap_used)]
+    use super::*;
+    use crate::domain::{CaseHeader, NewBenefitDriver};
+
+    fn m(text: &str) -> Month {
+        Month::parse(text).unwrap()
+    }
+
+    /// A 12-month case from 2025-01, live from month 0, with drivers `(id, uid, likely a year)`
+    /// at 1 EUR a unit: `likely / 12` EUR a month (hand arithmetic).
+    fn version(id: i64, from: &str, drivers: &[(i64, i64, i64)]) -> InForce {
+        let header = CaseHeader {
+            label: format!("v{id}"),
+            horizon_months: 12,
+            start_month: m("2025-01"),
+            go_live_offset: 0,
+            ramp_up_months: 0,
+            success_probability: Decimal::ONE,
+        };
+        let driver = |likely: i64| NewBenefitDriver {
+            label: "A".into(),
+            kind: DriverKind::Energy,
+            unit: "kWh".into(),
+            qty_low: Decimal::ONE,
+            qty_likely: Decimal::from(likely),
+            qty_high: Decimal::from(likely * 2),
+            unit_value: Decimal::ONE,
+            escalation: Decimal::ZERO,
+        };
+        InForce {
+            from: m(from),
+            case: CaseParts {
+                id,
+                version: id as u32,
+                baseline: false,
+                header,
+                costs: Vec::new(),
+                drivers: drivers.iter().map(|&(i, _, likely)| (i, driver(likely))).collect(),
+                frozen: None,
+                cost_uids: Vec::new(),
+                driver_uids: drivers.iter().map(|&(_, uid, _)| uid).collect(),
+            },
+        }
+    }
+
+    #[test]
+    fn each_month_takes_the_baseline_in_force_and_identities_join_versions() {
+        // v1 from the start: A 1,200 a year = 100 a month. v2 from 2025-04 (A 2,400 = 200, B 120
+        // = 10), replaced in the same month by v3 (A 3,600 = 300): v2 is never in force.
+        let h = BaselineHistory::new(vec![
+            version(1, "2025-03", &[(1, 10, 1200)]),
+            version(2, "2025-04", &[(2, 10, 2400), (3, 20, 120)]),
+            version(3, "2025-04", &[(4, 10, 3600)]),
+        ])
+        .unwrap();
+        // The first baseline also covers months before its own month.
+        assert_eq!(h.in_force(m("2024-12")).case.id, 1);
+        assert_eq!(h.in_force(m("2025-03")).case.id, 1);
+        assert_eq!(h.in_force(m("2025-04")).case.id, 3);
+        let site = SiteSettings {
+            plant_name: "Test works".into(),
+            currency: "EUR".into(),
+            hurdle_rate: Decimal::new(1, 1),
+            tax_rate: None,
+            depreciation_years: None,
+            default_horizon_months: 12,
+            expert_multiplier: Decimal::ONE,
+            number_format: crate::domain::NumberFormat::default(),
+            one_person_approval: false,
+        };
+        let e = h.expected(&site).unwrap();
+        assert_eq!((e.start, e.net.len()), (m("2025-01"), 12));
+        let a = &e.drivers[0];
+        assert_eq!((a.uid, a.id, a.current), (10, 4, true));
+        let a_expected: Vec<Decimal> = [100; 3].into_iter().chain([300; 9]).map(Decimal::from).collect();
+        assert_eq!(a.expected.iter().map(|d| d.normalize()).collect::<Vec<_>>(), a_expected);
+        let b = &e.drivers[1];
+        assert_eq!((b.uid, b.id, b.current), (20, 3, false));
+        assert!(b.expected.iter().all(|d| d.is_zero()), "never in force: B expects nothing");
+        assert_eq!([1, 2, 3, 4].map(|id| e.line_of(id)), [Some(0), Some(0), Some(1), Some(0)]);
+        assert_eq!(e.line_of(99), None);
+        // Net flows follow the same months (no costs: the benefits alone).
+        assert_eq!(e.net[2].normalize(), Decimal::from(100));
+        assert_eq!(e.net[3].normalize(), Decimal::from(300));
+    }
+}
