@@ -344,3 +344,41 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
     assert!(frozen.unwrap_err().to_string().contains("an approved business case is frozen"));
     assert!(db::totals_problem(&pool).await.unwrap().is_none());
 }
+
+/// A month already booked when a new baseline is approved stays with the old one: the new
+/// baseline is in force from the month after the latest booked month when that is later than
+/// the approval month.
+#[tokio::test]
+async fn a_month_booked_before_the_approval_keeps_its_baseline() {
+    let t = test_app(false).await;
+    let (admin, controller) = (t.as_role(Some(Role::Admin)), t.as_role(Some(Role::Controller)));
+    let z = crate::ledger::zone_with_baseline(&t, "HIST-3").await;
+    let today = Month::of(t.clock.now().date());
+    let start = Month::parse("2025-01").unwrap();
+    // Month index of today in the case from 2025-01 (36 months, so through 2027-12).
+    let idx = ((today.year - 2025) * 12 + i32::from(today.month) - 1) as usize;
+    let body = json!({"kind": "saving", "method": "direct", "item": z.energy, "period": today.to_string(),
+        "quantity": "15000", "evidence": "meter"});
+    let a = controller.post_json(&format!("/api/v1/zones/{}/ledger", z.id), &body.to_string()).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    let copy = t.post_json(&format!("/api/v1/cases/{}/copy", z.case), r#"{"label":"Copy"}"#).await.json();
+    let v2 = copy["case"]["id"].as_i64().unwrap();
+    // Energy at 260,000 kWh a year in v2: 260,000 x 0.20 / 12 = 4,333.3333 a month.
+    let energy = copy["case"]["drivers"][0]["id"].as_i64().unwrap();
+    assert_eq!(t.post_form(&format!("/cases/{v2}/drivers/{energy}/delete"), "").await.status, StatusCode::SEE_OTHER);
+    let form = "label=Energy&kind=energy&unit=kWh&qty_low=150000&qty_likely=260000&qty_high=300000&unit_value=0.20";
+    assert_eq!(t.post_form(&format!("/cases/{v2}/drivers"), form).await.status, StatusCode::SEE_OTHER);
+    assert_eq!(t.post_json(&format!("/api/v1/cases/{v2}/submit"), "{}").await.status, StatusCode::OK);
+    let ok = admin.post_json(&format!("/api/v1/cases/{v2}/approve"), "{}").await;
+    assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
+    assert_eq!(ok.json()["case"]["in_force_from"], shift(today, 1).to_string());
+    let l = ledger(&t, z.id).await;
+    assert_eq!(l["baselines"][0]["in_force_from"], start.to_string());
+    assert_eq!(l["baselines"][0]["in_force_until"], today.to_string());
+    assert_eq!(l["baselines"][1]["in_force_from"], shift(today, 1).to_string());
+    // Today's entry is measured against v1's expectation of 200,000 x 0.20 / 12 = 3,333.3333.
+    assert_eq!(l["realized"]["drivers"][0]["expected"][idx], "3333.3333");
+    assert_eq!(l["realized"]["drivers"][0]["measured"][idx], "3000");
+    assert_eq!(l["realized"]["drivers"][0]["expected"][idx + 1], "4333.3333", "the new baseline from next month");
+    assert_eq!(l["realized"]["drivers"][0]["item_uid"].as_i64(), Some(z.energy));
+}
