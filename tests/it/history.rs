@@ -167,6 +167,11 @@ async fn a_rebaseline_keeps_seven_booked_months_and_measures_later_months_agains
     ] {
         assert_eq!(ra[key], r[key], "{key}: {ra}");
     }
+    // Forecast at completion (earned-value EAC transposed, src/finance/realized.rs): 23,800 to
+    // date + the 28 months left (8 to 35) at the new 4,333.3333 = 121,333.3324, at the
+    // realization 23,800 / 26,833.3331: 131,417.391412325... (hand arithmetic).
+    let forecast: f64 = ra["savings_forecast_at_completion"].as_str().unwrap().parse().unwrap();
+    assert!((forecast - 131_417.391_412_325).abs() < 1e-6, "{ra}");
     assert_eq!(ra["drivers"][0]["id"].as_i64(), Some(energy2), "shown as the current baseline's driver");
     assert_eq!(ra["drivers"][0]["item_uid"].as_i64(), Some(energy1));
     assert_eq!(months(&after, 0, "expected")[..8], energy_expected[..8]);
