@@ -2,8 +2,9 @@
 
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::{
-    ApprovalKind, ApprovalSettings, BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState, CostCategory, CostItem,
-    CostKind, DriverKind, Month, NewBenefitDriver, NewCostItem, Review, SiteSettings, ZoneStatus,
+    ApprovalKind, ApprovalSettings, BaselineHistory, BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState,
+    CostCategory, CostItem, CostKind, DriverKind, InForce, Month, NewBenefitDriver, NewCostItem, Review, SiteSettings,
+    ZoneStatus,
 };
 use serde::Serialize;
 use sqlx::sqlite::SqliteRow;
@@ -36,6 +37,13 @@ pub struct CaseVersion {
     pub review: Review,
     /// The settings of its approval, which its figures keep (approved and superseded versions).
     pub frozen_settings: Option<ApprovalSettings>,
+    /// The month from which it is its zone's baseline (approved and superseded versions).
+    #[serde(serialize_with = "opt_month")]
+    pub in_force_from: Option<Month>,
+}
+
+fn opt_month<S: serde::Serializer>(m: &Option<Month>, s: S) -> Result<S::Ok, S::Error> {
+    m.map(|m| m.to_string()).serialize(s)
 }
 
 impl CaseVersion {
@@ -109,6 +117,8 @@ impl CaseFull {
             header: self.case.header.clone(),
             costs: self.costs.iter().map(|c| (c.id, c.item.clone())).collect(),
             drivers: self.drivers.iter().map(|d| (d.id, d.driver.clone())).collect(),
+            cost_uids: self.costs.iter().map(|c| c.item_uid).collect(),
+            driver_uids: self.drivers.iter().map(|d| d.item_uid).collect(),
         }
     }
 }
@@ -120,7 +130,7 @@ macro_rules! select_case {
                     success_probability, created_at, created_by, updated_at, updated_by,
                     edited_at, edited_by, submitted_at, submitted_by, submit_comment, approved_at, approved_by,
                     approve_comment, approval_kind, returned_at, returned_by, return_comment,
-                    frozen_currency, frozen_hurdle_rate, frozen_tax_rate, frozen_depreciation_years ",
+                    frozen_currency, frozen_hurdle_rate, frozen_tax_rate, frozen_depreciation_years, in_force_from ",
             $rest
         )
     };
@@ -162,6 +172,10 @@ fn case_from(row: &SqliteRow) -> DbResult<CaseVersion> {
             return_comment: row.try_get("return_comment")?,
         },
         frozen_settings: frozen_from(row)?,
+        in_force_from: row
+            .try_get::<Option<String>, _>("in_force_from")?
+            .map(|m| parsed("in_force_from", m, Month::parse))
+            .transpose()?,
     })
 }
 
@@ -205,7 +219,8 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     let row = sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(id).fetch_optional(&mut *conn).await?;
     let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
     let costs = sqlx::query(
-        "SELECT id, label, category, kind, amount, month_offset, escalation, capex FROM cost_items WHERE case_id = ? ORDER BY id",
+        "SELECT id, item_uid, label, category, kind, amount, month_offset, escalation, capex FROM cost_items
+         WHERE case_id = ? ORDER BY id",
     )
     .bind(id)
     .fetch_all(&mut *conn)
@@ -214,6 +229,7 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     .map(|r| {
         Ok(CostItem {
             id: r.try_get("id")?,
+            item_uid: r.try_get("item_uid")?,
             item: NewCostItem {
                 label: r.try_get("label")?,
                 category: parsed("category", r.try_get("category")?, CostCategory::parse)?,
@@ -227,7 +243,7 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     })
     .collect::<DbResult<Vec<_>>>()?;
     let drivers = sqlx::query(
-        "SELECT id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation
+        "SELECT id, item_uid, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation
          FROM benefit_drivers WHERE case_id = ? ORDER BY id",
     )
     .bind(id)
@@ -237,6 +253,7 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     .map(|r| {
         Ok(BenefitDriver {
             id: r.try_get("id")?,
+            item_uid: r.try_get("item_uid")?,
             driver: NewBenefitDriver {
                 label: r.try_get("label")?,
                 kind: parsed("kind", r.try_get("kind")?, DriverKind::parse)?,
@@ -255,6 +272,17 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
 
 /// Store a whole case as the zone's next version; returns its id.
 pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseSpec, actor: &str) -> DbResult<i64> {
+    insert_version(conn, zone_id, spec, (&[], &[]), actor).await
+}
+
+/// [`insert_case`] with the identities of the first cost items and drivers given.
+async fn insert_version(
+    conn: &mut SqliteConnection,
+    zone_id: i64,
+    spec: &CaseSpec,
+    (cost_uids, driver_uids): (&[i64], &[i64]),
+    actor: &str,
+) -> DbResult<i64> {
     let exists: Option<i64> =
         sqlx::query_scalar("SELECT id FROM zones WHERE id = ?").bind(zone_id).fetch_optional(&mut *conn).await?;
     if exists.is_none() {
@@ -287,12 +315,7 @@ pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseS
     .bind(actor)
     .fetch_one(&mut *conn)
     .await?;
-    for c in &spec.costs {
-        insert_cost_row(conn, id, c, actor).await?;
-    }
-    for d in &spec.drivers {
-        insert_driver_row(conn, id, d, actor).await?;
-    }
+    insert_items(conn, id, spec, cost_uids, driver_uids, actor).await?;
     // Items go in while the row is a draft: the database freezes approved versions. A
     // scenario file's approved version is recorded as loaded, not as a four-eyes approval.
     match spec.state {
@@ -343,9 +366,10 @@ async fn mark_approved(
     comment: &str,
 ) -> DbResult<()> {
     let ts = now();
+    let from = in_force_from(conn, case_id, kind, &ts).await?;
     sqlx::query(
         "UPDATE case_versions SET state = ?, updated_at = ?, updated_by = ?,
-                approved_at = ?, approved_by = ?, approval_kind = ?, approve_comment = ?,
+                approved_at = ?, approved_by = ?, approval_kind = ?, approve_comment = ?, in_force_from = ?,
                 frozen_currency = (SELECT currency FROM site_settings WHERE id = 1),
                 frozen_hurdle_rate = (SELECT hurdle_rate FROM site_settings WHERE id = 1),
                 frozen_tax_rate = (SELECT tax_rate FROM site_settings WHERE id = 1),
@@ -359,11 +383,66 @@ async fn mark_approved(
     .bind(actor)
     .bind(kind.as_str())
     .bind(comment)
+    .bind(from.to_string())
     .bind(case_id)
     .execute(conn)
     .await
     .map_err(|e| super::unique_as(e, "the zone already has an approved baseline"))?;
     Ok(())
+}
+
+/// The month from which a version approved at `ts` is its zone's baseline: the month of its
+/// approval, or the month after the zone's latest booked month when that is later (so an
+/// approval never changes the expectation of a month already booked); a version loaded from a
+/// scenario file is the baseline of record from its own start month.
+async fn in_force_from(conn: &mut SqliteConnection, case_id: i64, kind: ApprovalKind, ts: &str) -> DbResult<Month> {
+    let (start, latest): (String, Option<String>) = sqlx::query_as(
+        "SELECT c.start_month, (SELECT MAX(e.period) FROM ledger_entries e WHERE e.zone_id = c.zone_id)
+         FROM case_versions c WHERE c.id = ?",
+    )
+    .bind(case_id)
+    .fetch_one(&mut *conn)
+    .await?;
+    if kind == ApprovalKind::Scenario {
+        return parsed("start_month", start, Month::parse);
+    }
+    let approved = parsed("approved_at", ts.get(..7).unwrap_or_default().to_string(), Month::parse)?;
+    let after_booked = latest.map(|m| parsed("period", m, Month::parse)).transpose()?.map(|m| m.plus(1));
+    Ok(after_booked.map_or(approved, |m| m.max(approved)))
+}
+
+/// The zone's baseline history: its approved and superseded versions in approval order (the
+/// last is the current baseline), each with its items.
+pub(super) async fn baseline_history_in(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<Vec<CaseFull>> {
+    let ids: Vec<i64> = sqlx::query_scalar(
+        "SELECT id FROM case_versions WHERE zone_id = ? AND state IN ('approved', 'superseded')
+         ORDER BY state = 'approved', approved_at, id",
+    )
+    .bind(zone_id)
+    .fetch_all(&mut *conn)
+    .await?;
+    let mut out = Vec::with_capacity(ids.len());
+    for id in ids {
+        out.push(case_full_in(conn, id).await?);
+    }
+    Ok(out)
+}
+
+/// The domain's baseline history of stored versions in approval order (as
+/// [`baseline_history`] reads them); `None` without a current baseline.
+pub fn history_of(history: &[CaseFull]) -> Option<BaselineHistory> {
+    history.last().filter(|b| b.case.state == CaseState::Approved)?;
+    BaselineHistory::new(
+        history
+            .iter()
+            .map(|b| InForce { from: b.case.in_force_from.unwrap_or(b.case.header.start_month), case: b.parts() })
+            .collect(),
+    )
+}
+
+/// [`baseline_history_in`] on a pooled connection.
+pub async fn baseline_history(pool: &SqlitePool, zone_id: i64) -> DbResult<Vec<CaseFull>> {
+    baseline_history_in(&mut *pool.acquire().await?, zone_id).await
 }
 
 /// The zone's approved baseline version, if any.
@@ -515,10 +594,44 @@ async fn touch(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResu
     Ok(())
 }
 
-async fn insert_cost_row(conn: &mut SqliteConnection, case_id: i64, c: &NewCostItem, actor: &str) -> DbResult<i64> {
+/// Insert a draft's items: `cost_uids` / `driver_uids` give the identities of the first items
+/// (a copy carries them); the rest take one by label ([`insert_cost_row`]).
+async fn insert_items(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    spec: &CaseSpec,
+    cost_uids: &[i64],
+    driver_uids: &[i64],
+    actor: &str,
+) -> DbResult<()> {
+    for (i, c) in spec.costs.iter().enumerate() {
+        insert_cost_row(conn, case_id, c, cost_uids.get(i).copied(), actor).await?;
+    }
+    for (i, d) in spec.drivers.iter().enumerate() {
+        insert_driver_row(conn, case_id, d, driver_uids.get(i).copied(), actor).await?;
+    }
+    Ok(())
+}
+
+/// Insert a cost item into a draft with identity `uid`; without one it takes the identity of
+/// the zone's latest earlier item with the same label that this draft does not carry yet (a
+/// deleted and re-added item stays the same item), or else its own id (trigger of 0011).
+async fn insert_cost_row(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    c: &NewCostItem,
+    uid: Option<i64>,
+    actor: &str,
+) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
-        "INSERT INTO cost_items (case_id, label, category, kind, amount, month_offset, escalation, capex, created_at, created_by)
-         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
+        "INSERT INTO cost_items (case_id, label, category, kind, amount, month_offset, escalation, capex, created_at,
+                                 created_by, item_uid)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, COALESCE(?11, (
+             SELECT x.item_uid FROM cost_items x JOIN case_versions xv ON xv.id = x.case_id
+             WHERE xv.zone_id = (SELECT zone_id FROM case_versions WHERE id = ?1) AND x.label = ?2 AND x.case_id <> ?1
+               AND x.item_uid NOT IN (SELECT item_uid FROM cost_items WHERE case_id = ?1 AND item_uid IS NOT NULL)
+             ORDER BY xv.version DESC, x.id DESC LIMIT 1)))
+         RETURNING id",
     )
     .bind(case_id)
     .bind(&c.label)
@@ -530,20 +643,28 @@ async fn insert_cost_row(conn: &mut SqliteConnection, case_id: i64, c: &NewCostI
     .bind(i64::from(c.capex))
     .bind(now())
     .bind(actor)
+    .bind(uid)
     .fetch_one(conn)
     .await?)
 }
 
+/// Insert a benefit driver into a draft; its identity as for [`insert_cost_row`].
 async fn insert_driver_row(
     conn: &mut SqliteConnection,
     case_id: i64,
     d: &NewBenefitDriver,
+    uid: Option<i64>,
     actor: &str,
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO benefit_drivers (case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation,
-                                      created_at, created_by)
-         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
+                                      created_at, created_by, item_uid)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, COALESCE(?12, (
+             SELECT x.item_uid FROM benefit_drivers x JOIN case_versions xv ON xv.id = x.case_id
+             WHERE xv.zone_id = (SELECT zone_id FROM case_versions WHERE id = ?1) AND x.label = ?2 AND x.case_id <> ?1
+               AND x.item_uid NOT IN (SELECT item_uid FROM benefit_drivers WHERE case_id = ?1 AND item_uid IS NOT NULL)
+             ORDER BY xv.version DESC, x.id DESC LIMIT 1)))
+         RETURNING id",
     )
     .bind(case_id)
     .bind(&d.label)
@@ -556,6 +677,7 @@ async fn insert_driver_row(
     .bind(d.escalation.to_string())
     .bind(now())
     .bind(actor)
+    .bind(uid)
     .fetch_one(conn)
     .await?)
 }
@@ -563,7 +685,7 @@ async fn insert_driver_row(
 /// Add a cost item to a draft; the caller validated it against the draft's horizon.
 pub async fn add_cost(conn: &mut SqliteConnection, case_id: i64, c: &NewCostItem, actor: &str) -> DbResult<i64> {
     ensure_editable(conn, case_id).await?;
-    let id = insert_cost_row(conn, case_id, c, actor).await?;
+    let id = insert_cost_row(conn, case_id, c, None, actor).await?;
     touch(conn, case_id, actor).await?;
     Ok(id)
 }
@@ -571,7 +693,7 @@ pub async fn add_cost(conn: &mut SqliteConnection, case_id: i64, c: &NewCostItem
 /// Add a benefit driver to a draft.
 pub async fn add_driver(conn: &mut SqliteConnection, case_id: i64, d: &NewBenefitDriver, actor: &str) -> DbResult<i64> {
     ensure_editable(conn, case_id).await?;
-    let id = insert_driver_row(conn, case_id, d, actor).await?;
+    let id = insert_driver_row(conn, case_id, d, None, actor).await?;
     touch(conn, case_id, actor).await?;
     Ok(id)
 }
@@ -614,11 +736,14 @@ async fn delete_item(
 /// Save a copy of any version as the zone's next draft version, named `label`.
 pub async fn copy_case(conn: &mut SqliteConnection, case_id: i64, label: &str, actor: &str) -> DbResult<i64> {
     let full = case_full_in(conn, case_id).await?;
+    // The copy's items are the same items: they keep their identities.
+    let cost_uids: Vec<i64> = full.costs.iter().map(|c| c.item_uid).collect();
+    let driver_uids: Vec<i64> = full.drivers.iter().map(|d| d.item_uid).collect();
     let spec = CaseSpec {
         header: CaseHeader { label: label.to_string(), ..full.case.header },
         state: CaseState::Draft,
         costs: full.costs.into_iter().map(|c| c.item).collect(),
         drivers: full.drivers.into_iter().map(|d| d.driver).collect(),
     };
-    insert_case(conn, full.case.zone_id, &spec, actor).await
+    insert_version(conn, full.case.zone_id, &spec, (&cost_uids, &driver_uids), actor).await
 }

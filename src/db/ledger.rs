@@ -540,14 +540,13 @@ pub(super) async fn totals_in(
         .collect()
 }
 
-/// The latest month with a live entry (neither reversed nor a reversal) of the zone's approved
-/// baseline, per zone (all zones, or one): what makes a month "elapsed" (as
-/// `domain::realized_view` counts it from the entries).
+/// The latest month with a live entry (neither reversed nor a reversal), per zone (all zones,
+/// or one): what makes a month "elapsed" (as `domain::realized_view` counts it from the
+/// entries). Entries of every baseline of the history count, not only the current one's.
 pub(super) async fn latest_live_in(conn: &mut SqliteConnection, zone: Option<i64>) -> DbResult<Vec<(i64, Month)>> {
     macro_rules! live {
         () => {
-            "e.reverses_id IS NULL AND NOT EXISTS (SELECT 1 FROM ledger_entries r WHERE r.reverses_id = e.id)
-             AND e.case_id = (SELECT c.id FROM case_versions c WHERE c.zone_id = e.zone_id AND c.state = 'approved')"
+            "e.reverses_id IS NULL AND NOT EXISTS (SELECT 1 FROM ledger_entries r WHERE r.reverses_id = e.id)"
         };
     }
     let rows: Vec<(i64, String)> = match zone {

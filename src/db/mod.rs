@@ -240,8 +240,8 @@ fn unique_as(err: sqlx::Error, message: impl Into<String>) -> DbError {
 
 use cases::case_full_in;
 pub use cases::{
-    add_cost, add_driver, approve_case, baseline_of, case_full, copy_case, delete_cost, delete_driver, insert_case,
-    list_cases, reject_case, submit_case, update_header,
+    add_cost, add_driver, approve_case, baseline_history, baseline_of, case_full, copy_case, delete_cost,
+    delete_driver, history_of, insert_case, list_cases, reject_case, submit_case, update_header,
 };
 pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};

@@ -2,8 +2,9 @@
 //! zones whose counter moved, the case the figures come from, the ledger totals and the
 //! readiness scores, all read in one transaction so the page is one consistent snapshot.
 
+use super::cases::{baseline_history_in, history_of};
 use super::{DbResult, case_full_in, get_zone_in, ledger, list_zones_in, readiness};
-use crate::domain::{CaseState, LedgerTotals, Month, Zone, ZoneData};
+use crate::domain::{LedgerTotals, Month, Zone, ZoneData};
 use rust_decimal::Decimal;
 use sqlx::{SqliteConnection, SqlitePool};
 use std::collections::HashMap;
@@ -93,10 +94,12 @@ async fn zone_data(
             .bind(zone.id)
             .fetch_all(&mut *conn)
             .await?;
-    let pick = versions.iter().find(|(_, s)| s == CaseState::Approved.as_str()).or(versions.last()).map(|(id, _)| *id);
-    let case = match pick {
-        Some(id) => Some(case_full_in(conn, id).await?.parts()),
-        None => None,
+    let history = history_of(&baseline_history_in(conn, zone.id).await?);
+    // The current baseline is the history's last version; no need to read it twice.
+    let case = match (&history, versions.last()) {
+        (Some(h), _) => Some(h.current().clone()),
+        (None, Some((id, _))) => Some(case_full_in(conn, *id).await?.parts()),
+        (None, None) => None,
     };
-    Ok(ZoneData { scores: scores.unwrap_or_default(), ledger: ledger.unwrap_or_default(), zone, case })
+    Ok(ZoneData { scores: scores.unwrap_or_default(), ledger: ledger.unwrap_or_default(), history, zone, case })
 }

@@ -357,6 +357,8 @@ impl NewCostItem {
 pub struct CostItem {
     /// Row id.
     pub id: i64,
+    /// Identity across the zone's versions (migration 0011): copies carry it.
+    pub item_uid: i64,
     /// The validated fields.
     #[serde(flatten)]
     pub item: NewCostItem,
@@ -520,6 +522,8 @@ impl NewBenefitDriver {
 pub struct BenefitDriver {
     /// Row id.
     pub id: i64,
+    /// Identity across the zone's versions (migration 0011): copies carry it.
+    pub item_uid: i64,
     /// The validated fields.
     #[serde(flatten)]
     pub driver: NewBenefitDriver,

@@ -8,6 +8,7 @@ mod approval;
 mod case;
 pub mod chain;
 mod figures;
+mod history;
 mod ledger;
 mod money;
 mod numbers;
@@ -25,6 +26,7 @@ pub use case::{
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
 };
 pub use figures::{CaseFigures, View, case_figures};
+pub use history::{BaselineHistory, Expected, ExpectedDriver, InForce, settings_of};
 pub use ledger::{
     BaselineCost, BaselineDriver, Booking, BookingBaseline, BookingInput, EntryKind, IDEMPOTENCY_KEY_MAX, LedgerEntry,
     Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key, item_key,

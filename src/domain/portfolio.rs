@@ -10,7 +10,8 @@
 //! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
 //! changes the money figures.
 
-use super::realized::{driver_benefits, month_index};
+use super::history::BaselineHistory;
+use super::realized::month_index;
 use super::uncertainty::{Calibration, Trials, calibrated_npv, parse_seed, quantity_ranges, risk_adjusted_npv};
 use super::{
     ApprovalSettings, CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem,
@@ -229,6 +230,10 @@ pub struct CaseParts {
     pub drivers: Vec<(i64, NewBenefitDriver)>,
     /// The settings of its approval, which its figures keep; `None` uses today's.
     pub frozen: Option<ApprovalSettings>,
+    /// Identity of each cost item across versions, in `costs` order.
+    pub cost_uids: Vec<i64>,
+    /// Identity of each driver across versions, in `drivers` order.
+    pub driver_uids: Vec<i64>,
 }
 
 /// A zone's ledger as running totals: what each baseline driver booked (kept in the booking's
@@ -251,6 +256,8 @@ pub struct ZoneData {
     pub case: Option<CaseParts>,
     /// Its ledger totals.
     pub ledger: LedgerTotals,
+    /// Its baseline history (approved and superseded versions), when it has a baseline.
+    pub history: Option<BaselineHistory>,
     /// Readiness scores (criterion id -> 1..5).
     pub scores: HashMap<i64, u8>,
 }
@@ -310,8 +317,8 @@ pub fn zone_base(data: ZoneData, site: &SiteSettings, trials: Trials, previous: 
                 Some(p) if p.inputs.is_some() && p.inputs == inputs => p.figures.clone(),
                 _ => base_figures(c, hurdle, trials),
             };
-            let (realization, evidence) = match (c.baseline, data.ledger.latest) {
-                (true, Some(latest)) => realized(c, &data.ledger, latest, hurdle),
+            let (realization, evidence) = match (&data.history, data.ledger.latest) {
+                (Some(history), Some(latest)) if c.baseline => realized(history, &data.ledger, latest, site),
                 _ => (None, Vec::new()),
             };
             (figures, realization, evidence)
@@ -348,27 +355,34 @@ fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigure
 }
 
 /// Realization to date and per-driver evidence from the ledger totals: months count from the
-/// baseline's start through the latest month with a live entry (as on the ledger page).
+/// history's start through the latest month with a live entry (as on the ledger page); each
+/// month is expected from the baseline in force in it, and a driver's booked money counts for
+/// its identity whichever version it was booked against.
 fn realized(
-    c: &CaseParts,
+    history: &BaselineHistory,
     ledger: &LedgerTotals,
     latest: Month,
-    hurdle: f64,
+    site: &SiteSettings,
 ) -> (Option<f64>, Vec<(DriverKind, Evidence)>) {
-    let elapsed = month_index(c.header.start_month, latest).map_or(0, |i| i + 1).min(c.header.horizon_months as usize);
+    let Ok(expected) = history.expected(site) else { return (None, Vec::new()) };
+    let elapsed = month_index(expected.start, latest).map_or(0, |i| i + 1).min(history.months());
+    let mut measured = vec![Decimal::ZERO; expected.drivers.len()];
+    for (id, amount) in &ledger.drivers {
+        if let Some(line) = expected.line_of(*id) {
+            measured[line] += amount;
+        }
+    }
     let (mut expected_all, mut measured_all) = (Decimal::ZERO, Decimal::ZERO);
-    let mut evidence = Vec::with_capacity(c.drivers.len());
-    for (id, d) in &c.drivers {
-        let Ok(benefits) = driver_benefits(&c.header, d, hurdle) else { continue };
-        let expected: Decimal = benefits.iter().take(elapsed).sum();
-        let months = benefits.iter().take(elapsed).filter(|b| **b > Decimal::ZERO).count();
-        let measured = ledger.drivers.get(id).copied().unwrap_or_default();
-        expected_all += expected;
+    let mut evidence = Vec::with_capacity(expected.drivers.len());
+    for (d, measured) in expected.drivers.iter().zip(measured) {
+        let to_date: Decimal = d.expected.iter().take(elapsed).sum();
+        let months = d.expected.iter().take(elapsed).filter(|b| **b > Decimal::ZERO).count();
+        expected_all += to_date;
         measured_all += measured;
         evidence.push((
             d.kind,
             Evidence {
-                expected: expected.to_f64().unwrap_or(0.0),
+                expected: to_date.to_f64().unwrap_or(0.0),
                 measured: measured.to_f64().unwrap_or(0.0),
                 months: u32::try_from(months).unwrap_or(u32::MAX),
             },

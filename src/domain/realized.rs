@@ -1,12 +1,14 @@
-//! The realized view of a zone: its ledger against its approved baseline, month by month.
+//! The realized view of a zone: its ledger against its baseline history, month by month.
 //!
-//! Months are counted from the baseline's start month. "Elapsed" runs through the latest month
+//! Months are counted from the history's earliest start month; each month is measured against
+//! the baseline in force in it ([`super::history`]). "Elapsed" runs through the latest month
 //! with a live booking (neither reversed nor a reversal, [`LedgerEntry::is_live`]), so a month
 //! not yet booked does not pull the realization rate down, and a booking reversed later does
 //! not stretch the window either. Dated flows carry a spending entry's payment date, or the
 //! month's end.
 
-use super::{CaseHeader, EntryKind, LedgerEntry, Month, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
+use super::history::{BaselineHistory, settings_of};
+use super::{CaseHeader, EntryKind, LedgerEntry, Month, NewBenefitDriver, SiteSettings, finance_input};
 use crate::finance::schedule::build_schedule;
 use crate::finance::{FinanceError, Realization, RealizedReturn, forecast_at_completion, realization, realized_return};
 use rust_decimal::Decimal;
@@ -14,8 +16,12 @@ use rust_decimal::Decimal;
 /// Expected vs measured for one benefit driver.
 #[derive(Debug, Clone)]
 pub struct DriverRealization {
-    /// Driver id.
+    /// Driver id in the latest baseline that has it (the current one unless retired).
     pub id: i64,
+    /// Its identity across versions.
+    pub uid: i64,
+    /// Whether the current baseline has it (else it was retired by a re-baseline).
+    pub current: bool,
     /// Driver label.
     pub label: String,
     /// Unit of the driver.
@@ -33,6 +39,8 @@ pub struct DriverRealization {
 /// The whole realized view.
 #[derive(Debug, Clone)]
 pub struct RealizedView {
+    /// The first month of the monthly figures (the history's earliest start).
+    pub start: Month,
     /// Months through the latest booking (0 when nothing is booked).
     pub elapsed: usize,
     /// Per driver.
@@ -77,76 +85,71 @@ pub(crate) fn month_index(start: Month, m: Month) -> Option<usize> {
     usize::try_from(i).ok()
 }
 
-/// Compute the realized view of `entries` against the baseline parts.
+/// Compute the realized view of `entries` (all of the zone's, whichever version they were
+/// booked against) against the baseline history: each month's expectation comes from the
+/// baseline in force in it (see [`super::history`]), measured money counts for its driver's
+/// identity. `today` fills what a baseline did not freeze; XNPV uses the current baseline's
+/// hurdle rate.
 pub fn realized_view(
-    header: &CaseHeader,
-    costs: &[(i64, NewCostItem)],
-    drivers: &[(i64, NewBenefitDriver)],
+    history: &BaselineHistory,
     entries: &[LedgerEntry],
-    site: &SiteSettings,
+    today: &SiteSettings,
 ) -> Result<RealizedView, FinanceError> {
-    let n = header.horizon_months as usize;
-    let hurdle = site.hurdle_f64();
-    let expected_net: Vec<Decimal> = build_schedule(
-        &finance_input(header, costs.iter().map(|(_, c)| c), drivers.iter().map(|(_, d)| d), None),
-        hurdle,
-    )?
-    .net_flows();
-    let spending_expected: Vec<Decimal> =
-        build_schedule(&finance_input(header, costs.iter().map(|(_, c)| c), [], None), hurdle)?.net_flows();
+    let n = history.months();
+    let hurdle = settings_of(history.current(), today).hurdle_f64();
+    let expected = history.expected(today)?;
+    let start = expected.start;
     let mut measured_net = vec![Decimal::ZERO; n];
     let mut measured_spend = vec![Decimal::ZERO; n];
+    let mut measured = vec![vec![Decimal::ZERO; n]; expected.drivers.len()];
+    let mut measured_quantity = vec![Decimal::ZERO; expected.drivers.len()];
     let mut elapsed = 0;
     for e in entries {
-        if let Some(i) = month_index(header.start_month, e.period).filter(|i| *i < n) {
-            measured_net[i] += e.amount;
-            if e.kind == EntryKind::Spending {
-                measured_spend[i] += e.amount;
-            }
-            if e.is_live() {
-                elapsed = elapsed.max(i + 1);
-            }
+        let Some(i) = month_index(start, e.period).filter(|i| *i < n) else { continue };
+        measured_net[i] += e.amount;
+        if e.kind == EntryKind::Spending {
+            measured_spend[i] += e.amount;
+        }
+        if let Some(line) = e.driver_id.and_then(|d| expected.line_of(d)) {
+            measured[line][i] += e.amount;
+            measured_quantity[line] += e.quantity.unwrap_or_default();
+        }
+        if e.is_live() {
+            elapsed = elapsed.max(i + 1);
         }
     }
-    let mut out_drivers = Vec::with_capacity(drivers.len());
+    let mut out_drivers = Vec::with_capacity(expected.drivers.len());
     let (mut all_expected, mut all_measured) = (vec![Decimal::ZERO; n], vec![Decimal::ZERO; n]);
-    for (id, d) in drivers {
-        let expected = driver_benefits(header, d, hurdle)?;
-        let mut measured = vec![Decimal::ZERO; n];
-        let mut measured_quantity = Decimal::ZERO;
-        for e in entries.iter().filter(|e| e.driver_id == Some(*id)) {
-            if let Some(i) = month_index(header.start_month, e.period).filter(|i| *i < n) {
-                measured[i] += e.amount;
-                measured_quantity += e.quantity.unwrap_or_default();
-            }
-        }
+    for ((d, measured), measured_quantity) in expected.drivers.iter().zip(measured).zip(measured_quantity) {
         for i in 0..n {
-            all_expected[i] += expected[i];
+            all_expected[i] += d.expected[i];
             all_measured[i] += measured[i];
         }
-        let realization = realization(&expected, &measured, elapsed);
         out_drivers.push(DriverRealization {
-            id: *id,
+            id: d.id,
+            uid: d.uid,
+            current: d.current,
             label: d.label.clone(),
             unit: d.unit.clone(),
-            expected,
+            realization: realization(&d.expected, &measured, elapsed),
+            expected: d.expected.clone(),
             measured,
             measured_quantity,
-            realization,
         });
     }
     let flows: Vec<(time::Date, Decimal)> =
         entries.iter().filter_map(|e| e.paid_on.or_else(|| month_end(e.period)).map(|d| (d, e.amount))).collect();
     let realized = if flows.is_empty() { None } else { Some(realized_return(hurdle, &flows)?) };
     Ok(RealizedView {
+        start,
         elapsed,
         savings: realization(&all_expected, &all_measured, elapsed),
         savings_forecast: forecast_at_completion(&all_expected, &all_measured, elapsed),
         savings_expected_total: all_expected.iter().sum(),
         spending_to_date: measured_spend.iter().take(elapsed).sum(),
-        spending_expected_to_date: spending_expected.iter().take(elapsed).sum(),
+        spending_expected_to_date: expected.spending.iter().take(elapsed).sum(),
         drivers: out_drivers,
-        expected_net,
+        expected_net: expected.net,
         measured_net,
         realized,
     })

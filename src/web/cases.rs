@@ -681,3 +681,77 @@ pub async fn reject(
     review_case(&state, &user, id, ReviewStep::Reject, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
+
+/// One baseline of a zone's history as the zone and ledger pages list it.
+pub struct BaselineLine {
+    /// Case version id.
+    pub case_id: i64,
+    /// Version number.
+    pub version: u32,
+    /// Scenario label.
+    pub label: String,
+    /// First month it is in force (the first baseline: the history's start month).
+    pub from: String,
+    /// Last month it was in force, for a superseded baseline (`None`: the current one).
+    pub until: Option<String>,
+    /// Whether a later approval replaced it before its first month.
+    pub never_in_force: bool,
+    /// Who approved it and when (date).
+    pub approved_by: String,
+    /// Approval date.
+    pub approved_on: String,
+    /// How: "second person", or the self-approval or scenario note.
+    pub how: String,
+    /// The approver's comment: why.
+    pub comment: String,
+}
+
+impl BaselineLine {
+    /// The line as the ledger API gives it.
+    pub fn json(&self) -> serde_json::Value {
+        serde_json::json!({
+            "case_id": self.case_id, "version": self.version, "label": self.label,
+            "in_force_from": self.from, "in_force_until": self.until, "never_in_force": self.never_in_force,
+            "approved_by": self.approved_by, "approved_on": self.approved_on, "approval": self.how,
+            "comment": self.comment,
+        })
+    }
+}
+
+/// A zone's baseline history (approved and superseded versions in approval order) in words:
+/// which version, in force from which month to which, approved by whom, how and why.
+pub fn baseline_lines(history: &[CaseFull]) -> Vec<BaselineLine> {
+    let Some(start) = history.iter().map(|b| b.case.header.start_month).min() else { return Vec::new() };
+    let froms: Vec<crate::domain::Month> = history
+        .iter()
+        .enumerate()
+        .map(|(i, b)| if i == 0 { start } else { b.case.in_force_from.unwrap_or(b.case.header.start_month) })
+        .collect();
+    history
+        .iter()
+        .enumerate()
+        .map(|(i, b)| {
+            let r = &b.case.review;
+            let next = froms.get(i + 1).copied();
+            BaselineLine {
+                case_id: b.case.id,
+                version: b.case.version,
+                label: b.case.header.label.clone(),
+                from: froms[i].to_string(),
+                until: next.filter(|n| *n > froms[i]).map(|n| month_before(n).to_string()),
+                never_in_force: next.is_some_and(|n| n <= froms[i]),
+                approved_by: r.approved_by.clone().unwrap_or_default(),
+                approved_on: r.approved_at.as_deref().map_or("", |a| a.get(..10).unwrap_or(a)).to_string(),
+                how: r.approval_note().unwrap_or_else(|| "four eyes: approved by a second person".into()),
+                comment: r.approve_comment.clone(),
+            }
+        })
+        .collect()
+}
+
+fn month_before(m: crate::domain::Month) -> crate::domain::Month {
+    match m.month {
+        1 => crate::domain::Month { year: m.year - 1, month: 12 },
+        n => crate::domain::Month { year: m.year, month: n - 1 },
+    }
+}

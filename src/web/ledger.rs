@@ -1,13 +1,13 @@
 //! The controller's ledger: booking forms and API (direct, normalized, spending), reversals,
-//! CSV import and export, and the realized view against the approved baseline.
+//! CSV import and export, and the realized view against the baseline history.
 
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::PairChart;
 use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
-    Booking, BookingBaseline, BookingInput, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry, NumberFormat,
-    Percent, Plausibility, RealizedView, SiteSettings, Zone, quantity, realized_view,
+    Booking, BookingBaseline, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry,
+    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -116,6 +116,8 @@ struct LedgerPage {
     notes: Vec<(&'static str, String)>,
     zone: Zone,
     baseline: Option<CaseFull>,
+    /// The baseline history, oldest first.
+    baselines: Vec<super::cases::BaselineLine>,
     can_book: bool,
     figures: Option<Figures>,
     entries: Vec<EntryRow>,
@@ -185,7 +187,8 @@ fn figures(view: &RealizedView) -> Figures {
             .drivers
             .iter()
             .map(|d| DriverRow {
-                label: d.label.clone(),
+                // A driver a re-baseline retired keeps its booked months; the name says so.
+                label: if d.current { d.label.clone() } else { format!("{} (retired)", d.label) },
                 unit: d.unit.clone(),
                 expected: Money(d.realization.expected_to_date),
                 measured: Money(d.realization.measured_to_date),
@@ -198,39 +201,47 @@ fn figures(view: &RealizedView) -> Figures {
     }
 }
 
-/// The baseline and entries of a zone, with the realized view at the baseline's settings
-/// (those of its approval), which are the settings returned.
-async fn load(
-    state: &AppState,
-    zone_id: i64,
-) -> Result<(SiteSettings, Zone, Option<CaseFull>, Vec<LedgerEntry>, Option<RealizedView>), AppError> {
+/// What the ledger page and API read: the settings of the current baseline (those of its
+/// approval), the zone, the baseline history (approval order, the current baseline last), the
+/// entries and the realized view against the history.
+type Loaded = (SiteSettings, Zone, Vec<CaseFull>, Vec<LedgerEntry>, Option<RealizedView>);
+
+/// The baseline history and entries of a zone, with the realized view (see [`Loaded`]).
+async fn load(state: &AppState, zone_id: i64) -> Result<Loaded, AppError> {
     let today = db::get_site(&state.pool).await?;
     let zone = db::get_zone(&state.pool, zone_id).await?;
-    let baseline = db::baseline_of(&state.pool, zone_id).await?;
-    let site = baseline.as_ref().map_or_else(|| today.clone(), |b| b.case.settings(&today));
+    let history = db::baseline_history(&state.pool, zone_id).await?;
+    let site = current(&history).map_or_else(|| today.clone(), |b| b.case.settings(&today));
     let entries = db::ledger::zone_entries(&state.pool, zone_id).await?;
-    let view = match &baseline {
-        Some(b) => {
-            let costs: Vec<_> = b.costs.iter().map(|c| (c.id, c.item.clone())).collect();
-            let drivers: Vec<_> = b.drivers.iter().map(|d| (d.id, d.driver.clone())).collect();
-            let relevant: Vec<LedgerEntry> = entries.iter().filter(|e| e.case_id == b.case.id).cloned().collect();
-            Some(
-                realized_view(&b.case.header, &costs, &drivers, &relevant, &site)
-                    .map_err(|e| AppError::Conflict(format!("the realized figures cannot be computed: {e}")))?,
-            )
-        }
+    let view = match db::history_of(&history) {
+        Some(h) => Some(
+            realized_view(&h, &entries, &today)
+                .map_err(|e| AppError::Conflict(format!("the realized figures cannot be computed: {e}")))?,
+        ),
         None => None,
     };
-    Ok((site, zone, baseline, entries, view))
+    Ok((site, zone, history, entries, view))
 }
 
-fn item_name(baseline: &Option<CaseFull>, e: &LedgerEntry) -> String {
-    let Some(b) = baseline else { return String::new() };
-    match e.kind {
-        EntryKind::Saving => b.drivers.iter().find(|d| Some(d.id) == e.driver_id).map(|d| d.driver.label.clone()),
-        EntryKind::Spending => b.costs.iter().find(|c| Some(c.id) == e.cost_id).map(|c| c.item.label.clone()),
-    }
-    .unwrap_or_else(|| format!("item of version {}", e.case_id))
+/// The current baseline: the history's last version, when it is approved.
+pub(super) fn current(history: &[CaseFull]) -> Option<&CaseFull> {
+    history.last().filter(|b| b.case.state == CaseState::Approved)
+}
+
+/// An entry's item as the current baseline names it: an item of an older version shows under
+/// its identity's latest label (the current one's, unless it was retired).
+fn item_name(history: &[CaseFull], e: &LedgerEntry) -> String {
+    let latest = |uid: i64, saving: bool| {
+        history.iter().rev().find_map(|b| match saving {
+            true => b.drivers.iter().find(|d| d.item_uid == uid).map(|d| d.driver.label.clone()),
+            false => b.costs.iter().find(|c| c.item_uid == uid).map(|c| c.item.label.clone()),
+        })
+    };
+    let uid = history.iter().find_map(|b| match e.kind {
+        EntryKind::Saving => b.drivers.iter().find(|d| Some(d.id) == e.driver_id).map(|d| d.item_uid),
+        EntryKind::Spending => b.costs.iter().find(|c| Some(c.id) == e.cost_id).map(|c| c.item_uid),
+    });
+    uid.and_then(|u| latest(u, e.kind == EntryKind::Saving)).unwrap_or_else(|| format!("item of version {}", e.case_id))
 }
 
 async fn page(
@@ -253,7 +264,7 @@ async fn page_with(
     notice: Option<String>,
     info: Option<String>,
 ) -> Result<Response, AppError> {
-    let (site, zone, baseline, entries, view) = load(state, zone_id).await?;
+    let (site, zone, history, entries, view) = load(state, zone_id).await?;
     let rows = entries
         .into_iter()
         .rev()
@@ -264,7 +275,7 @@ async fn page_with(
                 }
                 _ => String::new(),
             };
-            EntryRow { item: item_name(&baseline, &e), amount: Money(e.amount), inputs, e, token: form_token() }
+            EntryRow { item: item_name(&history, &e), amount: Money(e.amount), inputs, e, token: form_token() }
         })
         .collect();
     let status = if !errors.is_empty() {
@@ -274,10 +285,12 @@ async fn page_with(
     } else {
         StatusCode::OK
     };
+    let baseline = current(&history).cloned();
     let notes = match &baseline {
         Some(b) => b.case.notes(&db::get_site(&state.pool).await?),
         None => Vec::new(),
     };
+    let baselines = super::cases::baseline_lines(&history);
     let page = LedgerPage {
         nav: Nav::from(me),
         notes,
@@ -292,6 +305,7 @@ async fn page_with(
         site,
         zone,
         baseline,
+        baselines,
         entries: rows,
         form,
         errors,
@@ -771,7 +785,7 @@ pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppEr
 
 /// GET /api/v1/zones/{id}/ledger: entries and realized figures.
 pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
-    let (site, _, baseline, entries, view) = load(&state, id).await?;
+    let (site, _, history, entries, view) = load(&state, id).await?;
     let realized = view.map(|v| {
         json!({
             "elapsed_months": v.elapsed,
@@ -785,8 +799,11 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
             "xirr_ambiguous": v.realized.as_ref().is_some_and(|r| r.ambiguous),
             "xirr_roots": v.realized.as_ref().map(|r| r.roots.iter().map(|x| super::metrics::rate_text(*x)).collect::<Vec<_>>()).unwrap_or_default(),
             "xirr_note": v.realized.as_ref().and_then(|r| r.xirr_note.clone()),
+            "start_month": v.start.to_string(),
             "drivers": v.drivers.iter().map(|d| json!({
-                "id": d.id, "label": d.label, "expected_to_date": d.realization.expected_to_date.to_string(),
+                "id": d.id, "item_uid": d.uid, "current": d.current, "label": d.label,
+                "expected": d.expected.iter().map(|x| x.to_string()).collect::<Vec<_>>(),
+                "measured": d.measured.iter().map(|x| x.to_string()).collect::<Vec<_>>(), "expected_to_date": d.realization.expected_to_date.to_string(),
                 "measured_to_date": d.realization.measured_to_date.to_string(),
                 "realization": d.realization.rate.map(super::metrics::rate_text),
             })).collect::<Vec<_>>(),
@@ -794,7 +811,8 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
     });
     let (currency, hurdle_rate) = (&site.currency, site.hurdle_rate.to_string());
     Ok(Json(json!({
-        "baseline_case_id": baseline.map(|b| b.case.id),
+        "baseline_case_id": current(&history).map(|b| b.case.id),
+        "baselines": super::cases::baseline_lines(&history).iter().map(super::cases::BaselineLine::json).collect::<Vec<_>>(),
         "currency": currency,
         "hurdle_rate": hurdle_rate,
         "entries": entries,

@@ -120,6 +120,8 @@ pub async fn create(
 #[template(path = "zones/detail.html")]
 struct DetailPage {
     nav: Nav,
+    /// The baseline history, oldest first.
+    baselines: Vec<super::cases::BaselineLine>,
     site: SiteSettings,
     zone: Zone,
     /// Each version with its figures and the hurdle rate they use ("9 % at approval").
@@ -198,8 +200,10 @@ async fn detail_with(
         })
         .collect();
     let statuses = std::iter::once(zone.status).chain(zone.status.next().iter().copied()).collect();
+    let baselines = super::cases::baseline_lines(&db::baseline_history(&state.pool, id).await?);
     Ok(DetailPage {
         nav,
+        baselines,
         site,
         zone,
         versions,

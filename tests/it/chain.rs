@@ -393,18 +393,7 @@ async fn every_column_is_chained() {
 #[tokio::test]
 async fn rows_from_before_the_chain_are_sealed_once() {
     let dir = tempfile::tempdir().unwrap();
-    let old = dir.path().join("old-migrations");
-    std::fs::create_dir(&old).unwrap();
-    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
-        let f = f.unwrap();
-        let name = f.file_name().into_string().unwrap();
-        if name.as_str() < "0007" {
-            std::fs::copy(f.path(), old.join(&name)).unwrap();
-        }
-    }
-    let url = format!("sqlite://{}", dir.path().join("old.db").display());
-    let pool = db::connect(&url).await.unwrap();
-    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
+    let pool = crate::helpers::pool_before(dir.path(), "0007").await;
     for sql in [
         "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
          VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",

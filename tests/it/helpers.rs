@@ -171,3 +171,21 @@ pub fn token_in(page: &str, action: &str) -> String {
     let at = page.find(action).unwrap_or_else(|| panic!("no form posting to {action}")) + action.len();
     page[at..].chars().take_while(|c| c.is_ascii_alphanumeric() || *c == '-' || *c == '_').collect()
 }
+
+/// A database file in `dir` migrated only up to (not including) migration `before` (e.g.
+/// `"0007"`), for tests of what a later migration does with older rows.
+pub async fn pool_before(dir: &std::path::Path, before: &str) -> SqlitePool {
+    let old = dir.join("old-migrations");
+    std::fs::create_dir(&old).unwrap();
+    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
+        let f = f.unwrap();
+        let name = f.file_name().into_string().unwrap();
+        if name.as_str() < before {
+            std::fs::copy(f.path(), old.join(&name)).unwrap();
+        }
+    }
+    let url = format!("sqlite://{}", dir.join("old.db").display());
+    let pool = pilot_ledger::db::connect(&url).await.unwrap();
+    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
+    pool
+}

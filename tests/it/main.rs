@@ -9,6 +9,7 @@ mod cli;
 mod faults;
 mod finance;
 mod helpers;
+mod history;
 mod hostile;
 mod ledger;
 mod numbers;
