@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # CSV import at scale: a fresh database with the demo plant, one file of N rows (default
 # 100,000) for PRESS-2 posted to the import form's route, timed by curl; then the entries are
-# counted. Usage: benches/import.sh [rows]
+# counted (the form route takes a one-time token in its URL: any fresh value). Usage: benches/import.sh [rows]
 set -euo pipefail
 cd "$(dirname "$0")/.."
 ROWS=${1:-100000}
@@ -31,7 +31,7 @@ ZONE=$(python3 -c "import sqlite3,sys; print(sqlite3.connect(sys.argv[1]).execut
 BEFORE=$(python3 -c "import sqlite3,sys; print(sqlite3.connect(sys.argv[1]).execute('SELECT COUNT(*) FROM ledger_entries').fetchone()[0])" "$DB")
 echo "file: $(du -h "$DIR/rows.csv" | cut -f1), $ROWS rows"
 curl -s -o /dev/null -w "import: HTTP %{http_code} in %{time_total} s\n" -H "authorization: Bearer $TOKEN" \
-  -F "file=@$DIR/rows.csv;type=text/csv" "http://$ADDR/zones/$ZONE/ledger/import"
+  -F "file=@$DIR/rows.csv;type=text/csv" "http://$ADDR/zones/$ZONE/ledger/import?form=bench-$$"
 AFTER=$(python3 -c "import sqlite3,sys; print(sqlite3.connect(sys.argv[1]).execute('SELECT COUNT(*) FROM ledger_entries').fetchone()[0])" "$DB")
 echo "entries added: $((AFTER - BEFORE))"
 echo "server peak resident memory: $(grep VmHWM /proc/$SERVER/status | awk '{print $2, $3}')"
