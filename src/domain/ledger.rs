@@ -486,13 +486,34 @@ impl BookingBaseline {
             return Err(e);
         }
         let value = unit_value.unwrap_or_default();
+        // Checked: intensity and volume may each be 1e12, and Decimal panics on overflow.
+        let priced = |field: &'static str, q: Decimal| {
+            q.checked_mul(value).ok_or_else(|| {
+                FieldErrors::one(field, "the amount (quantity × the driver's unit value) is too large to book")
+            })
+        };
         let (quantity, amount, inputs) = match &b.measurement {
-            Measurement::Direct { quantity } => (Some(*quantity), *quantity * value, [None, None, None]),
+            Measurement::Direct { quantity } => (Some(*quantity), priced("quantity", *quantity)?, [None, None, None]),
             Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+                let too_large = || {
+                    let f = NumberFormat::current();
+                    FieldErrors::one(
+                        "reporting_volume",
+                        format!(
+                            "the avoided quantity (baseline intensity × volume − consumption) must be at most {} in \
+                             size",
+                            f.write(MAX_MAGNITUDE, 0)
+                        ),
+                    )
+                };
                 let q =
                     crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
-                        .map_err(|err| FieldErrors::one("baseline_intensity", err.to_string()))?;
-                (Some(q), q * value, [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)])
+                        .map_err(|_| too_large())?;
+                if q.abs() > MAX_MAGNITUDE {
+                    return Err(too_large());
+                }
+                let inputs = [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)];
+                (Some(q), priced("reporting_volume", q)?, inputs)
             }
             Measurement::Spend { amount } => (None, -*amount, [None, None, None]),
         };
