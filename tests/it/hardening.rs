@@ -100,3 +100,123 @@ async fn a_panicking_handler_answers_500_without_detail() {
     let fine = t.get("/fine").await;
     assert_eq!((fine.status, fine.text.as_str()), (StatusCode::OK, "fine"));
 }
+
+async fn book_keyed(t: &TestApp, path: &str, key: &str, body: &str) -> crate::helpers::Answer {
+    use axum::body::Body;
+    use axum::http::{Request, header};
+    let req = Request::post(path)
+        .header(header::CONTENT_TYPE, "application/json")
+        .header("idempotency-key", key)
+        .body(Body::from(body.to_string()))
+        .unwrap();
+    t.send(req).await
+}
+
+/// The error of raw SQL that a trigger must refuse.
+async fn refused(t: &TestApp, sql: &'static str, binds: &[i64]) -> String {
+    let mut q = sqlx::query(sql);
+    for b in binds {
+        q = q.bind(*b);
+    }
+    q.execute(&t.pool).await.expect_err(sql).to_string()
+}
+
+#[tokio::test]
+async fn insert_or_replace_is_refused_on_every_keyed_table() {
+    let t = test_app(false).await;
+    let z = zone_priced(&t, "RPL-1", "0.20").await;
+    let controller = t.as_role(Some(Role::Controller));
+    let path = format!("/api/v1/zones/{}/ledger", z.id);
+    let body = json!({"kind": "saving", "method": "direct", "item": z.driver, "period": "2025-03", "quantity": "100",
+                      "evidence": "meter"})
+    .to_string();
+    let first = book_keyed(&controller, &path, "rpl-1", &body).await;
+    assert_eq!(first.status, StatusCode::CREATED, "{}", first.text);
+    let copy = t.post_json(&format!("/api/v1/cases/{}/copy", z.case), r#"{"label": "Draft"}"#).await;
+    assert_eq!(copy.status, StatusCode::CREATED, "{}", copy.text);
+    let draft = copy.json()["case"]["id"].as_i64().unwrap();
+    sqlx::query("INSERT INTO form_submissions (token, user_id, outcome, used_at) VALUES ('tok-1', 1, 'entry 1', 'x')")
+        .execute(&t.pool)
+        .await
+        .unwrap();
+
+    let cases = [
+        (
+            refused(&t, "INSERT OR REPLACE INTO idempotency_keys (user_id, key, fingerprint, entry_id, used_at) \
+                         SELECT user_id, key, 'forged', entry_id, used_at FROM idempotency_keys", &[])
+            .await,
+            "idempotency keys are append-only: an existing key cannot be replaced",
+        ),
+        (
+            refused(&t, "REPLACE INTO form_submissions (token, user_id, outcome, used_at) VALUES ('tok-1', 1, 'entry 9', 'x')", &[])
+                .await,
+            "form submissions are append-only: an existing token cannot be replaced",
+        ),
+        (refused(&t, "REPLACE INTO user_ids (id, last) VALUES (1, 0)", &[]).await, "user ids are never reused"),
+        (
+            // Over the approved baseline, by id: its frozen settings and approval would go.
+            refused(
+                &t,
+                "REPLACE INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
+                     ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
+                 VALUES (?, ?, 7, 'Rewritten', 12, '2025-01', 0, 0, '1', 'draft', 'x', 'x', 'x', 'x')",
+                &[z.case, z.id],
+            )
+            .await,
+            "case versions cannot be replaced: save a new scenario version",
+        ),
+        (
+            // By (zone, version) under a new id.
+            refused(
+                &t,
+                "REPLACE INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
+                     ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
+                 VALUES (9999, ?, 1, 'Rewritten', 12, '2025-01', 0, 0, '1', 'draft', 'x', 'x', 'x', 'x')",
+                &[z.id],
+            )
+            .await,
+            "case versions cannot be replaced: save a new scenario version",
+        ),
+        (
+            // The approved item's id moved into the draft: it would leave the baseline.
+            refused(
+                &t,
+                "REPLACE INTO cost_items (id, case_id, label, category, kind, amount, month_offset, escalation, capex,
+                     created_at, created_by) VALUES (?, ?, 'X', 'other', 'one_off', '1', 0, '0', 0, 'x', 'x')",
+                &[z.sensors, draft],
+            )
+            .await,
+            "cost items cannot be replaced: add a new item",
+        ),
+        (
+            refused(
+                &t,
+                "REPLACE INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
+                     escalation, created_at, created_by) VALUES (?, ?, 'X', 'other', 'h', '1', '1', '1', '1', '0', 'x', 'x')",
+                &[z.driver, draft],
+            )
+            .await,
+            "benefit drivers cannot be replaced: add a new driver",
+        ),
+    ];
+    for (error, message) in cases {
+        assert!(error.contains(message), "{error}");
+    }
+    let baseline: (String, String, Option<String>) =
+        sqlx::query_as("SELECT label, state, approved_by FROM case_versions WHERE id = ?")
+            .bind(z.case)
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+    assert_eq!(baseline, ("Base".into(), "approved".into(), Some("t-admin".into())));
+
+    // Positive controls: the app's own paths still write these tables.
+    let replay = book_keyed(&controller, &path, "rpl-1", &body).await;
+    assert_eq!(replay.status, StatusCode::OK, "{}", replay.text);
+    assert_eq!(replay.json()["entry"]["id"], first.json()["entry"]["id"]);
+    let form = "label=Cabling&category=hardware&kind=one_off&amount=500&month_offset=0";
+    assert_eq!(t.post_form(&format!("/cases/{draft}/costs"), form).await.status, StatusCode::SEE_OTHER);
+    let second = book_keyed(&controller, &path, "rpl-2", &body.replace("2025-03", "2025-04")).await;
+    assert_eq!(second.status, StatusCode::CREATED, "{}", second.text);
+    assert!(t.as_new_user("t-second-lead", Role::Lead).await.cookie.is_some());
+}

@@ -1,0 +1,36 @@
+-- Hardening after review (issue 11).
+
+-- INSERT OR REPLACE deletes the conflicting row without firing DELETE triggers (migration
+-- 0007), so every table whose rows are append-only or frozen refuses an insert over an existing
+-- key. A REPLACE over an approved case version would rewrite its frozen settings and approval.
+-- Readiness scores and criteria are edited in place (an upsert), so they are not guarded here.
+CREATE TRIGGER idempotency_keys_no_replace BEFORE INSERT ON idempotency_keys
+WHEN EXISTS (SELECT 1 FROM idempotency_keys WHERE user_id = NEW.user_id AND key = NEW.key)
+BEGIN
+    SELECT RAISE(ABORT, 'idempotency keys are append-only: an existing key cannot be replaced');
+END;
+CREATE TRIGGER form_submissions_no_replace BEFORE INSERT ON form_submissions
+WHEN EXISTS (SELECT 1 FROM form_submissions WHERE token = NEW.token)
+BEGIN
+    SELECT RAISE(ABORT, 'form submissions are append-only: an existing token cannot be replaced');
+END;
+CREATE TRIGGER user_ids_no_replace BEFORE INSERT ON user_ids
+WHEN EXISTS (SELECT 1 FROM user_ids)
+BEGIN
+    SELECT RAISE(ABORT, 'user ids are never reused');
+END;
+CREATE TRIGGER case_versions_no_replace BEFORE INSERT ON case_versions
+WHEN EXISTS (SELECT 1 FROM case_versions WHERE id = NEW.id OR (zone_id = NEW.zone_id AND version = NEW.version))
+BEGIN
+    SELECT RAISE(ABORT, 'case versions cannot be replaced: save a new scenario version');
+END;
+CREATE TRIGGER cost_items_no_replace BEFORE INSERT ON cost_items
+WHEN EXISTS (SELECT 1 FROM cost_items WHERE id = NEW.id)
+BEGIN
+    SELECT RAISE(ABORT, 'cost items cannot be replaced: add a new item');
+END;
+CREATE TRIGGER benefit_drivers_no_replace BEFORE INSERT ON benefit_drivers
+WHEN EXISTS (SELECT 1 FROM benefit_drivers WHERE id = NEW.id)
+BEGIN
+    SELECT RAISE(ABORT, 'benefit drivers cannot be replaced: add a new driver');
+END;
