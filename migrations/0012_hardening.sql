@@ -34,3 +34,13 @@ WHEN EXISTS (SELECT 1 FROM benefit_drivers WHERE id = NEW.id)
 BEGIN
     SELECT RAISE(ABORT, 'benefit drivers cannot be replaced: add a new driver');
 END;
+
+-- User ids after an upgrade: 0007 seeded user_ids.last from the users left, but a release
+-- before it let users be deleted behind the app's back, leaving their tokens and sessions. The
+-- next id given must lie above every id those still name, and they stop working now.
+UPDATE user_ids SET last = max(last,
+    COALESCE((SELECT MAX(user_id) FROM api_tokens), 0),
+    COALESCE((SELECT MAX(user_id) FROM sessions), 0));
+UPDATE api_tokens SET revoked_at = strftime('%Y-%m-%dT%H:%M:%SZ', 'now'), revoked_by = 'migration 0012'
+WHERE revoked_at IS NULL AND user_id NOT IN (SELECT id FROM users);
+DELETE FROM sessions WHERE user_id NOT IN (SELECT id FROM users);

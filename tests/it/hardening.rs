@@ -220,3 +220,60 @@ async fn insert_or_replace_is_refused_on_every_keyed_table() {
     assert_eq!(second.status, StatusCode::CREATED, "{}", second.text);
     assert!(t.as_new_user("t-second-lead", Role::Lead).await.cookie.is_some());
 }
+
+/// A database at migration 0006 (before `user_ids`), as an older release left it.
+async fn database_before(dir: &std::path::Path, before: &str) -> sqlx::SqlitePool {
+    let old = dir.join("old-migrations");
+    std::fs::create_dir(&old).unwrap();
+    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
+        let f = f.unwrap();
+        let name = f.file_name().into_string().unwrap();
+        if name.as_str() < before {
+            std::fs::copy(f.path(), old.join(&name)).unwrap();
+        }
+    }
+    let url = format!("sqlite://{}", dir.join("old.db").display());
+    let pool = pilot_ledger::db::connect(&url).await.unwrap();
+    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
+    pool
+}
+
+#[tokio::test]
+async fn ids_of_users_deleted_before_the_upgrade_are_never_given_again() {
+    use sqlx::Connection;
+    let dir = tempfile::tempdir().unwrap();
+    let pool = database_before(dir.path(), "0007").await;
+    // Users 1 to 3 with a token and a session each; then user 3 is deleted with the sqlite3
+    // shell (foreign keys off, as it starts), and a token of a user 4 deleted earlier remains.
+    let mut conn = pool.acquire().await.unwrap();
+    for sql in [
+        "INSERT INTO users (id, name, role, password_hash, created_at, created_by, updated_at, updated_by)
+         VALUES (1, 'ann', 'admin', '$argon2id$x', 't', 'u', 't', 'u'), (2, 'bo', 'lead', '$argon2id$x', 't', 'u', 't', 'u'),
+                (3, 'cy', 'controller', '$argon2id$x', 't', 'u', 't', 'u')",
+        "INSERT INTO api_tokens (id, user_id, label, token_hash, created_at, created_by)
+         VALUES (1, 1, 'a', 'h1', 't', 'u'), (2, 3, 'c', 'h3', 't', 'u')",
+        "INSERT INTO sessions (id_hash, user_id, created_at, last_seen_at) VALUES ('s1', 1, 't', 't'), ('s3', 3, 't', 't')",
+        "PRAGMA foreign_keys = OFF",
+        "DELETE FROM users WHERE id = 3",
+        "INSERT INTO api_tokens (id, user_id, label, token_hash, created_at, created_by) VALUES (3, 4, 'd', 'h4', 't', 'u')",
+        "PRAGMA foreign_keys = ON",
+    ] {
+        sqlx::query(sql).execute(&mut *conn).await.unwrap();
+    }
+    conn.detach().close().await.unwrap();
+    pilot_ledger::db::migrate(&pool).await.unwrap();
+
+    let last: i64 = sqlx::query_scalar("SELECT last FROM user_ids").fetch_one(&pool).await.unwrap();
+    assert_eq!(last, 4);
+    let tokens: Vec<(i64, Option<String>)> =
+        sqlx::query_as("SELECT id, revoked_by FROM api_tokens ORDER BY id").fetch_all(&pool).await.unwrap();
+    // Positive control: the token of user 1, who still exists, keeps working.
+    assert_eq!(tokens, [(1, None), (2, Some("migration 0012".into())), (3, Some("migration 0012".into()))]);
+    let sessions: Vec<String> = sqlx::query_scalar("SELECT id_hash FROM sessions").fetch_all(&pool).await.unwrap();
+    assert_eq!(sessions, ["s1"]);
+    // The next user created gets id 5: no token or session names it.
+    let id = pilot_ledger::web::admin::create_user(&pool, "newcomer", Role::Admin, crate::helpers::PASSWORD, "test")
+        .await
+        .unwrap();
+    assert_eq!(id, 5);
+}
