@@ -44,3 +44,11 @@ UPDATE user_ids SET last = max(last,
 UPDATE api_tokens SET revoked_at = strftime('%Y-%m-%dT%H:%M:%SZ', 'now'), revoked_by = 'migration 0012'
 WHERE revoked_at IS NULL AND user_id NOT IN (SELECT id FROM users);
 DELETE FROM sessions WHERE user_id NOT IN (SELECT id FROM users);
+
+-- A zone with an approved baseline never returns to candidate either (0008 covers booked money).
+CREATE TRIGGER zones_baseline_never_candidate BEFORE UPDATE OF status ON zones
+WHEN NEW.status = 'candidate' AND OLD.status <> 'candidate'
+     AND EXISTS (SELECT 1 FROM case_versions WHERE zone_id = NEW.id AND state = 'approved')
+BEGIN
+    SELECT RAISE(ABORT, 'a zone with an approved baseline never returns to candidate');
+END;

@@ -4,7 +4,8 @@ use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{
-    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key,
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, ZoneStatus,
+    item_key,
 };
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
@@ -168,7 +169,7 @@ pub async fn book(
                 d.id AS driver_id, d.label AS driver_label, d.unit, d.unit_value, d.qty_high,
                 k.id AS cost_id, k.label AS cost_label, k.kind AS cost_kind, k.amount AS cost_amount,
                 t.amount, t.quantity, t.entries, t.last_period,
-                l.id AS tip_id, l.hash AS tip_hash
+                l.id AS tip_id, l.hash AS tip_hash, z.status AS zone_status
          FROM zones z
          LEFT JOIN idempotency_keys i ON i.user_id = ? AND i.key = ?
          LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved'
@@ -203,6 +204,7 @@ pub async fn book(
         }
         return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
     }
+    bookable(row.try_get("zone_status")?)?;
     let mut baseline = baseline_from(&row)?;
     if let Some(id) = row.try_get::<Option<i64>, _>("driver_id")? {
         baseline.drivers.push(BaselineDriver {
@@ -265,6 +267,22 @@ pub async fn use_form_token(conn: &mut SqliteConnection, token: &str, user_id: i
 
 /// The baseline's case (`case_id`, NULL when the zone has no approved case), start and horizon
 /// from a row; its items are added by the caller.
+/// Refuse a booking on a zone that is not under way ([`ZoneStatus::check_booking`]: 409).
+fn bookable(status: String) -> DbResult<()> {
+    let status = parsed("status", status, ZoneStatus::parse)?;
+    status.check_booking().map_err(DbError::Conflict)
+}
+
+/// Refuse an import into a zone that is not under way (as [`book`] does for one entry).
+pub async fn check_bookable(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<()> {
+    let status: String = sqlx::query_scalar("SELECT status FROM zones WHERE id = ?")
+        .bind(zone_id)
+        .fetch_optional(conn)
+        .await?
+        .ok_or(DbError::NotFound("zone"))?;
+    bookable(status)
+}
+
 fn baseline_from(row: &SqliteRow) -> DbResult<BookingBaseline> {
     let Some(case_id) = row.try_get::<Option<i64>, _>("case_id")? else {
         return Err(no_baseline());

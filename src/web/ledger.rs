@@ -499,6 +499,7 @@ pub async fn import_csv(
     {
         return Ok(Once::Already(outcome));
     }
+    db::ledger::check_bookable(&mut tx, zone_id).await?;
     let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
     if current != checked_with {
         rows = checked_rows(&bytes, &current, day, numbers);

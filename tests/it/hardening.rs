@@ -277,3 +277,72 @@ async fn ids_of_users_deleted_before_the_upgrade_are_never_given_again() {
         .unwrap();
     assert_eq!(id, 5);
 }
+
+async fn move_zone(t: &TestApp, zone: i64, to: &str) -> crate::helpers::Answer {
+    t.post_json(&format!("/api/v1/zones/{zone}/status"), &json!({"status": to}).to_string()).await
+}
+
+fn saving(item: i64, period: &str) -> String {
+    json!({"kind": "saving", "method": "direct", "item": item, "period": period, "quantity": "10", "evidence": "meter"})
+        .to_string()
+}
+
+#[tokio::test]
+async fn money_is_booked_only_on_zones_under_way() {
+    let t = test_app(false).await;
+    let c = t.as_role(Some(Role::Controller));
+    let z = zone_priced(&t, "LIFE-1", "0.20").await;
+    let url = format!("/api/v1/zones/{}/ledger", z.id);
+    // Positive controls: approved, piloting and measuring zones book.
+    for (status, period) in [("approved", "2025-02"), ("piloting", "2025-03"), ("measuring", "2025-04")] {
+        if status != "approved" {
+            assert_eq!(move_zone(&t, z.id, status).await.status, StatusCode::OK);
+        }
+        let a = c.post_json(&url, &saving(z.driver, period)).await;
+        assert_eq!(a.status, StatusCode::CREATED, "{status}: {}", a.text);
+    }
+    let csv = "period,kind,item,method,quantity,evidence\n2025-05,saving,Press time,direct,10,meter\n";
+    let refusal = |s: &str| {
+        format!(
+            "the zone is {s}: money is booked only while a zone is approved, piloting or measuring; nothing was booked"
+        )
+    };
+    for status in ["shelved"] {
+        assert_eq!(move_zone(&t, z.id, status).await.status, StatusCode::OK);
+        let a = c.post_json(&url, &saving(z.driver, "2025-05")).await;
+        assert_eq!(a.status, StatusCode::CONFLICT, "{}", a.text);
+        assert_eq!(a.json()["error"], refusal(status));
+        let a = crate::ledger::import(&c, z.id, "more.csv", csv).await;
+        assert_eq!(a.status, StatusCode::CONFLICT, "{}", a.text);
+        assert!(a.text.contains(&refusal(status)), "{}", a.text);
+    }
+    assert_eq!(entries(&t).await, 3);
+
+    // A closed zone books nothing more.
+    let closed = zone_priced(&t, "LIFE-2", "0.20").await;
+    for status in ["piloting", "measuring", "closed"] {
+        assert_eq!(move_zone(&t, closed.id, status).await.status, StatusCode::OK);
+    }
+    let a = c.post_json(&format!("/api/v1/zones/{}/ledger", closed.id), &saving(closed.driver, "2025-05")).await;
+    assert_eq!((a.status, a.json()["error"].clone()), (StatusCode::CONFLICT, json!(refusal("closed"))));
+
+    // Shelved with an approved baseline (no money booked): never a candidate again.
+    let shelved = zone_priced(&t, "LIFE-3", "0.20").await;
+    assert_eq!(move_zone(&t, shelved.id, "shelved").await.status, StatusCode::OK);
+    let a = move_zone(&t, shelved.id, "candidate").await;
+    assert_eq!(a.status, StatusCode::CONFLICT);
+    assert_eq!(
+        a.json()["error"],
+        "a zone cannot move from shelved to candidate (the zone has an approved baseline, so it never returns to \
+         candidate); allowed next states: none"
+    );
+    let by_sql =
+        sqlx::query("UPDATE zones SET status = 'candidate' WHERE id = ?").bind(shelved.id).execute(&t.pool).await;
+    assert!(by_sql.unwrap_err().to_string().contains("a zone with an approved baseline never returns to candidate"));
+    // Positive control: a shelved zone without a baseline or money may be a candidate again.
+    let fresh = t.post_json("/api/v1/zones", r#"{"code": "LIFE-4", "name": "Fresh"}"#).await.json()["zone"]["id"]
+        .as_i64()
+        .unwrap();
+    assert_eq!(move_zone(&t, fresh, "shelved").await.status, StatusCode::OK);
+    assert_eq!(move_zone(&t, fresh, "candidate").await.status, StatusCode::OK);
+}
