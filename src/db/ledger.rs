@@ -693,32 +693,38 @@ pub async fn insert_import(
     actor: &str,
 ) -> DbResult<(i64, Option<EarlierImport>)> {
     let earlier: Option<EarlierImport> = sqlx::query_as(
-        "SELECT id, imported_at, imported_by FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?
-         ORDER BY id LIMIT 1",
+        "SELECT id, imported_at, imported_by FROM ledger_imports
+         WHERE zone_id = ? AND (rows_hash = ? OR content_hash = ?) ORDER BY id LIMIT 1",
     )
+    .bind(zone_id)
     .bind(file.rows_hash)
     .bind(file.bytes_hash)
     .fetch_optional(&mut *conn)
     .await?;
-    let content_hash = match &earlier {
-        None => file.bytes_hash.to_string(),
-        Some((id, at, by)) if !file.again => {
-            return Err(DbError::Conflict(format!(
-                "this file has the same rows as import {id}, imported at {at} by {by} (line ends, spaces around \
-                 cells, the final newline and the column order do not count); nothing was booked. To book it \
-                 again anyway, tick \"import again although the same rows were imported\""
-            )));
-        }
-        Some(_) => {
-            // content_hash is UNIQUE: a deliberate repeat gets a numbered suffix.
-            let n: i64 =
-                sqlx::query_scalar("SELECT COUNT(*) FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?")
-                    .bind(file.rows_hash)
-                    .bind(file.bytes_hash)
-                    .fetch_one(&mut *conn)
-                    .await?;
-            format!("{}+repeat-{n}", file.bytes_hash)
-        }
+    if let Some((id, at, by)) = &earlier
+        && !file.again
+    {
+        return Err(DbError::Conflict(format!(
+            "this file has the same rows as import {id}, imported at {at} by {by} (line ends, spaces around \
+             cells, the final newline and the column order do not count); nothing was booked. To book it \
+             again anyway, tick \"import again although the same rows were imported\""
+        )));
+    }
+    // content_hash is UNIQUE across zones: the same bytes again (a deliberate repeat, or the same
+    // file in another zone) get a numbered suffix; every earlier copy counts, so it is new.
+    let copies: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?")
+        .bind(file.rows_hash)
+        .bind(file.bytes_hash)
+        .fetch_one(&mut *conn)
+        .await?;
+    let taken: bool = sqlx::query_scalar("SELECT EXISTS (SELECT 1 FROM ledger_imports WHERE content_hash = ?)")
+        .bind(file.bytes_hash)
+        .fetch_one(&mut *conn)
+        .await?;
+    let content_hash = if taken || earlier.is_some() {
+        format!("{}+repeat-{copies}", file.bytes_hash)
+    } else {
+        file.bytes_hash.into()
     };
     let id = sqlx::query_scalar(
         "INSERT INTO ledger_imports (zone_id, content_hash, file_name, row_count, imported_at, imported_by, rows_hash,

@@ -301,7 +301,8 @@ async fn money_is_booked_only_on_zones_under_way() {
         let a = c.post_json(&url, &saving(z.driver, period)).await;
         assert_eq!(a.status, StatusCode::CREATED, "{status}: {}", a.text);
     }
-    let csv = "period,kind,item,method,quantity,evidence\n2025-05,saving,Press time,direct,10,meter\n";
+    let csv = "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+               2025-05,saving,Press time,direct,10,,,,,meter\n";
     let refusal = |s: &str| {
         format!(
             "the zone is {s}: money is booked only while a zone is approved, piloting or measuring; nothing was booked"
@@ -345,4 +346,46 @@ async fn money_is_booked_only_on_zones_under_way() {
         .unwrap();
     assert_eq!(move_zone(&t, fresh, "shelved").await.status, StatusCode::OK);
     assert_eq!(move_zone(&t, fresh, "candidate").await.status, StatusCode::OK);
+}
+
+#[tokio::test]
+async fn the_same_file_may_be_imported_once_into_each_zone() {
+    let t = test_app(false).await;
+    let c = t.as_role(Some(Role::Controller));
+    let (a, b) = (zone_priced(&t, "CSVZ-1", "0.20").await, zone_priced(&t, "CSVZ-2", "0.20").await);
+    // Items named by label: each zone reads them as its own "Press time" and "Sensors".
+    let csv = "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+               2025-03,saving,Press time,direct,10,,,,,meter\n2025-03,spending,Sensors,,,,,,500,invoice 7\n";
+    let first = crate::ledger::import(&c, a.id, "march.csv", csv).await;
+    assert_eq!(first.status, StatusCode::SEE_OTHER, "{}", first.text);
+    let second = crate::ledger::import(&c, b.id, "march.csv", csv).await;
+    assert_eq!(second.status, StatusCode::SEE_OTHER, "{}", second.text);
+    let items: Vec<(i64, Option<i64>, Option<i64>)> =
+        sqlx::query_as("SELECT zone_id, driver_id, cost_id FROM ledger_entries ORDER BY id")
+            .fetch_all(&t.pool)
+            .await
+            .unwrap();
+    assert_eq!(
+        items,
+        [
+            (a.id, Some(a.driver), None),
+            (a.id, None, Some(a.sensors)),
+            (b.id, Some(b.driver), None),
+            (b.id, None, Some(b.sensors))
+        ]
+    );
+    // Positive control: a repeat in the same zone is still refused, naming the first import there.
+    let repeat = crate::ledger::import(&c, b.id, "march-again.csv", csv).await;
+    assert_eq!(repeat.status, StatusCode::CONFLICT, "{}", repeat.text);
+    let first_in_b: i64 = sqlx::query_scalar("SELECT id FROM ledger_imports WHERE zone_id = ?")
+        .bind(b.id)
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
+    assert!(
+        repeat.text.contains(&format!("this file has the same rows as import {first_in_b}, imported at ")),
+        "{}",
+        repeat.text
+    );
+    assert_eq!(entries(&t).await, 4);
 }
