@@ -52,3 +52,7 @@ WHEN NEW.status = 'candidate' AND OLD.status <> 'candidate'
 BEGIN
     SELECT RAISE(ABORT, 'a zone with an approved baseline never returns to candidate');
 END;
+
+-- A one-time form token belongs to the user and the zone whose page it came from; rows from
+-- before this migration read NULL (the user alone is compared).
+ALTER TABLE form_submissions ADD COLUMN zone_id INTEGER REFERENCES zones (id);

@@ -244,19 +244,44 @@ pub async fn book(
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
 }
 
-/// What a one-time form token already did (`entry 12`, `import 3`), if it was used.
-pub async fn form_outcome(conn: &mut SqliteConnection, token: &str) -> DbResult<Option<String>> {
-    Ok(sqlx::query_scalar("SELECT outcome FROM form_submissions WHERE token = ?")
-        .bind(token)
-        .fetch_optional(conn)
-        .await?)
+/// What a one-time form token already did (`entry 12`, `import 3`), if it was used by this
+/// user on this zone's form. A token used by another user, or on another zone's form, is a
+/// conflict: the first outcome is not theirs to see, and nothing is booked.
+pub async fn form_outcome(
+    conn: &mut SqliteConnection,
+    token: &str,
+    user_id: i64,
+    zone_id: i64,
+) -> DbResult<Option<String>> {
+    let used: Option<(String, i64, Option<i64>)> =
+        sqlx::query_as("SELECT outcome, user_id, zone_id FROM form_submissions WHERE token = ?")
+            .bind(token)
+            .fetch_optional(conn)
+            .await?;
+    match used {
+        // Tokens recorded before migration 0012 have no zone: the user alone is compared.
+        Some((_, by, zone)) if by != user_id || zone.is_some_and(|z| z != zone_id) => Err(DbError::Conflict(
+            "this form was already submitted by another user or on another zone's page; nothing was booked: reload \
+             the ledger page and use its form"
+                .into(),
+        )),
+        other => Ok(other.map(|(outcome, _, _)| outcome)),
+    }
 }
 
-/// Record a one-time form token as used, with what it did, in the booking's transaction.
-pub async fn use_form_token(conn: &mut SqliteConnection, token: &str, user_id: i64, outcome: &str) -> DbResult<()> {
-    sqlx::query("INSERT INTO form_submissions (token, user_id, outcome, used_at) VALUES (?, ?, ?, ?)")
+/// Record a one-time form token as used by `user_id` on `zone_id`'s page, with what it did,
+/// in the booking's transaction.
+pub async fn use_form_token(
+    conn: &mut SqliteConnection,
+    token: &str,
+    user_id: i64,
+    zone_id: i64,
+    outcome: &str,
+) -> DbResult<()> {
+    sqlx::query("INSERT INTO form_submissions (token, user_id, zone_id, outcome, used_at) VALUES (?, ?, ?, ?, ?)")
         .bind(token)
         .bind(user_id)
+        .bind(zone_id)
         .bind(outcome)
         .bind(now())
         .execute(conn)

@@ -348,7 +348,7 @@ async fn book_one(
 ) -> Result<Once<Booked>, AppError> {
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
@@ -363,7 +363,7 @@ async fn book_one(
         }
         db::audit::record(&mut tx, &db::now(), me.name(), "ledger.book", &format!("entry {}", e.id), &detail).await?;
         if let Some(token) = form {
-            db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", e.id)).await?;
+            db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", e.id)).await?;
         }
     }
     tx.commit().await?;
@@ -416,13 +416,13 @@ async fn reverse_one(
     })?;
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
     let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", r.id)).await?;
+        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", r.id)).await?;
     }
     db::audit::record(
         &mut tx,
@@ -495,7 +495,7 @@ pub async fn import_csv(
     };
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
@@ -521,7 +521,7 @@ pub async fn import_csv(
     }
     db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("import {import_id}")).await?;
+        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("import {import_id}")).await?;
     }
     tx.commit().await?;
     Ok(Once::Done(rows.len()))

@@ -389,3 +389,30 @@ async fn the_same_file_may_be_imported_once_into_each_zone() {
     );
     assert_eq!(entries(&t).await, 4);
 }
+
+#[tokio::test]
+async fn a_form_token_belongs_to_its_user_and_zone() {
+    let t = test_app(false).await;
+    let c = t.as_role(Some(Role::Controller));
+    let (a, b) = (zone_priced(&t, "TOK-1", "0.20").await, zone_priced(&t, "TOK-2", "0.20").await);
+    let token = crate::helpers::form_token();
+    let form = |item: i64| format!("kind=saving&method=direct&item={item}&period=2025-03&quantity=12&evidence=meter");
+    let first = c.post_form(&format!("/zones/{}/ledger?form={token}", a.id), &form(a.driver)).await;
+    assert_eq!(first.status, StatusCode::SEE_OTHER, "{}", first.text);
+    let id: i64 = sqlx::query_scalar("SELECT MAX(id) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    let refusal = "this form was already submitted by another user or on another zone&#39;s page; nothing was booked: \
+                   reload the ledger page and use its form";
+    // Another user with the same token on the same page, and the same user on another zone.
+    let admin = t.as_role(Some(Role::Admin));
+    for (who, zone, item) in [(&admin, a.id, a.driver), (&c, b.id, b.driver)] {
+        let again = who.post_form(&format!("/zones/{zone}/ledger?form={token}"), &form(item)).await;
+        assert_eq!(again.status, StatusCode::CONFLICT, "{}", again.text);
+        assert!(again.text.contains(refusal), "{}", again.text);
+        assert!(!again.text.contains(&format!("entry #{id}")), "{}", again.text);
+    }
+    assert_eq!(entries(&t).await, 1);
+    // Positive control: the same user on the same page is told what the first submit booked.
+    let twice = c.post_form(&format!("/zones/{}/ledger?form={token}", a.id), &form(a.driver)).await;
+    assert_eq!(twice.location, Some(format!("/zones/{}/ledger?already=entry-{id}#entries", a.id)));
+    assert_eq!(entries(&t).await, 1);
+}
