@@ -130,6 +130,31 @@ pub struct Booking {
     pub confirm_implausible: bool,
 }
 
+impl Booking {
+    /// The booking in one canonical text, for an `Idempotency-Key` fingerprint: the parsed
+    /// values with numbers normalised (`"1.50"` and `1.5` are the same booking), text quoted.
+    pub fn canonical(&self) -> String {
+        let n = |d: &Decimal| d.normalize().to_string();
+        let numbers = match &self.measurement {
+            Measurement::Direct { quantity } => n(quantity),
+            Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+                format!("{} {} {}", n(baseline_intensity), n(reporting_volume), n(measured_consumption))
+            }
+            Measurement::Spend { amount } => n(amount),
+        };
+        format!(
+            "kind={}\nitem={}\nperiod={}\nmethod={}\nnumbers={numbers}\nevidence={:?}\npaid_on={}\nconfirm={}",
+            self.kind.as_str(),
+            self.item_id,
+            self.period,
+            self.measurement.method(),
+            self.evidence,
+            self.paid_on.map(|d| d.to_string()).unwrap_or_default(),
+            self.confirm_implausible
+        )
+    }
+}
+
 /// Parse an optional payment date (`YYYY-MM-DD`) that must fall in `period`.
 fn paid_on(value: &str, period: Option<Month>) -> Result<Option<time::Date>, String> {
     let v = value.trim();

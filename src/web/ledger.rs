@@ -822,9 +822,9 @@ pub async fn api_book(
         ),
     };
     let booking = Booking::parse(&input, NumberFormat::Plain)?;
-    // The request's fingerprint: method, path and the body as parsed, in one canonical form.
-    let canonical = serde_json::to_string(&input).map_err(|e| AppError::Internal(e.into()))?;
-    let fingerprint = crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{canonical}").as_bytes());
+    // The request's fingerprint: method, path and the booking as parsed, numbers normalised.
+    let fingerprint =
+        crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{}", booking.canonical()).as_bytes());
     let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
     let booked = match book_one(&state, &me, id, &booking, key.as_ref(), None).await? {
         Once::Done(b) => b,

@@ -416,3 +416,35 @@ async fn a_form_token_belongs_to_its_user_and_zone() {
     assert_eq!(twice.location, Some(format!("/zones/{}/ledger?already=entry-{id}#entries", a.id)));
     assert_eq!(entries(&t).await, 1);
 }
+
+#[tokio::test]
+async fn a_retry_with_the_same_numbers_written_differently_replays() {
+    let t = test_app(false).await;
+    let c = t.as_role(Some(Role::Controller));
+    let z = zone_priced(&t, "IDN-1", "0.20").await;
+    let path = format!("/api/v1/zones/{}/ledger", z.id);
+    let with = |item: Value, quantity: Value| {
+        json!({"kind": "saving", "method": "direct", "item": item, "period": "2025-03", "quantity": quantity,
+               "evidence": "meter"})
+        .to_string()
+    };
+    let first = book_keyed(&c, &path, "idn-1", &with(json!(z.driver), json!("1.50"))).await;
+    assert_eq!(first.status, StatusCode::CREATED, "{}", first.text);
+    let id = first.json()["entry"]["id"].as_i64().unwrap();
+    // The same booking with the number as JSON 1.5 and the item id as a string: a retry.
+    let retry = book_keyed(&c, &path, "idn-1", &with(json!(z.driver.to_string()), json!(1.5))).await;
+    assert_eq!(retry.status, StatusCode::OK, "{}", retry.text);
+    assert_eq!(retry.json()["entry"]["id"], id);
+    assert_eq!(retry.headers["idempotent-replayed"], "true");
+    // Positive control: another quantity under the same key is a different request.
+    let other = book_keyed(&c, &path, "idn-1", &with(json!(z.driver), json!("1.51"))).await;
+    assert_eq!(other.status, StatusCode::CONFLICT, "{}", other.text);
+    assert_eq!(
+        other.json()["error"],
+        format!(
+            "the Idempotency-Key \"idn-1\" was already used by you for a different request (another body or URL), \
+             which booked entry {id}; nothing was booked: use a new key for a new booking"
+        )
+    );
+    assert_eq!(entries(&t).await, 1);
+}
