@@ -448,3 +448,66 @@ async fn a_retry_with_the_same_numbers_written_differently_replays() {
     );
     assert_eq!(entries(&t).await, 1);
 }
+
+fn run_verify(path: &str) -> (bool, String, String) {
+    let url = format!("sqlite://{path}");
+    let out = std::process::Command::new(crate::cli::BIN).args(["--database-url", &url, "verify"]).output().unwrap();
+    (
+        out.status.success(),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[tokio::test]
+async fn verify_reads_the_file_as_it_is_and_never_seals_it() {
+    use sqlx::Connection;
+    let t = test_app(false).await;
+    let z = zone_priced(&t, "VFY-1", "0.20").await;
+    let c = t.as_role(Some(Role::Controller));
+    for period in ["2025-03", "2025-04"] {
+        assert_eq!(
+            c.post_json(&format!("/api/v1/zones/{}/ledger", z.id), &saving(z.driver, period)).await.status,
+            StatusCode::CREATED
+        );
+    }
+    let path = t.pool.connect_options().get_filename().display().to_string();
+    // Positive control: the untouched file verifies.
+    let (ok, stdout, stderr) = run_verify(&path);
+    assert!(ok && stdout.starts_with("verify ok: 2 ledger entries, "), "{stdout}{stderr}");
+
+    // Every hash removed behind the app's back (trigger dropped with the sqlite3 library).
+    let options = sqlx::sqlite::SqliteConnectOptions::new().filename(&path);
+    let mut raw = sqlx::SqliteConnection::connect_with(&options).await.unwrap();
+    sqlx::query("DROP TRIGGER ledger_entries_no_update").execute(&mut raw).await.unwrap();
+    sqlx::query("UPDATE ledger_entries SET hash = NULL").execute(&mut raw).await.unwrap();
+    let first: i64 = sqlx::query_scalar("SELECT MIN(id) FROM ledger_entries").fetch_one(&mut raw).await.unwrap();
+    let (ok, stdout, stderr) = run_verify(&path);
+    assert!(!ok, "{stdout}");
+    assert!(
+        stderr.contains(&format!(
+            "error: verify failed at ledger_entries id {first}: has no hash: written behind the app's back, or its hash \
+             was removed"
+        )),
+        "{stderr}"
+    );
+    // Verifying did not seal them: they still have no hash, and a second run says the same.
+    let unhashed: i64 =
+        sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries WHERE hash IS NULL").fetch_one(&mut raw).await.unwrap();
+    assert_eq!(unhashed, 2);
+    assert!(!run_verify(&path).0);
+
+    // A database whose migrations are not this build's is refused, not migrated.
+    let last: i64 = sqlx::query_scalar("SELECT MAX(version) FROM _sqlx_migrations").fetch_one(&mut raw).await.unwrap();
+    sqlx::query("DELETE FROM _sqlx_migrations WHERE version = ?").bind(last).execute(&mut raw).await.unwrap();
+    let (ok, _, stderr) = run_verify(&path);
+    assert!(!ok);
+    assert!(stderr.contains(&format!("error: verify refused: migration {last} (")), "{stderr}");
+    assert!(stderr.contains(") is not applied: run `pilot-ledger migrate` first (on a copy)"), "{stderr}");
+    let still: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM _sqlx_migrations WHERE version = ?")
+        .bind(last)
+        .fetch_one(&mut raw)
+        .await
+        .unwrap();
+    assert_eq!(still, 0);
+}
