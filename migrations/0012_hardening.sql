@@ -56,3 +56,22 @@ END;
 -- A one-time form token belongs to the user and the zone whose page it came from; rows from
 -- before this migration read NULL (the user alone is compared).
 ALTER TABLE form_submissions ADD COLUMN zone_id INTEGER REFERENCES zones (id);
+
+-- Four eyes over everyone who edited a version, not only the last editor: `editors` lists the
+-- names (one per line, between newlines) of all who changed its content since it was created.
+-- Versions still open start with their last editor, the best record there is; approved ones
+-- are frozen and keep an empty list.
+ALTER TABLE case_versions ADD COLUMN editors TEXT NOT NULL DEFAULT '';
+UPDATE case_versions SET editors = char(10) || edited_by || char(10)
+WHERE state IN ('draft', 'submitted') AND edited_by IS NOT NULL;
+CREATE TRIGGER case_versions_editors_frozen BEFORE UPDATE OF editors ON case_versions
+WHEN OLD.state IN ('approved', 'superseded') AND NEW.editors IS NOT OLD.editors
+BEGIN
+    SELECT RAISE(ABORT, 'an approved business case is frozen: save a new scenario version');
+END;
+CREATE TRIGGER case_versions_four_eyes_editors BEFORE UPDATE OF state ON case_versions
+WHEN NEW.state = 'approved' AND OLD.state <> 'approved' AND NEW.approval_kind = 'second_person'
+     AND instr(lower(OLD.editors), lower(char(10) || NEW.approved_by || char(10))) > 0
+BEGIN
+    SELECT RAISE(ABORT, 'four eyes: whoever edited a version cannot approve it');
+END;

@@ -511,3 +511,54 @@ async fn verify_reads_the_file_as_it_is_and_never_seals_it() {
         .unwrap();
     assert_eq!(still, 0);
 }
+
+#[tokio::test]
+async fn four_eyes_cover_everyone_who_edited_the_version() {
+    let t = test_app(false).await;
+    // A (t-lead) writes the case; B makes a trivial edit and submits it.
+    let zone = t.post_json("/api/v1/zones", r#"{"code": "EYE-1", "name": "Four eyes"}"#).await.json()["zone"]["id"]
+        .as_i64()
+        .unwrap();
+    let case = json!({"label": "Base", "horizon_months": 36, "start_month": "2025-01", "go_live_offset": 1,
+        "ramp_up_months": 0, "success_probability": "0.8",
+        "costs": [{"label": "Sensors", "category": "hardware", "kind": "one_off", "amount": "30000", "month_offset": 0}]});
+    let id = t.post_json(&format!("/api/v1/zones/{zone}/cases"), &case.to_string()).await.json()["case"]["id"]
+        .as_i64()
+        .unwrap();
+    let cost = "label=Cabling&category=hardware&kind=one_off&amount=500&month_offset=0";
+    assert_eq!(t.post_form(&format!("/cases/{id}/costs"), cost).await.status, StatusCode::SEE_OTHER);
+    let b = t.as_new_user("t-lead-b", Role::Lead).await;
+    let typo =
+        "label=Base.&horizon_months=36&start_month=2025-01&go_live_offset=1&ramp_up_months=0&success_probability=80";
+    let edit = b.post_form(&format!("/cases/{id}/edit"), typo).await;
+    assert_eq!(edit.status, StatusCode::SEE_OTHER, "{}", edit.text);
+    assert_eq!(b.post_json(&format!("/api/v1/cases/{id}/submit"), "{}").await.status, StatusCode::OK);
+    let state = |t: &TestApp| {
+        let t = t.clone();
+        async move { t.get(&format!("/api/v1/cases/{id}")).await.json()["case"]["state"].clone() }
+    };
+    assert_eq!(state(&t).await, "submitted");
+
+    // A is neither the submitter nor the last editor, but wrote the content: refused.
+    let by_a = t.post_json(&format!("/api/v1/cases/{id}/approve"), "{}").await;
+    assert_eq!(by_a.status, StatusCode::CONFLICT, "{}", by_a.text);
+    assert_eq!(
+        by_a.json()["error"],
+        "you submitted or last edited this version: a second person must approve it (segregation of duties)"
+    );
+    // The database refuses it too.
+    let raw = sqlx::query(
+        "UPDATE case_versions SET state = 'approved', approved_by = 't-lead', approval_kind = 'second_person' WHERE id = ?",
+    )
+    .bind(id)
+    .execute(&t.pool)
+    .await;
+    assert!(raw.unwrap_err().to_string().contains("four eyes: whoever edited a version cannot approve it"));
+    assert_eq!(state(&t).await, "submitted");
+
+    // Positive control: C, who never touched it, approves.
+    let c = t.as_role(Some(Role::Admin));
+    let ok = c.post_json(&format!("/api/v1/cases/{id}/approve"), "{}").await;
+    assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
+    assert_eq!(ok.json()["case"]["approved_by"], "t-admin");
+}
