@@ -57,7 +57,13 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Verify => {
-            let pool = open(&config.database_url).await?;
+            // As the file is: no migration, no seal (which would hash rows whose hash was removed).
+            let pool = db::connect_read_only(&config.database_url)
+                .await
+                .with_context(|| format!("cannot open {} read-only", config.database_url))?;
+            if let Some(why) = db::migrations_not_current(&pool).await? {
+                bail!("verify refused: {why}");
+            }
             let v = db::verify(&pool).await?;
             for p in &v.problems {
                 eprintln!("bad row: {p}");

@@ -130,7 +130,8 @@ macro_rules! select_case {
                     success_probability, created_at, created_by, updated_at, updated_by,
                     edited_at, edited_by, submitted_at, submitted_by, submit_comment, approved_at, approved_by,
                     approve_comment, approval_kind, returned_at, returned_by, return_comment,
-                    frozen_currency, frozen_hurdle_rate, frozen_tax_rate, frozen_depreciation_years, in_force_from ",
+                    frozen_currency, frozen_hurdle_rate, frozen_tax_rate, frozen_depreciation_years, in_force_from,
+                    editors ",
             $rest
         )
     };
@@ -157,6 +158,12 @@ fn case_from(row: &SqliteRow) -> DbResult<CaseVersion> {
         review: Review {
             edited_at: row.try_get("edited_at")?,
             edited_by: row.try_get("edited_by")?,
+            editors: row
+                .try_get::<String, _>("editors")?
+                .split('\n')
+                .filter(|n| !n.is_empty())
+                .map(String::from)
+                .collect(),
             submitted_at: row.try_get("submitted_at")?,
             submitted_by: row.try_get("submitted_by")?,
             submit_comment: row.try_get("submit_comment")?,
@@ -293,9 +300,9 @@ async fn insert_version(
     let id: i64 = sqlx::query_scalar(
         "INSERT INTO case_versions (zone_id, version, label, horizon_months, start_month, go_live_offset, ramp_up_months,
                                     success_probability, state, created_at, created_by, updated_at, updated_by,
-                                    edited_at, edited_by)
+                                    edited_at, edited_by, editors)
          VALUES (?, (SELECT COALESCE(MAX(version), 0) + 1 FROM case_versions WHERE zone_id = ?), ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?,
-                 ?, ?)
+                 ?, ?, char(10) || ? || char(10))
          RETURNING id",
     )
     .bind(zone_id)
@@ -312,6 +319,7 @@ async fn insert_version(
     .bind(&ts)
     .bind(actor)
     .bind(&ts)
+    .bind(actor)
     .bind(actor)
     .fetch_one(&mut *conn)
     .await?;
@@ -575,6 +583,21 @@ pub async fn update_header(
     .bind(now())
     .bind(actor)
     .bind(case_id)
+    .execute(&mut *conn)
+    .await?;
+    add_editor(conn, case_id, actor).await
+}
+
+/// Add `actor` to the version's editors (once; names without case, as the users table): four
+/// eyes compare the approver with every one of them.
+async fn add_editor(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+    sqlx::query(
+        "UPDATE case_versions SET editors = CASE WHEN editors = '' THEN char(10) ELSE editors END || ? || char(10)
+         WHERE id = ? AND instr(lower(editors), lower(char(10) || ? || char(10))) = 0",
+    )
+    .bind(actor)
+    .bind(case_id)
+    .bind(actor)
     .execute(conn)
     .await?;
     Ok(())
@@ -582,6 +605,7 @@ pub async fn update_header(
 
 /// Stamp a content change (an item added or removed) as the version's latest edit.
 async fn touch(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+    add_editor(conn, case_id, actor).await?;
     let ts = now();
     sqlx::query("UPDATE case_versions SET updated_at = ?, updated_by = ?, edited_at = ?, edited_by = ? WHERE id = ?")
         .bind(&ts)

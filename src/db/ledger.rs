@@ -4,7 +4,8 @@ use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{
-    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, item_key,
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, ZoneStatus,
+    item_key,
 };
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
@@ -168,7 +169,7 @@ pub async fn book(
                 d.id AS driver_id, d.label AS driver_label, d.unit, d.unit_value, d.qty_high,
                 k.id AS cost_id, k.label AS cost_label, k.kind AS cost_kind, k.amount AS cost_amount,
                 t.amount, t.quantity, t.entries, t.last_period,
-                l.id AS tip_id, l.hash AS tip_hash
+                l.id AS tip_id, l.hash AS tip_hash, z.status AS zone_status
          FROM zones z
          LEFT JOIN idempotency_keys i ON i.user_id = ? AND i.key = ?
          LEFT JOIN case_versions c ON c.zone_id = z.id AND c.state = 'approved'
@@ -203,6 +204,7 @@ pub async fn book(
         }
         return entry_in(conn, id).await?.map(Booked::Replayed).ok_or(DbError::NotFound("ledger entry"));
     }
+    bookable(row.try_get("zone_status")?)?;
     let mut baseline = baseline_from(&row)?;
     if let Some(id) = row.try_get::<Option<i64>, _>("driver_id")? {
         baseline.drivers.push(BaselineDriver {
@@ -242,19 +244,44 @@ pub async fn book(
     Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
 }
 
-/// What a one-time form token already did (`entry 12`, `import 3`), if it was used.
-pub async fn form_outcome(conn: &mut SqliteConnection, token: &str) -> DbResult<Option<String>> {
-    Ok(sqlx::query_scalar("SELECT outcome FROM form_submissions WHERE token = ?")
-        .bind(token)
-        .fetch_optional(conn)
-        .await?)
+/// What a one-time form token already did (`entry 12`, `import 3`), if it was used by this
+/// user on this zone's form. A token used by another user, or on another zone's form, is a
+/// conflict: the first outcome is not theirs to see, and nothing is booked.
+pub async fn form_outcome(
+    conn: &mut SqliteConnection,
+    token: &str,
+    user_id: i64,
+    zone_id: i64,
+) -> DbResult<Option<String>> {
+    let used: Option<(String, i64, Option<i64>)> =
+        sqlx::query_as("SELECT outcome, user_id, zone_id FROM form_submissions WHERE token = ?")
+            .bind(token)
+            .fetch_optional(conn)
+            .await?;
+    match used {
+        // Tokens recorded before migration 0012 have no zone: the user alone is compared.
+        Some((_, by, zone)) if by != user_id || zone.is_some_and(|z| z != zone_id) => Err(DbError::Conflict(
+            "this form was already submitted by another user or on another zone's page; nothing was booked: reload \
+             the ledger page and use its form"
+                .into(),
+        )),
+        other => Ok(other.map(|(outcome, _, _)| outcome)),
+    }
 }
 
-/// Record a one-time form token as used, with what it did, in the booking's transaction.
-pub async fn use_form_token(conn: &mut SqliteConnection, token: &str, user_id: i64, outcome: &str) -> DbResult<()> {
-    sqlx::query("INSERT INTO form_submissions (token, user_id, outcome, used_at) VALUES (?, ?, ?, ?)")
+/// Record a one-time form token as used by `user_id` on `zone_id`'s page, with what it did,
+/// in the booking's transaction.
+pub async fn use_form_token(
+    conn: &mut SqliteConnection,
+    token: &str,
+    user_id: i64,
+    zone_id: i64,
+    outcome: &str,
+) -> DbResult<()> {
+    sqlx::query("INSERT INTO form_submissions (token, user_id, zone_id, outcome, used_at) VALUES (?, ?, ?, ?, ?)")
         .bind(token)
         .bind(user_id)
+        .bind(zone_id)
         .bind(outcome)
         .bind(now())
         .execute(conn)
@@ -265,6 +292,22 @@ pub async fn use_form_token(conn: &mut SqliteConnection, token: &str, user_id: i
 
 /// The baseline's case (`case_id`, NULL when the zone has no approved case), start and horizon
 /// from a row; its items are added by the caller.
+/// Refuse a booking on a zone that is not under way ([`ZoneStatus::check_booking`]: 409).
+fn bookable(status: String) -> DbResult<()> {
+    let status = parsed("status", status, ZoneStatus::parse)?;
+    status.check_booking().map_err(DbError::Conflict)
+}
+
+/// Refuse an import into a zone that is not under way (as [`book`] does for one entry).
+pub async fn check_bookable(conn: &mut SqliteConnection, zone_id: i64) -> DbResult<()> {
+    let status: String = sqlx::query_scalar("SELECT status FROM zones WHERE id = ?")
+        .bind(zone_id)
+        .fetch_optional(conn)
+        .await?
+        .ok_or(DbError::NotFound("zone"))?;
+    bookable(status)
+}
+
 fn baseline_from(row: &SqliteRow) -> DbResult<BookingBaseline> {
     let Some(case_id) = row.try_get::<Option<i64>, _>("case_id")? else {
         return Err(no_baseline());
@@ -674,32 +717,38 @@ pub async fn insert_import(
     actor: &str,
 ) -> DbResult<(i64, Option<EarlierImport>)> {
     let earlier: Option<EarlierImport> = sqlx::query_as(
-        "SELECT id, imported_at, imported_by FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?
-         ORDER BY id LIMIT 1",
+        "SELECT id, imported_at, imported_by FROM ledger_imports
+         WHERE zone_id = ? AND (rows_hash = ? OR content_hash = ?) ORDER BY id LIMIT 1",
     )
+    .bind(zone_id)
     .bind(file.rows_hash)
     .bind(file.bytes_hash)
     .fetch_optional(&mut *conn)
     .await?;
-    let content_hash = match &earlier {
-        None => file.bytes_hash.to_string(),
-        Some((id, at, by)) if !file.again => {
-            return Err(DbError::Conflict(format!(
-                "this file has the same rows as import {id}, imported at {at} by {by} (line ends, spaces around \
-                 cells, the final newline and the column order do not count); nothing was booked. To book it \
-                 again anyway, tick \"import again although the same rows were imported\""
-            )));
-        }
-        Some(_) => {
-            // content_hash is UNIQUE: a deliberate repeat gets a numbered suffix.
-            let n: i64 =
-                sqlx::query_scalar("SELECT COUNT(*) FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?")
-                    .bind(file.rows_hash)
-                    .bind(file.bytes_hash)
-                    .fetch_one(&mut *conn)
-                    .await?;
-            format!("{}+repeat-{n}", file.bytes_hash)
-        }
+    if let Some((id, at, by)) = &earlier
+        && !file.again
+    {
+        return Err(DbError::Conflict(format!(
+            "this file has the same rows as import {id}, imported at {at} by {by} (line ends, spaces around \
+             cells, the final newline and the column order do not count); nothing was booked. To book it \
+             again anyway, tick \"import again although the same rows were imported\""
+        )));
+    }
+    // content_hash is UNIQUE across zones: the same bytes again (a deliberate repeat, or the same
+    // file in another zone) get a numbered suffix; every earlier copy counts, so it is new.
+    let copies: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_imports WHERE rows_hash = ? OR content_hash = ?")
+        .bind(file.rows_hash)
+        .bind(file.bytes_hash)
+        .fetch_one(&mut *conn)
+        .await?;
+    let taken: bool = sqlx::query_scalar("SELECT EXISTS (SELECT 1 FROM ledger_imports WHERE content_hash = ?)")
+        .bind(file.bytes_hash)
+        .fetch_one(&mut *conn)
+        .await?;
+    let content_hash = if taken || earlier.is_some() {
+        format!("{}+repeat-{copies}", file.bytes_hash)
+    } else {
+        file.bytes_hash.into()
     };
     let id = sqlx::query_scalar(
         "INSERT INTO ledger_imports (zone_id, content_hash, file_name, row_count, imported_at, imported_by, rows_hash,

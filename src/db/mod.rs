@@ -86,6 +86,49 @@ pub async fn connect(url: &str) -> DbResult<SqlitePool> {
     Ok(pool)
 }
 
+/// Open an existing database read-only, without migrating or sealing (for `verify`: what is
+/// checked is the file as it is; a removed hash must not be sealed again).
+pub async fn connect_read_only(url: &str) -> DbResult<SqlitePool> {
+    let options = SqliteConnectOptions::from_str(url)?.read_only(true).create_if_missing(false).foreign_keys(true);
+    Ok(SqlitePoolOptions::new().max_connections(1).connect_with(options).await?)
+}
+
+/// Why the database's applied migrations are not exactly this build's (a missing or failed
+/// migration, or one this build does not know), or `None` when they are current.
+pub async fn migrations_not_current(pool: &SqlitePool) -> DbResult<Option<String>> {
+    let known: bool = sqlx::query_scalar(
+        "SELECT EXISTS (SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = '_sqlx_migrations')",
+    )
+    .fetch_one(pool)
+    .await?;
+    if !known {
+        return Ok(Some("the database has no migrations applied: is it a pilot-ledger database?".into()));
+    }
+    let applied: Vec<(i64, bool)> =
+        sqlx::query_as("SELECT version, success FROM _sqlx_migrations ORDER BY version").fetch_all(pool).await?;
+    let migrator = sqlx::migrate!("./migrations");
+    for m in migrator.iter() {
+        match applied.iter().find(|(v, _)| *v == m.version) {
+            Some((_, true)) => {}
+            Some((_, false)) => {
+                return Ok(Some(format!("migration {} ({}) failed part-way", m.version, m.description)));
+            }
+            None => {
+                return Ok(Some(format!(
+                    "migration {} ({}) is not applied: run `pilot-ledger migrate` first (on a copy)",
+                    m.version, m.description
+                )));
+            }
+        }
+    }
+    if let Some((v, _)) = applied.iter().find(|(v, _)| migrator.iter().all(|m| m.version != *v)) {
+        return Ok(Some(format!(
+            "migration {v} is newer than this pilot-ledger: verify with the release that wrote it"
+        )));
+    }
+    Ok(None)
+}
+
 /// Apply the embedded migrations in `migrations/` (append-only), then seal rows written
 /// before the hash chains (once) and rebuild missing ledger totals.
 pub async fn migrate(pool: &SqlitePool) -> DbResult<()> {

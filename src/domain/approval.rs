@@ -90,6 +90,9 @@ pub struct Review {
     pub edited_at: Option<String>,
     /// Who made it.
     pub edited_by: Option<String>,
+    /// Everyone who changed its content since it was created (its creator included).
+    #[serde(skip)]
+    pub editors: Vec<String>,
     /// Latest submission.
     pub submitted_at: Option<String>,
     /// Who submitted.
@@ -113,10 +116,15 @@ pub struct Review {
 }
 
 impl Review {
-    /// Whether `actor` submitted or last edited the version (names compare as the users table
-    /// does, without case).
+    /// Whether `actor` submitted or ever edited the version (names compare as the users table
+    /// does, without case): a trivial last edit by someone else does not make the content's
+    /// author a second person.
     pub fn is_author(&self, actor: &str) -> bool {
-        [&self.submitted_by, &self.edited_by].into_iter().flatten().any(|n| n.eq_ignore_ascii_case(actor))
+        [&self.submitted_by, &self.edited_by]
+            .into_iter()
+            .flatten()
+            .chain(&self.editors)
+            .any(|n| n.eq_ignore_ascii_case(actor))
     }
 
     /// The approval `actor` may give: four eyes, or one person where the site allows it.

@@ -130,6 +130,31 @@ pub struct Booking {
     pub confirm_implausible: bool,
 }
 
+impl Booking {
+    /// The booking in one canonical text, for an `Idempotency-Key` fingerprint: the parsed
+    /// values with numbers normalised (`"1.50"` and `1.5` are the same booking), text quoted.
+    pub fn canonical(&self) -> String {
+        let n = |d: &Decimal| d.normalize().to_string();
+        let numbers = match &self.measurement {
+            Measurement::Direct { quantity } => n(quantity),
+            Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+                format!("{} {} {}", n(baseline_intensity), n(reporting_volume), n(measured_consumption))
+            }
+            Measurement::Spend { amount } => n(amount),
+        };
+        format!(
+            "kind={}\nitem={}\nperiod={}\nmethod={}\nnumbers={numbers}\nevidence={:?}\npaid_on={}\nconfirm={}",
+            self.kind.as_str(),
+            self.item_id,
+            self.period,
+            self.measurement.method(),
+            self.evidence,
+            self.paid_on.map(|d| d.to_string()).unwrap_or_default(),
+            self.confirm_implausible
+        )
+    }
+}
+
 /// Parse an optional payment date (`YYYY-MM-DD`) that must fall in `period`.
 fn paid_on(value: &str, period: Option<Month>) -> Result<Option<time::Date>, String> {
     let v = value.trim();
@@ -486,13 +511,34 @@ impl BookingBaseline {
             return Err(e);
         }
         let value = unit_value.unwrap_or_default();
+        // Checked: intensity and volume may each be 1e12, and Decimal panics on overflow.
+        let priced = |field: &'static str, q: Decimal| {
+            q.checked_mul(value).ok_or_else(|| {
+                FieldErrors::one(field, "the amount (quantity × the driver's unit value) is too large to book")
+            })
+        };
         let (quantity, amount, inputs) = match &b.measurement {
-            Measurement::Direct { quantity } => (Some(*quantity), *quantity * value, [None, None, None]),
+            Measurement::Direct { quantity } => (Some(*quantity), priced("quantity", *quantity)?, [None, None, None]),
             Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+                let too_large = || {
+                    let f = NumberFormat::current();
+                    FieldErrors::one(
+                        "reporting_volume",
+                        format!(
+                            "the avoided quantity (baseline intensity × volume − consumption) must be at most {} in \
+                             size",
+                            f.write(MAX_MAGNITUDE, 0)
+                        ),
+                    )
+                };
                 let q =
                     crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
-                        .map_err(|err| FieldErrors::one("baseline_intensity", err.to_string()))?;
-                (Some(q), q * value, [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)])
+                        .map_err(|_| too_large())?;
+                if q.abs() > MAX_MAGNITUDE {
+                    return Err(too_large());
+                }
+                let inputs = [Some(*baseline_intensity), Some(*reporting_volume), Some(*measured_consumption)];
+                (Some(q), priced("reporting_volume", q)?, inputs)
             }
             Measurement::Spend { amount } => (None, -*amount, [None, None, None]),
         };

@@ -60,13 +60,32 @@ impl ZoneStatus {
         }
     }
 
+    /// Whether money may be booked on a zone in this state: while approved, piloting or
+    /// measuring. A candidate or shelved zone is not under way, a closed one has finished
+    /// (its entries can still be reversed).
+    pub fn check_booking(self) -> Result<(), String> {
+        match self {
+            Self::Approved | Self::Piloting | Self::Measuring => Ok(()),
+            _ => Err(format!(
+                "the zone is {self}: money is booked only while a zone is approved, piloting or measuring; nothing \
+                 was booked"
+            )),
+        }
+    }
+
     /// Whether the zone may move from this state to `to`: `booked` says whether any money is
     /// booked on it, `baseline` whether it has an approved business case. Staying is allowed.
+    /// A zone with booked money or an approved baseline never returns to candidate.
     pub fn check_move(self, to: ZoneStatus, booked: bool, baseline: bool) -> Result<(), String> {
         if self == to {
             return Ok(());
         }
-        let allowed = self.next().iter().filter(|s| !(**s == Self::Candidate && booked)).copied().collect::<Vec<_>>();
+        let allowed = self
+            .next()
+            .iter()
+            .filter(|s| !(**s == Self::Candidate && (booked || baseline)))
+            .copied()
+            .collect::<Vec<_>>();
         let list = if allowed.is_empty() {
             "none".to_string()
         } else {
@@ -75,6 +94,8 @@ impl ZoneStatus {
         if !allowed.contains(&to) {
             let why = if to == Self::Candidate && booked {
                 " (money is booked on this zone, so it never returns to candidate)"
+            } else if to == Self::Candidate && baseline && self.next().contains(&Self::Candidate) {
+                " (the zone has an approved baseline, so it never returns to candidate)"
             } else {
                 ""
             };
@@ -217,6 +238,18 @@ mod tests {
             Err("a zone cannot move from measuring to candidate; allowed next states: closed, shelved".into())
         );
         assert_eq!(Shelved.check_move(Candidate, false, false), Ok(()));
+        assert_eq!(
+            Shelved.check_move(Candidate, false, true),
+            Err("a zone cannot move from shelved to candidate (the zone has an approved baseline, so it never returns to candidate); allowed next states: none".into())
+        );
+        assert!(
+            Approved.check_booking().is_ok() && Piloting.check_booking().is_ok() && Measuring.check_booking().is_ok()
+        );
+        assert_eq!(
+            Closed.check_booking(),
+            Err("the zone is closed: money is booked only while a zone is approved, piloting or measuring; nothing was booked".into())
+        );
+        assert!(Candidate.check_booking().is_err() && Shelved.check_booking().is_err());
         assert_eq!(
             Shelved.check_move(Candidate, true, true),
             Err("a zone cannot move from shelved to candidate (money is booked on this zone, so it never returns to candidate); allowed next states: none".into())

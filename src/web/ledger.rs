@@ -362,7 +362,7 @@ async fn book_one(
 ) -> Result<Once<Booked>, AppError> {
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
@@ -377,7 +377,7 @@ async fn book_one(
         }
         db::audit::record(&mut tx, &db::now(), me.name(), "ledger.book", &format!("entry {}", e.id), &detail).await?;
         if let Some(token) = form {
-            db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", e.id)).await?;
+            db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", e.id)).await?;
         }
     }
     tx.commit().await?;
@@ -430,13 +430,13 @@ async fn reverse_one(
     })?;
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
     let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("entry {}", r.id)).await?;
+        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", r.id)).await?;
     }
     db::audit::record(
         &mut tx,
@@ -509,10 +509,11 @@ pub async fn import_csv(
     };
     let mut tx = db::begin_write(&state.pool).await?;
     if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token).await?
+        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
+    db::ledger::check_bookable(&mut tx, zone_id).await?;
     let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
     if current != checked_with {
         rows = checked_rows(&bytes, &current, day, numbers);
@@ -534,7 +535,7 @@ pub async fn import_csv(
     }
     db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, &format!("import {import_id}")).await?;
+        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("import {import_id}")).await?;
     }
     tx.commit().await?;
     Ok(Once::Done(rows.len()))
@@ -839,9 +840,9 @@ pub async fn api_book(
         ),
     };
     let booking = Booking::parse(&input, NumberFormat::Plain)?;
-    // The request's fingerprint: method, path and the body as parsed, in one canonical form.
-    let canonical = serde_json::to_string(&input).map_err(|e| AppError::Internal(e.into()))?;
-    let fingerprint = crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{canonical}").as_bytes());
+    // The request's fingerprint: method, path and the booking as parsed, numbers normalised.
+    let fingerprint =
+        crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{}", booking.canonical()).as_bytes());
     let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
     let booked = match book_one(&state, &me, id, &booking, key.as_ref(), None).await? {
         Once::Done(b) => b,

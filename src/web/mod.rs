@@ -211,12 +211,13 @@ pub fn app(state: AppState) -> Router {
         // axum's extractors (form, JSON, multipart) stop reading at the route's limit with a 413.
         router = router.route(r.path, r.handler.layer(DefaultBodyLimit::max(r.body_limit)));
     }
-    router
+    let router = router
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), auth::authorize))
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), site_numbers))
         .nest_service("/static", ServeDir::new(static_dir))
         .fallback(pages::not_found)
-        .with_state(state)
+        .with_state(state);
+    answer_panics(router)
         // Cross-site form posts are refused by Sec-Fetch-Site / Origin (no token state needed).
         // Scripts with a Bearer token send neither header and pass; browsers cannot attach a
         // Bearer token by themselves.
@@ -242,6 +243,38 @@ pub fn app(state: AppState) -> Router {
                 .load_shed()
                 .concurrency_limit(MAX_IN_FLIGHT),
         )
+}
+
+/// Marks the answer to a request whose handler panicked.
+#[derive(Clone, Copy)]
+struct Panicked;
+
+/// Answer a panic in `router` as a 500 without detail (the error page, or JSON under `/api/`)
+/// instead of dropping the connection; the panic message goes to the log. The write
+/// transaction of a panicked request is dropped, so nothing is written.
+pub fn answer_panics(router: Router) -> Router {
+    router
+        .layer(tower_http::catch_panic::CatchPanicLayer::custom(|panic: Box<dyn std::any::Any + Send>| {
+            let what = panic
+                .downcast_ref::<String>()
+                .map(String::as_str)
+                .or_else(|| panic.downcast_ref::<&str>().copied())
+                .unwrap_or("(no message)");
+            tracing::error!(panic = what, "a request handler panicked");
+            let mut res = axum::response::IntoResponse::into_response(AppError::Internal(anyhow::anyhow!("panic")));
+            res.extensions_mut().insert(Panicked);
+            res
+        }))
+        .layer(axum::middleware::from_fn(|req: Request, next: axum::middleware::Next| async move {
+            let api = req.uri().path().starts_with("/api/");
+            let res = next.run(req).await;
+            if api && res.extensions().get::<Panicked>().is_some() {
+                return axum::response::IntoResponse::into_response(ApiError(AppError::Internal(anyhow::anyhow!(
+                    "panic"
+                ))));
+            }
+            res
+        }))
 }
 
 /// Answer a page or export with the site's number format as [`NumberFormat::current`], which

@@ -8,6 +8,7 @@ mod chain;
 mod cli;
 mod faults;
 mod finance;
+mod hardening;
 mod helpers;
 mod history;
 mod hostile;
