@@ -484,25 +484,38 @@ async fn write_totals(
     Ok(())
 }
 
-/// Each (zone, item)'s totals summed from the entries themselves, in Rust.
+/// Entries read per statement by [`sums_from_entries`].
+const SUM_PAGE: i64 = 10_000;
+
+/// Each (zone, item)'s totals summed from the entries themselves, in Rust. Read in pages of
+/// [`SUM_PAGE`] rows by id, so the start-up check holds a page, not the whole ledger (all of
+/// 240,000 rows at once took the server's peak memory from 56 to 240 MB).
 async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collections::BTreeMap<(i64, String), Totals>> {
-    let rows =
-        sqlx::query("SELECT zone_id, driver_id, cost_id, amount, quantity, period FROM ledger_entries ORDER BY id")
-            .fetch_all(conn)
-            .await?;
     let mut sums: std::collections::BTreeMap<(i64, String), Totals> = Default::default();
-    for r in rows {
-        let Some(item) = item_key(r.try_get("driver_id")?, r.try_get("cost_id")?) else { continue };
-        let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
-        let entry = Totals {
-            amount: decimal("amount", r.try_get("amount")?)?,
-            quantity: quantity.unwrap_or_default(),
-            entries: 1,
-            last: parsed("period", r.try_get("period")?, Month::parse)?,
-        };
-        sums.entry((r.try_get("zone_id")?, item)).or_insert(Totals::empty(entry.last)).add(&entry);
+    let mut after = 0_i64;
+    loop {
+        let rows = sqlx::query(
+            "SELECT id, zone_id, driver_id, cost_id, amount, quantity, period FROM ledger_entries
+             WHERE id > ? ORDER BY id LIMIT ?",
+        )
+        .bind(after)
+        .bind(SUM_PAGE)
+        .fetch_all(&mut *conn)
+        .await?;
+        let Some(last) = rows.last() else { return Ok(sums) };
+        after = last.try_get("id")?;
+        for r in rows {
+            let Some(item) = item_key(r.try_get("driver_id")?, r.try_get("cost_id")?) else { continue };
+            let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
+            let entry = Totals {
+                amount: decimal("amount", r.try_get("amount")?)?,
+                quantity: quantity.unwrap_or_default(),
+                entries: 1,
+                last: parsed("period", r.try_get("period")?, Month::parse)?,
+            };
+            sums.entry((r.try_get("zone_id")?, item)).or_insert(Totals::empty(entry.last)).add(&entry);
+        }
     }
-    Ok(sums)
 }
 
 /// Rebuild `ledger_totals` from the entries when it is empty but the ledger is not (a database
@@ -587,9 +600,12 @@ pub(super) async fn totals_in(
 /// or one): what makes a month "elapsed" (as `domain::realized_view` counts it from the
 /// entries). Entries of every baseline of the history count, not only the current one's.
 pub(super) async fn latest_live_in(conn: &mut SqliteConnection, zone: Option<i64>) -> DbResult<Vec<(i64, Month)>> {
+    // The unary `+` keeps SQLite off the reverses_id index for `IS NULL` (nearly every row
+    // matches it): with it the planner walks (zone_id, period) instead, 0.05 ms instead of
+    // 23 ms per zone on the scale data (EXPLAIN QUERY PLAN).
     macro_rules! live {
         () => {
-            "e.reverses_id IS NULL AND NOT EXISTS (SELECT 1 FROM ledger_entries r WHERE r.reverses_id = e.id)"
+            "+e.reverses_id IS NULL AND NOT EXISTS (SELECT 1 FROM ledger_entries r WHERE r.reverses_id = e.id)"
         };
     }
     let rows: Vec<(i64, String)> = match zone {
