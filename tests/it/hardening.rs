@@ -221,28 +221,11 @@ async fn insert_or_replace_is_refused_on_every_keyed_table() {
     assert!(t.as_new_user("t-second-lead", Role::Lead).await.cookie.is_some());
 }
 
-/// A database at migration 0006 (before `user_ids`), as an older release left it.
-async fn database_before(dir: &std::path::Path, before: &str) -> sqlx::SqlitePool {
-    let old = dir.join("old-migrations");
-    std::fs::create_dir(&old).unwrap();
-    for f in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/migrations")).unwrap() {
-        let f = f.unwrap();
-        let name = f.file_name().into_string().unwrap();
-        if name.as_str() < before {
-            std::fs::copy(f.path(), old.join(&name)).unwrap();
-        }
-    }
-    let url = format!("sqlite://{}", dir.join("old.db").display());
-    let pool = pilot_ledger::db::connect(&url).await.unwrap();
-    sqlx::migrate::Migrator::new(old.as_path()).await.unwrap().run(&pool).await.unwrap();
-    pool
-}
-
 #[tokio::test]
 async fn ids_of_users_deleted_before_the_upgrade_are_never_given_again() {
     use sqlx::Connection;
     let dir = tempfile::tempdir().unwrap();
-    let pool = database_before(dir.path(), "0007").await;
+    let pool = crate::helpers::pool_before(dir.path(), "0007").await;
     // Users 1 to 3 with a token and a session each; then user 3 is deleted with the sqlite3
     // shell (foreign keys off, as it starts), and a token of a user 4 deleted earlier remains.
     let mut conn = pool.acquire().await.unwrap();
