@@ -15,9 +15,6 @@ use sqlx::{Column, QueryBuilder, Row as _, Sqlite, SqliteConnection, SqlitePool,
 /// The `table` of a problem SQLite's integrity check found.
 const DATABASE: &str = "database";
 
-/// How many rows [`verify`] and the seal read per query.
-const PAGE: i64 = 5_000;
-
 /// The tip of `table`'s chain (`LEDGER_ENTRIES` or `AUDIT_LOG`).
 pub(super) async fn tip(conn: &mut SqliteConnection, table: &'static str) -> DbResult<Tip> {
     let sql = if table == LEDGER_ENTRIES {
@@ -77,7 +74,7 @@ struct StoredRow {
     columns: Vec<(String, Value)>,
 }
 
-/// Rows of `table` with ids above `after`, in id order, at most [`PAGE`].
+/// Rows of `table` with ids above `after`, in id order, at most [`READ_PAGE`](super::READ_PAGE).
 async fn page(conn: &mut SqliteConnection, table: &'static str, after: i64) -> DbResult<Vec<StoredRow>> {
     // Every column (`*`): a column the writers forgot to hash shows up as a broken row.
     let sql = if table == LEDGER_ENTRIES {
@@ -85,7 +82,7 @@ async fn page(conn: &mut SqliteConnection, table: &'static str, after: i64) -> D
     } else {
         "SELECT * FROM audit_log WHERE id > ? ORDER BY id LIMIT ?"
     };
-    let rows = sqlx::query(sql).bind(after).bind(PAGE).fetch_all(conn).await?;
+    let rows = sqlx::query(sql).bind(after).bind(super::READ_PAGE).fetch_all(conn).await?;
     rows.iter().map(|r| stored_row(table, r)).collect()
 }
 

@@ -484,11 +484,8 @@ async fn write_totals(
     Ok(())
 }
 
-/// Entries read per statement by [`sums_from_entries`].
-const SUM_PAGE: i64 = 10_000;
-
 /// Each (zone, item)'s totals summed from the entries themselves, in Rust. Read in pages of
-/// [`SUM_PAGE`] rows by id, so the start-up check holds a page, not the whole ledger (all of
+/// [`READ_PAGE`](super::READ_PAGE) rows by id, so the start-up check holds a page, not the whole ledger (all of
 /// 240,000 rows at once took the server's peak memory from 56 to 240 MB).
 async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collections::BTreeMap<(i64, String), Totals>> {
     let mut sums: std::collections::BTreeMap<(i64, String), Totals> = Default::default();
@@ -499,7 +496,7 @@ async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collect
              WHERE id > ? ORDER BY id LIMIT ?",
         )
         .bind(after)
-        .bind(SUM_PAGE)
+        .bind(super::READ_PAGE)
         .fetch_all(&mut *conn)
         .await?;
         let Some(last) = rows.last() else { return Ok(sums) };

@@ -420,8 +420,8 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
             .await
             .unwrap();
     assert_eq!((amount.as_str(), quantity.as_str(), entries), ("204000", "1020000", 40_000));
-    // The start-up check sums the entries page by page (10,000 rows a page): four pages here
-    // agree with the kept totals; a tampered row would be named (tests/it/chain.rs).
+    // The start-up check sums the entries page by page (db::READ_PAGE rows a page): several
+    // pages here agree with the kept totals; a tampered row would be named (tests/it/chain.rs).
     assert_eq!(pilot_ledger::db::totals_problem(&t.pool).await.unwrap(), None);
 
     // Beyond the import limit the upload is refused before anything is read.
