@@ -263,25 +263,6 @@ pub struct SettingsForm {
     one_person_approval: bool,
 }
 
-/// Store new site settings with their audit row: the one write path of the settings form and
-/// `PATCH /api/v1/site`. The currency is refused once cases hold money (`db::put_site`).
-pub async fn change_settings(pool: &SqlitePool, site: &SiteSettings, actor: &str) -> Result<(), AppError> {
-    let mut tx = db::begin_write(pool).await?;
-    db::put_site(&mut tx, site, actor).await?;
-    let detail = format!(
-        "currency {}, hurdle {}, tax {:?}, depreciation {:?}, one-person approval {}, numbers {}",
-        site.currency,
-        site.hurdle_rate,
-        site.tax_rate,
-        site.depreciation_years,
-        site.one_person_approval,
-        site.number_format.as_str()
-    );
-    db::audit::record(&mut tx, &db::now(), actor, "settings.update", "site", &detail).await?;
-    tx.commit().await?;
-    Ok(())
-}
-
 /// POST /admin/settings: numbers are read in the format the form was shown in (the current one).
 pub async fn update_settings(
     State(state): State<AppState>,
@@ -319,10 +300,10 @@ pub async fn update_settings(
             return admin_page(&state, Nav::from(&me), e, None, None).await;
         }
     };
-    match change_settings(&state.pool, &site, me.name()).await {
+    match crate::app::site::change_settings(&state.pool, me.name(), &site).await {
         Ok(()) => Ok(Redirect::to("/admin").into_response()),
-        Err(AppError::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
-        Err(other) => Err(other),
+        Err(crate::app::Error::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
+        Err(other) => Err(other.into()),
     }
 }
 

@@ -2,9 +2,10 @@
 //! and the OpenAPI document.
 
 use super::auth::CurrentUser;
-use super::cases::{CommentForm, CopyForm, ReviewStep, copy_version, figures_of, review_case};
+use super::cases::{CommentForm, CopyForm, figures_of};
 use super::metrics;
 use super::{ApiError, AppError, AppState, JsonBody};
+use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseSpec, CaseSpecInput, CaseState, NewZone, NumberFormat, RateStyle, SiteSettings, SiteSettingsInput, ZoneInput,
@@ -126,7 +127,7 @@ pub async fn copy_case(
     Path(id): Path<i64>,
     JsonBody(body): JsonBody<CopyForm>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let new_id = copy_version(&state, &user, id, &body.label).await?;
+    let new_id = app::cases::copy(&state.pool, user.name(), id, &body.label).await?;
     let body = case_body(&state, new_id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{new_id}"))], Json(body)))
 }
@@ -138,7 +139,7 @@ async fn review(
     step: ReviewStep,
     comment: &str,
 ) -> Result<Json<Value>, ApiError> {
-    review_case(state, user, id, step, comment).await?;
+    app::cases::review(&state.pool, user.name(), id, step, comment).await?;
     Ok(Json(case_body(state, id).await?))
 }
 
@@ -188,7 +189,7 @@ pub async fn zone_status(
     Path(id): Path<i64>,
     JsonBody(body): JsonBody<StatusBody>,
 ) -> Result<Json<Value>, ApiError> {
-    let zone = super::zones::change_status(&state, &user, id, &body.status).await?;
+    let zone = app::zones::change_status(&state.pool, user.name(), id, &body.status).await?;
     Ok(Json(json!({ "zone": zone })))
 }
 
@@ -269,6 +270,6 @@ pub async fn patch_site(
 ) -> Result<Json<Value>, ApiError> {
     let current = db::get_site(&state.pool).await?;
     let site = SiteSettings::parse(&patch.apply(current.input()), NumberFormat::Plain).map_err(AppError::Invalid)?;
-    super::admin::change_settings(&state.pool, &site, user.name()).await?;
+    app::site::change_settings(&state.pool, user.name(), &site).await?;
     Ok(Json(site_json(&db::get_site(&state.pool).await?)))
 }

@@ -5,11 +5,12 @@ use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::LineChart;
 use super::uncertainty::UncertaintyView;
 use super::{AppError, AppState, FormBody};
+use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
     FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle, SiteSettings, Trials, Zone,
-    calibration_of, case_figures, case_uncertainty, parse_comment, parse_return_comment, parse_seed,
+    calibration_of, case_figures, case_uncertainty, parse_seed,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -483,25 +484,6 @@ pub struct CopyForm {
     pub label: String,
 }
 
-/// Save version `id` as the zone's next draft named `label`, with its audit row: the one write
-/// path of the copy page form and the API. Returns the new version's id.
-pub(super) async fn copy_version(state: &AppState, user: &Principal, id: i64, label: &str) -> Result<i64, AppError> {
-    let label = CaseHeader::parse_label(label).map_err(|msg| AppError::Invalid(FieldErrors::one("label", msg)))?;
-    let mut tx = db::begin_write(&state.pool).await?;
-    let new_id = db::copy_case(&mut tx, id, &label, user.name()).await?;
-    db::audit::record(
-        &mut tx,
-        &db::now(),
-        user.name(),
-        "case.copy",
-        &format!("case {new_id}"),
-        &format!("from case {id}"),
-    )
-    .await?;
-    tx.commit().await?;
-    Ok(new_id)
-}
-
 /// POST /cases/{id}/copy: save this version as the zone's next scenario version.
 pub async fn copy(
     State(state): State<AppState>,
@@ -509,7 +491,7 @@ pub async fn copy(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CopyForm>,
 ) -> Result<Response, AppError> {
-    let new_id = copy_version(&state, &user, id, &form.label).await?;
+    let new_id = app::cases::copy(&state.pool, user.name(), id, &form.label).await?;
     Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
 }
 
@@ -589,64 +571,12 @@ pub async fn compare(
     Ok(Html(ComparePage { nav: Nav::from(&me), site, zone, versions, a, b, rows, npv_difference }.render()?))
 }
 
-/// A review step on a case version.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum ReviewStep {
-    /// A draft goes up for approval.
-    Submit,
-    /// A submitted version becomes the zone's baseline (four eyes).
-    Approve,
-    /// A submitted version goes back to draft with the reason.
-    Reject,
-}
-
-impl ReviewStep {
-    fn action(self) -> &'static str {
-        match self {
-            Self::Submit => "case.submit",
-            Self::Approve => "case.approve",
-            Self::Reject => "case.reject",
-        }
-    }
-}
-
 /// The review form and body: a comment, required to return a version.
 #[derive(Deserialize, Serialize, Default)]
 #[serde(default, deny_unknown_fields)]
 pub struct CommentForm {
     /// Free text kept on the version and in the audit trail.
     pub comment: String,
-}
-
-/// Apply a review step in one transaction with its audit row (who, when, the comment): the
-/// one write path of the page forms and the API. The rules are `db::submit_case`,
-/// `db::approve_case` and `db::reject_case`.
-pub(super) async fn review_case(
-    state: &AppState,
-    user: &Principal,
-    id: i64,
-    step: ReviewStep,
-    comment: &str,
-) -> Result<(), AppError> {
-    let comment = match step {
-        ReviewStep::Reject => parse_return_comment(comment),
-        ReviewStep::Submit | ReviewStep::Approve => parse_comment(comment),
-    }
-    .map_err(|msg| AppError::Invalid(FieldErrors::one("comment", msg)))?;
-    let mut tx = db::begin_write(&state.pool).await?;
-    let mut detail = match step {
-        ReviewStep::Submit => db::submit_case(&mut tx, id, user.name(), &comment).await.map(|()| String::new()),
-        ReviewStep::Approve => {
-            db::approve_case(&mut tx, id, user.name(), &comment).await.map(|k| k.as_str().to_string())
-        }
-        ReviewStep::Reject => db::reject_case(&mut tx, id, user.name(), &comment).await.map(|()| String::new()),
-    }?;
-    if !comment.is_empty() {
-        detail = if detail.is_empty() { comment } else { format!("{detail}: {comment}") };
-    }
-    db::audit::record(&mut tx, &db::now(), user.name(), step.action(), &format!("case {id}"), &detail).await?;
-    tx.commit().await?;
-    Ok(())
 }
 
 /// POST /cases/{id}/submit: a draft goes up for approval.
@@ -656,7 +586,7 @@ pub async fn submit(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    review_case(&state, &user, id, ReviewStep::Submit, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), id, ReviewStep::Submit, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -667,7 +597,7 @@ pub async fn approve(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    review_case(&state, &user, id, ReviewStep::Approve, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), id, ReviewStep::Approve, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -678,7 +608,7 @@ pub async fn reject(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    review_case(&state, &user, id, ReviewStep::Reject, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), id, ReviewStep::Reject, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 

@@ -86,6 +86,18 @@ impl From<DbError> for AppError {
     }
 }
 
+impl From<crate::app::Error> for AppError {
+    fn from(e: crate::app::Error) -> Self {
+        use crate::app::Error as E;
+        match e {
+            E::Invalid(fields) => Self::Invalid(fields),
+            E::NotFound(what) => Self::NotFound(what),
+            E::Conflict(msg) => Self::Conflict(msg),
+            E::Internal(e) => Self::Internal(e),
+        }
+    }
+}
+
 impl From<FieldErrors> for AppError {
     fn from(e: FieldErrors) -> Self {
         Self::Invalid(e)

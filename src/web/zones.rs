@@ -1,6 +1,6 @@
 //! Zone pages: the list with its create form, the detail page with its versions.
 
-use super::auth::{CurrentUser, Nav, Principal};
+use super::auth::{CurrentUser, Nav};
 use super::cases::{MetricsView, load_figures};
 use super::{AppError, AppState, FormBody};
 use crate::db::{self, CaseVersion};
@@ -57,26 +57,6 @@ fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
         db::DbError::Invalid(fields) => Ok(fields),
         other => Err(other.into()),
     }
-}
-
-/// Move zone `id` to the status named `status` along its lifecycle, with its audit row: the
-/// one write path of the API (the zone form shares the rule through `db::update_zone`).
-/// A refused move is a 409 naming the allowed next states.
-pub(super) async fn change_status(state: &AppState, user: &Principal, id: i64, status: &str) -> Result<Zone, AppError> {
-    let to = ZoneStatus::parse(status).map_err(|msg| AppError::Invalid(FieldErrors::one("status", msg)))?;
-    let mut tx = db::begin_write(&state.pool).await?;
-    let from = db::set_zone_status(&mut tx, id, to, user.name()).await?;
-    db::audit::record(
-        &mut tx,
-        &db::now(),
-        user.name(),
-        "zone.status",
-        &format!("zone {id}"),
-        &format!("{from} -> {to}"),
-    )
-    .await?;
-    tx.commit().await?;
-    Ok(db::get_zone(&state.pool, id).await?)
 }
 
 /// GET /zones

@@ -1,0 +1,25 @@
+//! Site settings.
+
+use super::{Actor, AppResult};
+use crate::db;
+use crate::domain::SiteSettings;
+use sqlx::SqlitePool;
+
+/// Store new site settings with their audit row: the settings form and `PATCH /api/v1/site`.
+/// The currency is refused once cases hold money (`db::put_site`).
+pub async fn change_settings(pool: &SqlitePool, actor: Actor<'_>, site: &SiteSettings) -> AppResult<()> {
+    let mut tx = db::begin_write(pool).await?;
+    db::put_site(&mut tx, site, actor).await?;
+    let detail = format!(
+        "currency {}, hurdle {}, tax {:?}, depreciation {:?}, one-person approval {}, numbers {}",
+        site.currency,
+        site.hurdle_rate,
+        site.tax_rate,
+        site.depreciation_years,
+        site.one_person_approval,
+        site.number_format.as_str()
+    );
+    db::audit::record(&mut tx, &db::now(), actor, "settings.update", "site", &detail).await?;
+    tx.commit().await?;
+    Ok(())
+}
