@@ -4,8 +4,8 @@ use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{
-    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryKind, LedgerEntry, Month, NewEntry, ZoneStatus,
-    item_key,
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryId, EntryKind, LedgerEntry, LedgerItem, Month,
+    NewEntry, ZoneStatus,
 };
 use rust_decimal::Decimal;
 use sqlx::sqlite::SqliteRow;
@@ -29,12 +29,10 @@ fn opt_decimal(column: &'static str, v: Option<String>) -> DbResult<Option<Decim
 
 fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
     Ok(LedgerEntry {
-        id: r.try_get("id")?,
+        id: EntryId(r.try_get("id")?),
         zone_id: r.try_get("zone_id")?,
         case_id: r.try_get("case_id")?,
-        kind: parsed("kind", r.try_get("kind")?, EntryKind::parse)?,
-        driver_id: r.try_get("driver_id")?,
-        cost_id: r.try_get("cost_id")?,
+        item: item_from(r)?,
         period: parsed("period", r.try_get("period")?, Month::parse)?,
         method: r.try_get("method")?,
         quantity: opt_decimal("quantity", r.try_get("quantity")?)?,
@@ -44,13 +42,22 @@ fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
         reporting_volume: opt_decimal("reporting_volume", r.try_get("reporting_volume")?)?,
         measured_consumption: opt_decimal("measured_consumption", r.try_get("measured_consumption")?)?,
         evidence: r.try_get("evidence")?,
-        reverses_id: r.try_get("reverses_id")?,
-        reversed_by: r.try_get("reversed_by")?,
+        reverses_id: r.try_get::<Option<i64>, _>("reverses_id")?.map(EntryId),
+        reversed_by: r.try_get::<Option<i64>, _>("reversed_by")?.map(EntryId),
         booked_at: r.try_get("booked_at")?,
         booked_by: r.try_get("booked_by")?,
         paid_on: r.try_get::<Option<String>, _>("paid_on")?.map(|d| parsed("paid_on", d, parse_date)).transpose()?,
         implausible_confirmed: r.try_get::<Option<i64>, _>("implausible_confirmed")?.is_some_and(|v| v != 0),
     })
+}
+
+/// The item of a stored entry: its kind with exactly the matching id column set.
+fn item_from(r: &SqliteRow) -> DbResult<LedgerItem> {
+    let kind: String = r.try_get("kind")?;
+    let (driver, cost): (Option<i64>, Option<i64>) = (r.try_get("driver_id")?, r.try_get("cost_id")?);
+    LedgerItem::from_columns(driver, cost)
+        .filter(|item| EntryKind::parse(&kind) == Ok(item.kind()))
+        .ok_or(DbError::Corrupt { column: "driver_id, cost_id", value: format!("{kind}: {driver:?}, {cost:?}") })
 }
 
 fn parse_date(text: &str) -> Result<time::Date, String> {
@@ -161,8 +168,8 @@ pub async fn book(
     actor: &str,
     key: Option<&Idempotency<'_>>,
 ) -> DbResult<Booked> {
-    let saving = b.kind == EntryKind::Saving;
-    let item = item_key(saving.then_some(b.item_id), (!saving).then_some(b.item_id)).unwrap_or_default();
+    let saving = b.item.kind() == EntryKind::Saving;
+    let item = b.item.key();
     let row = sqlx::query(
         "SELECT i.entry_id AS replay, i.fingerprint,
                 c.id AS case_id, c.start_month, c.horizon_months,
@@ -181,9 +188,9 @@ pub async fn book(
     )
     .bind(key.map(|k| k.user_id))
     .bind(key.map(|k| k.key))
-    .bind(b.item_id)
+    .bind(b.item.id())
     .bind(saving)
-    .bind(b.item_id)
+    .bind(b.item.id())
     .bind(saving)
     .bind(&item)
     .bind(zone_id)
@@ -338,12 +345,10 @@ async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag:
 fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> LedgerEntry {
     let [baseline_intensity, reporting_volume, measured_consumption] = e.inputs.map(|d| d.map(|d| d.normalize()));
     LedgerEntry {
-        id,
+        id: EntryId(id),
         zone_id,
         case_id: e.case_id,
-        kind: e.kind,
-        driver_id: e.driver_id,
-        cost_id: e.cost_id,
+        item: e.item,
         period: e.period,
         method: e.method,
         quantity: e.quantity.map(|d| d.normalize()),
@@ -353,7 +358,7 @@ fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> Ledg
         reporting_volume,
         measured_consumption,
         evidence: e.evidence,
-        reverses_id: tag.reverses_id,
+        reverses_id: tag.reverses_id.map(EntryId),
         reversed_by: None,
         booked_at: at,
         booked_by: tag.actor.to_string(),
@@ -384,8 +389,7 @@ pub async fn insert_checked(
 async fn add_to_totals(conn: &mut SqliteConnection, zone_id: i64, entries: &[NewEntry]) -> DbResult<()> {
     let mut sums: std::collections::BTreeMap<String, Totals> = Default::default();
     for e in entries {
-        let Some(item) = e.item_key() else { continue };
-        sums.entry(item).or_insert(Totals::empty(e.period)).add(&Totals::of(e));
+        sums.entry(e.item.key()).or_insert(Totals::empty(e.period)).add(&Totals::of(e));
     }
     for (item, added) in sums {
         let row = sqlx::query(
@@ -502,7 +506,9 @@ async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collect
         let Some(last) = rows.last() else { return Ok(sums) };
         after = last.try_get("id")?;
         for r in rows {
-            let Some(item) = item_key(r.try_get("driver_id")?, r.try_get("cost_id")?) else { continue };
+            let Some(item) = LedgerItem::from_columns(r.try_get("driver_id")?, r.try_get("cost_id")?) else {
+                continue;
+            };
             let quantity = r.try_get::<Option<String>, _>("quantity")?.map(|q| decimal("quantity", q)).transpose()?;
             let entry = Totals {
                 amount: decimal("amount", r.try_get("amount")?)?,
@@ -510,7 +516,7 @@ async fn sums_from_entries(conn: &mut SqliteConnection) -> DbResult<std::collect
                 entries: 1,
                 last: parsed("period", r.try_get("period")?, Month::parse)?,
             };
-            sums.entry((r.try_get("zone_id")?, item)).or_insert(Totals::empty(entry.last)).add(&entry);
+            sums.entry((r.try_get("zone_id")?, item.key())).or_insert(Totals::empty(entry.last)).add(&entry);
         }
     }
 }
@@ -686,9 +692,7 @@ pub async fn reverse(
     }
     let entry = NewEntry {
         case_id: original.case_id,
-        kind: original.kind,
-        driver_id: original.driver_id,
-        cost_id: original.cost_id,
+        item: original.item,
         period: original.period,
         method: original.method,
         quantity: original.quantity.map(|q| -q),

@@ -55,14 +55,14 @@ async fn load_zone_extras(
     let mut entries = Vec::with_capacity(z.ledger.len());
     for (j, entry) in z.ledger.iter().enumerate() {
         let prefix = format!("zones[{i}].ledger[{j}].");
-        let saving = entry.booking.kind == EntryKind::Saving;
+        let saving = entry.booking.item.kind() == EntryKind::Saving;
         let Some(&id) = baseline.items_labelled(saving, &entry.item_label).first() else {
             let field = if saving { "driver" } else { "cost" };
             errors.push(format!("{prefix}{field}"), "no item of the approved case has this label");
             continue;
         };
         let mut booking = entry.booking.clone();
-        booking.item_id = id;
+        booking.item = crate::domain::LedgerItem::new(booking.item.kind(), id);
         match baseline.check(&booking, now) {
             Ok(e) => entries.push(e),
             Err(fe) => errors.extend_prefixed(&prefix, fe),

@@ -3,7 +3,7 @@
 //! month lies inside its horizon and not in the future) need the stored case: see `db::ledger`.
 
 use super::de::{flexible_bool, string_or_number};
-use super::{FieldErrors, Month, NumberFormat, required_text};
+use super::{CostItemId, DriverId, EntryId, FieldErrors, Month, NumberFormat, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 
@@ -33,6 +33,79 @@ impl EntryKind {
             "spending" => Ok(Self::Spending),
             _ => Err("saving or spending".into()),
         }
+    }
+}
+
+/// What an entry is booked against: a benefit driver (a saving) or a cost item (spending).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum LedgerItem {
+    /// A benefit driver of the baseline: the entry is a saving.
+    Driver(DriverId),
+    /// A cost item of the baseline: the entry is spending.
+    Cost(CostItemId),
+}
+
+impl LedgerItem {
+    /// The item of an entry of `kind` with row id `id`.
+    pub fn new(kind: EntryKind, id: i64) -> Self {
+        match kind {
+            EntryKind::Saving => Self::Driver(DriverId(id)),
+            EntryKind::Spending => Self::Cost(CostItemId(id)),
+        }
+    }
+
+    /// The item of a stored row's `driver_id` and `cost_id` columns (exactly one is set).
+    pub fn from_columns(driver_id: Option<i64>, cost_id: Option<i64>) -> Option<Self> {
+        match (driver_id, cost_id) {
+            (Some(d), None) => Some(Self::Driver(DriverId(d))),
+            (None, Some(c)) => Some(Self::Cost(CostItemId(c))),
+            _ => None,
+        }
+    }
+
+    /// Saving for a driver, spending for a cost item.
+    pub fn kind(self) -> EntryKind {
+        match self {
+            Self::Driver(_) => EntryKind::Saving,
+            Self::Cost(_) => EntryKind::Spending,
+        }
+    }
+
+    /// The item's row id.
+    pub fn id(self) -> i64 {
+        match self {
+            Self::Driver(DriverId(id)) | Self::Cost(CostItemId(id)) => id,
+        }
+    }
+
+    /// The driver, for a saving.
+    pub fn driver(self) -> Option<DriverId> {
+        if let Self::Driver(d) = self { Some(d) } else { None }
+    }
+
+    /// The cost item, for spending.
+    pub fn cost(self) -> Option<CostItemId> {
+        if let Self::Cost(c) = self { Some(c) } else { None }
+    }
+
+    /// The running-totals key: `driver:<id>` or `cost:<id>`.
+    pub fn key(self) -> String {
+        match self {
+            Self::Driver(d) => format!("driver:{d}"),
+            Self::Cost(c) => format!("cost:{c}"),
+        }
+    }
+}
+
+/// The API's spelling of an item: `kind` with `driver_id` or `cost_id`.
+impl Serialize for LedgerItem {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeStruct;
+        let mut st = s.serialize_struct("LedgerItem", 3)?;
+        st.serialize_field("kind", &self.kind())?;
+        st.serialize_field("driver_id", &self.driver())?;
+        st.serialize_field("cost_id", &self.cost())?;
+        st.end()
     }
 }
 
@@ -114,10 +187,8 @@ pub struct BookingInput {
 /// A booking whose fields are each valid.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Booking {
-    /// Saving or spending.
-    pub kind: EntryKind,
-    /// Driver id (saving) or cost item id (spending).
-    pub item_id: i64,
+    /// The driver (saving) or cost item (spending).
+    pub item: LedgerItem,
     /// The month booked.
     pub period: Month,
     /// Method and inputs.
@@ -144,8 +215,8 @@ impl Booking {
         };
         format!(
             "kind={}\nitem={}\nperiod={}\nmethod={}\nnumbers={numbers}\nevidence={:?}\npaid_on={}\nconfirm={}",
-            self.kind.as_str(),
-            self.item_id,
+            self.item.kind().as_str(),
+            self.item.id(),
             self.period,
             self.measurement.method(),
             self.evidence,
@@ -260,7 +331,8 @@ impl Booking {
         let confirm_implausible = input.confirm_implausible;
         match (kind, item_id, period, measurement, evidence) {
             (Some(kind), Some(item_id), Some(period), Some(measurement), Some(evidence)) if e.is_empty() => {
-                Ok(Self { kind, item_id, period, measurement, evidence, paid_on, confirm_implausible })
+                let item = LedgerItem::new(kind, item_id);
+                Ok(Self { item, period, measurement, evidence, paid_on, confirm_implausible })
             }
             _ => Err(e),
         }
@@ -271,17 +343,14 @@ impl Booking {
 #[derive(Debug, Clone, Serialize)]
 pub struct LedgerEntry {
     /// Row id.
-    pub id: i64,
+    pub id: EntryId,
     /// Zone.
     pub zone_id: i64,
     /// The baseline case version it was measured against.
     pub case_id: i64,
-    /// Saving or spending.
-    pub kind: EntryKind,
-    /// Driver (saving).
-    pub driver_id: Option<i64>,
-    /// Cost item (spending).
-    pub cost_id: Option<i64>,
+    /// The driver (saving) or cost item (spending).
+    #[serde(flatten)]
+    pub item: LedgerItem,
     /// Month booked.
     #[serde(serialize_with = "super::case::ser_display")]
     pub period: Month,
@@ -302,9 +371,9 @@ pub struct LedgerEntry {
     /// Evidence note.
     pub evidence: String,
     /// The entry this one reverses.
-    pub reverses_id: Option<i64>,
+    pub reverses_id: Option<EntryId>,
     /// The entry that reversed this one, if any.
-    pub reversed_by: Option<i64>,
+    pub reversed_by: Option<EntryId>,
     /// RFC 3339 booking time.
     pub booked_at: String,
     /// Who booked it.
@@ -317,6 +386,11 @@ pub struct LedgerEntry {
 }
 
 impl LedgerEntry {
+    /// Saving or spending.
+    pub fn kind(&self) -> EntryKind {
+        self.item.kind()
+    }
+
     /// Whether the entry counts as booked: neither reversed nor a reversal. Only such entries
     /// make a month "elapsed" (a reversed booking in a later month does not stretch the window).
     pub fn is_live(&self) -> bool {
@@ -420,12 +494,8 @@ impl Plausibility {
 pub struct NewEntry {
     /// The baseline case version.
     pub case_id: i64,
-    /// Saving or spending.
-    pub kind: EntryKind,
-    /// Driver (saving).
-    pub driver_id: Option<i64>,
-    /// Cost item (spending).
-    pub cost_id: Option<i64>,
+    /// The driver (saving) or cost item (spending).
+    pub item: LedgerItem,
     /// Month booked.
     pub period: Month,
     /// `direct`, `normalized` or `spend`.
@@ -444,22 +514,6 @@ pub struct NewEntry {
     pub paid_on: Option<time::Date>,
     /// Beyond the plausibility threshold and confirmed by its author.
     pub implausible_confirmed: bool,
-}
-
-/// The running-totals key of a ledger item: `driver:<id>` or `cost:<id>`.
-pub fn item_key(driver_id: Option<i64>, cost_id: Option<i64>) -> Option<String> {
-    match (driver_id, cost_id) {
-        (Some(d), _) => Some(format!("driver:{d}")),
-        (None, Some(c)) => Some(format!("cost:{c}")),
-        (None, None) => None,
-    }
-}
-
-impl NewEntry {
-    /// The totals key of its item (see [`item_key`]).
-    pub fn item_key(&self) -> Option<String> {
-        item_key(self.driver_id, self.cost_id)
-    }
 }
 
 impl BookingBaseline {
@@ -491,20 +545,20 @@ impl BookingBaseline {
                 format!("{} is in the future; the latest month that can be booked is {current_month}", b.period),
             );
         }
-        let driver = self.drivers.iter().find(|d| d.id == b.item_id && b.kind == EntryKind::Saving);
-        let cost = self.costs.iter().find(|c| c.id == b.item_id && b.kind == EntryKind::Spending);
-        let (driver_id, cost_id, unit_value) = match b.kind {
-            EntryKind::Saving => {
+        let driver = b.item.driver().and_then(|id| self.drivers.iter().find(|d| d.id == id.0));
+        let cost = b.item.cost().and_then(|id| self.costs.iter().find(|c| c.id == id.0));
+        let unit_value = match b.item {
+            LedgerItem::Driver(id) => {
                 if driver.is_none() {
-                    e.push("item", format!("driver {} is not a benefit driver of the zone's baseline", b.item_id));
+                    e.push("item", format!("driver {id} is not a benefit driver of the zone's baseline"));
                 }
-                (Some(b.item_id), None, driver.map(|d| d.unit_value))
+                driver.map(|d| d.unit_value)
             }
-            EntryKind::Spending => {
+            LedgerItem::Cost(id) => {
                 if cost.is_none() {
-                    e.push("item", format!("cost item {} is not a cost item of the zone's baseline", b.item_id));
+                    e.push("item", format!("cost item {id} is not a cost item of the zone's baseline"));
                 }
-                (None, Some(b.item_id), None)
+                None
             }
         };
         if !e.is_empty() {
@@ -572,9 +626,7 @@ impl BookingBaseline {
         }
         Ok(NewEntry {
             case_id: self.case_id,
-            kind: b.kind,
-            driver_id,
-            cost_id,
+            item: b.item,
             period: b.period,
             method: b.measurement.method().to_string(),
             quantity,
@@ -599,4 +651,26 @@ pub fn idempotency_key(raw: &[u8]) -> Result<&str, String> {
         return Err(rule);
     }
     std::str::from_utf8(raw).map_err(|_| rule)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn an_item_is_a_driver_or_a_cost_item_never_both() {
+        assert_eq!(LedgerItem::from_columns(Some(3), None), Some(LedgerItem::Driver(DriverId(3))));
+        assert_eq!(LedgerItem::from_columns(None, Some(4)), Some(LedgerItem::Cost(CostItemId(4))));
+        assert_eq!(LedgerItem::from_columns(Some(3), Some(4)), None);
+        assert_eq!(LedgerItem::from_columns(None, None), None);
+        assert_eq!(LedgerItem::new(EntryKind::Spending, 4).key(), "cost:4");
+        assert_eq!(LedgerItem::new(EntryKind::Saving, 3).kind(), EntryKind::Saving);
+    }
+
+    #[test]
+    fn the_api_keeps_kind_and_both_id_fields() -> Result<(), serde_json::Error> {
+        let json = serde_json::to_value(LedgerItem::Cost(CostItemId(4)))?;
+        assert_eq!(json, serde_json::json!({"kind": "spending", "driver_id": null, "cost_id": 4}));
+        Ok(())
+    }
 }

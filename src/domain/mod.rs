@@ -9,6 +9,7 @@ mod case;
 pub mod chain;
 mod figures;
 mod history;
+mod ids;
 mod ledger;
 mod money;
 mod numbers;
@@ -27,9 +28,10 @@ pub use case::{
 };
 pub use figures::{CaseFigures, View, case_figures};
 pub use history::{BaselineHistory, Expected, ExpectedDriver, InForce, settings_of};
+pub use ids::{CaseId, CostItemId, DriverId, EntryId, UserId, ZoneId};
 pub use ledger::{
     BaselineCost, BaselineDriver, Booking, BookingBaseline, BookingInput, EntryKind, IDEMPOTENCY_KEY_MAX, LedgerEntry,
-    Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key, item_key,
+    LedgerItem, Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key,
 };
 pub use money::{Money, Percent, money, pct, quantity};
 pub use numbers::{NumberFormat, read, read_count, read_percent, read_whole};

@@ -107,10 +107,10 @@ pub fn realized_view(
     for e in entries {
         let Some(i) = month_index(start, e.period).filter(|i| *i < n) else { continue };
         measured_net[i] += e.amount;
-        if e.kind == EntryKind::Spending {
+        if e.kind() == EntryKind::Spending {
             measured_spend[i] += e.amount;
         }
-        if let Some(line) = e.driver_id.and_then(|d| expected.line_of(d)) {
+        if let Some(line) = e.item.driver().and_then(|d| expected.line_of(d.0)) {
             measured[line][i] += e.amount;
             measured_quantity[line] += e.quantity.unwrap_or_default();
         }

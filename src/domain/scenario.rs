@@ -152,7 +152,7 @@ impl Scenario {
                 input.item = "0".into();
                 match Booking::parse(&input, numbers) {
                     Ok(booking) => {
-                        let (label, field) = match booking.kind {
+                        let (label, field) = match booking.item.kind() {
                             EntryKind::Saving => (&entry.driver, "driver"),
                             EntryKind::Spending => (&entry.cost, "cost"),
                         };

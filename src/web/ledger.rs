@@ -237,11 +237,12 @@ fn item_name(history: &[CaseFull], e: &LedgerEntry) -> String {
             false => b.costs.iter().find(|c| c.item_uid == uid).map(|c| c.item.label.clone()),
         })
     };
-    let uid = history.iter().find_map(|b| match e.kind {
-        EntryKind::Saving => b.drivers.iter().find(|d| Some(d.id) == e.driver_id).map(|d| d.item_uid),
-        EntryKind::Spending => b.costs.iter().find(|c| Some(c.id) == e.cost_id).map(|c| c.item_uid),
+    let uid = history.iter().find_map(|b| match e.kind() {
+        EntryKind::Saving => b.drivers.iter().find(|d| Some(d.id) == e.item.driver().map(|d| d.0)).map(|d| d.item_uid),
+        EntryKind::Spending => b.costs.iter().find(|c| Some(c.id) == e.item.cost().map(|c| c.0)).map(|c| c.item_uid),
     });
-    uid.and_then(|u| latest(u, e.kind == EntryKind::Saving)).unwrap_or_else(|| format!("item of version {}", e.case_id))
+    uid.and_then(|u| latest(u, e.kind() == EntryKind::Saving))
+        .unwrap_or_else(|| format!("item of version {}", e.case_id))
 }
 
 async fn page(
@@ -368,7 +369,7 @@ async fn book_one(
     }
     let booked = db::ledger::book(&mut tx, zone_id, booking, today(state), me.name(), key).await?;
     if let Booked::New(e) = &booked {
-        let mut detail = format!("{} {} {} {}", e.kind.as_str(), e.period, e.method, e.amount);
+        let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method, e.amount);
         if let Some(paid) = e.paid_on {
             detail.push_str(&format!(" paid on {paid}"));
         }
@@ -730,13 +731,13 @@ fn csv_of(
     let text = |d: Option<Decimal>| d.map(|d| numbers.export(&d.to_string())).unwrap_or_default();
     let id = |v: Option<i64>| v.map(|v| v.to_string()).unwrap_or_default();
     for e in entries {
-        let amount = if e.kind == EntryKind::Spending { text(Some(-e.amount)) } else { String::new() };
+        let amount = if e.kind() == EntryKind::Spending { text(Some(-e.amount)) } else { String::new() };
         w.write_record([
             e.id.to_string(),
             zone_codes.get(&e.zone_id).cloned().unwrap_or_default(),
             e.period.to_string(),
-            e.kind.as_str().to_string(),
-            id(e.driver_id.or(e.cost_id)),
+            e.kind().as_str().to_string(),
+            id(Some(e.item.id())),
             if e.method == "spend" { String::new() } else { e.method.clone() },
             text(e.quantity),
             text(e.baseline_intensity),
@@ -747,8 +748,8 @@ fn csv_of(
             e.paid_on.map(|d| d.to_string()).unwrap_or_default(),
             if e.implausible_confirmed { "yes".into() } else { String::new() },
             text(e.unit_value),
-            id(e.reverses_id),
-            id(e.reversed_by),
+            id(e.reverses_id.map(|r| r.0)),
+            id(e.reversed_by.map(|r| r.0)),
             e.booked_at.clone(),
             e.booked_by.clone(),
         ])

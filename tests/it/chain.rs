@@ -339,9 +339,7 @@ async fn every_column_is_chained() {
     let t = test_app(false).await;
     let entry = pilot_ledger::domain::NewEntry {
         case_id: 1,
-        kind: pilot_ledger::domain::EntryKind::Saving,
-        driver_id: Some(1),
-        cost_id: None,
+        item: pilot_ledger::domain::LedgerItem::Driver(pilot_ledger::domain::DriverId(1)),
         period: pilot_ledger::domain::Month::parse("2025-01").unwrap(),
         method: "direct".into(),
         quantity: None,
