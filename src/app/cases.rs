@@ -2,18 +2,18 @@
 
 use super::{Actor, AppResult, invalid};
 use crate::db;
-use crate::domain::{CaseHeader, parse_comment, parse_return_comment};
+use crate::domain::{CaseHeader, CaseId, parse_comment, parse_return_comment};
 use sqlx::SqlitePool;
 
 /// Save version `id` as the zone's next draft named `label`. Returns the new version's id.
-pub async fn copy(pool: &SqlitePool, actor: Actor<'_>, id: i64, label: &str) -> AppResult<i64> {
+pub async fn copy(pool: &SqlitePool, actor: Actor<'_>, CaseId(id): CaseId, label: &str) -> AppResult<CaseId> {
     let label = CaseHeader::parse_label(label).map_err(|msg| invalid("label", msg))?;
     let mut tx = db::begin_write(pool).await?;
     let new_id = db::copy_case(&mut tx, id, &label, actor).await?;
     db::audit::record(&mut tx, &db::now(), actor, "case.copy", &format!("case {new_id}"), &format!("from case {id}"))
         .await?;
     tx.commit().await?;
-    Ok(new_id)
+    Ok(CaseId(new_id))
 }
 
 /// A review step on a case version.
@@ -39,7 +39,13 @@ impl ReviewStep {
 
 /// Apply a review step with its audit row (who, when, the comment; a comment is required to
 /// return a version). The rules are `db::submit_case`, `db::approve_case` and `db::reject_case`.
-pub async fn review(pool: &SqlitePool, actor: Actor<'_>, id: i64, step: ReviewStep, comment: &str) -> AppResult<()> {
+pub async fn review(
+    pool: &SqlitePool,
+    actor: Actor<'_>,
+    CaseId(id): CaseId,
+    step: ReviewStep,
+    comment: &str,
+) -> AppResult<()> {
     let comment = match step {
         ReviewStep::Reject => parse_return_comment(comment),
         ReviewStep::Submit | ReviewStep::Approve => parse_comment(comment),

@@ -2,12 +2,12 @@
 
 use super::{Actor, AppResult, invalid};
 use crate::db;
-use crate::domain::{Zone, ZoneStatus};
+use crate::domain::{Zone, ZoneId, ZoneStatus};
 use sqlx::SqlitePool;
 
 /// Move zone `id` to the status named `status` along its lifecycle, with its audit row. A
 /// refused move is a conflict naming the allowed next states (`db::set_zone_status`).
-pub async fn change_status(pool: &SqlitePool, actor: Actor<'_>, id: i64, status: &str) -> AppResult<Zone> {
+pub async fn change_status(pool: &SqlitePool, actor: Actor<'_>, ZoneId(id): ZoneId, status: &str) -> AppResult<Zone> {
     let to = ZoneStatus::parse(status).map_err(|msg| invalid("status", msg))?;
     let mut tx = db::begin_write(pool).await?;
     let from = db::set_zone_status(&mut tx, id, to, actor).await?;

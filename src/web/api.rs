@@ -7,6 +7,7 @@ use super::metrics;
 use super::{ApiError, AppError, AppState, JsonBody};
 use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
+use crate::domain::{CaseId, ZoneId};
 use crate::domain::{
     CaseSpec, CaseSpecInput, CaseState, NewZone, NumberFormat, RateStyle, SiteSettings, SiteSettingsInput, ZoneInput,
 };
@@ -127,7 +128,7 @@ pub async fn copy_case(
     Path(id): Path<i64>,
     JsonBody(body): JsonBody<CopyForm>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let new_id = app::cases::copy(&state.pool, user.name(), id, &body.label).await?;
+    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &body.label).await?.0;
     let body = case_body(&state, new_id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{new_id}"))], Json(body)))
 }
@@ -139,7 +140,7 @@ async fn review(
     step: ReviewStep,
     comment: &str,
 ) -> Result<Json<Value>, ApiError> {
-    app::cases::review(&state.pool, user.name(), id, step, comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), step, comment).await?;
     Ok(Json(case_body(state, id).await?))
 }
 
@@ -189,7 +190,7 @@ pub async fn zone_status(
     Path(id): Path<i64>,
     JsonBody(body): JsonBody<StatusBody>,
 ) -> Result<Json<Value>, ApiError> {
-    let zone = app::zones::change_status(&state.pool, user.name(), id, &body.status).await?;
+    let zone = app::zones::change_status(&state.pool, user.name(), ZoneId(id), &body.status).await?;
     Ok(Json(json!({ "zone": zone })))
 }
 

@@ -7,6 +7,7 @@ use super::uncertainty::UncertaintyView;
 use super::{AppError, AppState, FormBody};
 use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
+use crate::domain::CaseId;
 use crate::domain::{
     CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
     FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle, SiteSettings, Trials, Zone,
@@ -491,7 +492,7 @@ pub async fn copy(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CopyForm>,
 ) -> Result<Response, AppError> {
-    let new_id = app::cases::copy(&state.pool, user.name(), id, &form.label).await?;
+    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &form.label).await?.0;
     Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
 }
 
@@ -586,7 +587,7 @@ pub async fn submit(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), id, ReviewStep::Submit, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Submit, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -597,7 +598,7 @@ pub async fn approve(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), id, ReviewStep::Approve, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Approve, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -608,7 +609,7 @@ pub async fn reject(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), id, ReviewStep::Reject, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Reject, &form.comment).await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
