@@ -1,11 +1,11 @@
 //! The subcommands' work. `main` only parses the configuration and calls [`run`].
 
+use crate::app::{self, users::Account};
 use crate::auth::SystemClock;
 use crate::auth::{Role, new_secret, parse_new_password};
 use crate::config::{Command, Config, ServeArgs, TokenCommand, UserCommand};
 use crate::db;
 use crate::domain::Scenario;
-use crate::web::admin;
 use crate::web::{AppState, app};
 use anyhow::{Context, bail};
 use sqlx::SqlitePool;
@@ -80,17 +80,14 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
                 UserCommand::Add { name, role } => {
                     let role = Role::parse(&role).map_err(|e| anyhow::anyhow!("--role: {e}"))?;
                     let password = read_password()?;
-                    let id = admin::create_user(&pool, &name, role, &password, CLI_ACTOR).await?;
+                    let id = app::users::add_user(&pool, CLI_ACTOR, &name, role, &password).await.map_err(refused)?;
                     println!("user {name} created (id {id}, role {role})");
                 }
                 UserCommand::Passwd { name } => {
                     let password = read_password()?;
-                    let hash = crate::auth::hash_password(&password)?;
-                    let mut tx = db::begin_write(&pool).await?;
-                    let at = db::now();
-                    let id = db::set_password(&mut tx, &name, &hash, &at, CLI_ACTOR).await?;
-                    db::audit::record(&mut tx, &at, CLI_ACTOR, "user.password", &format!("user {id}"), &name).await?;
-                    tx.commit().await?;
+                    app::users::set_password(&pool, CLI_ACTOR, Account::Name(&name), &password)
+                        .await
+                        .map_err(refused)?;
                     println!("password of {name} changed; their sessions were ended");
                 }
             }
@@ -100,17 +97,29 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let pool = open(&config.database_url).await?;
             match cmd {
                 TokenCommand::Create { name, label } => {
-                    let (id, token) = admin::issue_token(&pool, &name, &label, CLI_ACTOR).await?;
+                    let (id, token) =
+                        app::users::issue_token(&pool, CLI_ACTOR, &name, &label).await.map_err(refused)?;
                     eprintln!("token {id} for {name} (shown once; only its hash is stored):");
                     println!("{token}");
                 }
                 TokenCommand::Revoke { id } => {
-                    admin::withdraw_token(&pool, id, CLI_ACTOR).await?;
+                    app::users::withdraw_token(&pool, CLI_ACTOR, id).await.map_err(refused)?;
                     println!("token {id} revoked");
                 }
             }
             Ok(())
         }
+    }
+}
+
+/// A refused action as the command line reports it: each field with its message.
+fn refused(e: app::Error) -> anyhow::Error {
+    match e {
+        app::Error::Invalid(fields) => anyhow::anyhow!(
+            "{}; nothing was changed",
+            fields.0.iter().map(|f| format!("{}: {}", f.field, f.message)).collect::<Vec<_>>().join("; ")
+        ),
+        other => anyhow::Error::new(other).context("nothing was changed"),
     }
 }
 
@@ -141,7 +150,7 @@ async fn create_demo_accounts(pool: &SqlitePool) -> anyhow::Result<()> {
     for role in Role::ALL {
         let password = new_secret("");
         let password = &password.expose()[..20];
-        admin::create_user(pool, role.as_str(), role, password, "first-run").await?;
+        app::users::add_user(pool, "first-run", role.as_str(), role, password).await.map_err(refused)?;
         lines.push(format!("  {:<11} {password}", role.as_str()));
     }
     // Printed, not logged: the passwords appear here once and are stored only as hashes.

@@ -5,6 +5,7 @@
 
 pub mod cases;
 pub mod site;
+pub mod users;
 pub mod zones;
 
 use crate::db::DbError;

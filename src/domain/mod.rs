@@ -19,6 +19,7 @@ mod realized;
 mod scenario;
 mod site;
 mod uncertainty;
+mod user;
 mod zone;
 
 pub use approval::{ApprovalKind, ApprovalSettings, Review, parse_comment, parse_return_comment};
@@ -47,6 +48,7 @@ pub use uncertainty::{
     Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, parse_seed, quantity_ranges,
     risk_adjusted_npv,
 };
+pub use user::{USER_NAME_MAX, parse_user_name};
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 
 use serde::Serialize;

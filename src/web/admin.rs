@@ -1,16 +1,16 @@
 //! Admin pages: users and roles, API tokens, site settings and the audit trail.
 
-use super::auth::{CurrentUser, Nav};
+use super::auth::{CurrentUser, Nav, Principal};
 use super::{AppError, AppState, FormBody};
-use crate::auth::{Role, hash_password, hash_secret, new_secret, parse_new_password};
+use crate::app::{self, users::Account};
+use crate::auth::Role;
 use crate::db::{self, TokenRow, User, audit::AuditEntry};
-use crate::domain::{Criterion, FieldErrors, NumberFormat, SiteSettings, SiteSettingsInput, parse_weights};
+use crate::domain::{Criterion, FieldErrors, NumberFormat, SiteSettings, SiteSettingsInput, UserId, parse_weights};
 use askama::Template;
 use axum::extract::{Path, State};
 use axum::http::StatusCode;
 use axum::response::{Html, IntoResponse, Redirect, Response};
 use serde::Deserialize;
-use sqlx::SqlitePool;
 use std::collections::HashMap;
 
 #[derive(Template)]
@@ -65,29 +65,16 @@ pub struct AddUserForm {
     password: String,
 }
 
-fn parse_user_name(value: &str) -> Result<String, String> {
-    let v = value.trim();
-    let ok =
-        (2..=40).contains(&v.len()) && v.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_'));
-    if ok { Ok(v.to_string()) } else { Err("2 to 40 letters, digits, dots, dashes or underscores".into()) }
-}
-
-/// Create a user (shared by the admin page and the CLI); `password` was checked by
-/// [`parse_new_password`]. Returns the id.
-pub async fn create_user(
-    pool: &SqlitePool,
-    name: &str,
-    role: Role,
-    password: &str,
-    actor: &str,
-) -> Result<i64, AppError> {
-    let hash = hash_password(password).map_err(|e| AppError::Internal(e.into()))?;
-    let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
-    let id = db::insert_user(&mut tx, name, role, &hash, &at, actor).await?;
-    db::audit::record(&mut tx, &at, actor, "user.create", &format!("user {id}"), &format!("{name} as {role}")).await?;
-    tx.commit().await?;
-    Ok(id)
+/// A refused action on the admin page: field errors and conflicts show on the page (422),
+/// anything else is the error page.
+async fn refused(state: &AppState, me: &Principal, e: app::Error) -> Result<Response, AppError> {
+    match e {
+        app::Error::Invalid(fields) => admin_page(state, Nav::from(me), fields, None, None).await,
+        app::Error::Conflict(msg) => {
+            admin_page(state, Nav::from(me), FieldErrors::one("user", msg.clone()), Some(msg), None).await
+        }
+        other => Err(other.into()),
+    }
 }
 
 /// POST /admin/users
@@ -96,20 +83,13 @@ pub async fn add_user(
     CurrentUser(me): CurrentUser,
     FormBody(form): FormBody<AddUserForm>,
 ) -> Result<Response, AppError> {
-    let mut e = FieldErrors::default();
-    let name = e.take("name", parse_user_name(&form.name));
-    let role = e.take("role", Role::parse(&form.role));
-    let password = e.take("password", parse_new_password(&form.password));
-    let (Some(name), Some(role), Some(password)) = (name, role, password) else {
-        return admin_page(&state, Nav::from(&me), e, None, None).await;
+    let role = match Role::parse(&form.role) {
+        Ok(role) => role,
+        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
     };
-    match create_user(&state.pool, &name, role, &password, me.name()).await {
+    match app::users::add_user(&state.pool, me.name(), &form.name, role, &form.password).await {
         Ok(_) => Ok(Redirect::to("/admin").into_response()),
-        Err(AppError::Conflict(msg)) => {
-            e.push("name", msg);
-            admin_page(&state, Nav::from(&me), e, None, None).await
-        }
-        Err(other) => Err(other),
+        Err(e) => refused(&state, &me, e).await,
     }
 }
 
@@ -129,23 +109,17 @@ pub async fn update_user(
     Path(id): Path<i64>,
     FormBody(form): FormBody<UpdateUserForm>,
 ) -> Result<Response, AppError> {
-    let mut e = FieldErrors::default();
-    let Some(role) = e.take("role", Role::parse(&form.role)) else {
-        return admin_page(&state, Nav::from(&me), e, None, None).await;
+    let role = match Role::parse(&form.role) {
+        Ok(role) => role,
+        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
     };
-    if id == me.user.id && (role != Role::Admin || !form.active) {
-        let msg = "you cannot remove your own admin role or deactivate yourself".to_string();
-        return admin_page(&state, Nav::from(&me), e, Some(msg), None).await;
+    match app::users::update_user(&state.pool, me.name(), UserId(me.user.id), UserId(id), role, form.active).await {
+        Ok(()) => Ok(Redirect::to("/admin").into_response()),
+        Err(app::Error::Conflict(msg)) => {
+            admin_page(&state, Nav::from(&me), FieldErrors::default(), Some(msg), None).await
+        }
+        Err(e) => refused(&state, &me, e).await,
     }
-    let mut tx = db::begin_write(&state.pool).await?;
-    let at = db::now();
-    let before = db::get_user(&mut tx, id).await?;
-    db::update_user(&mut tx, id, role, form.active, &at, me.name()).await?;
-    let detail =
-        format!("{}: role {} -> {}, active {} -> {}", before.name, before.role, role, before.active, form.active);
-    db::audit::record(&mut tx, &at, me.name(), "user.update", &format!("user {id}"), &detail).await?;
-    tx.commit().await?;
-    Ok(Redirect::to("/admin").into_response())
 }
 
 /// A new password.
@@ -162,52 +136,10 @@ pub async fn reset_password(
     Path(id): Path<i64>,
     FormBody(form): FormBody<PasswordForm>,
 ) -> Result<Response, AppError> {
-    let mut e = FieldErrors::default();
-    let Some(password) = e.take("password", parse_new_password(&form.password)) else {
-        return admin_page(&state, Nav::from(&me), e, None, None).await;
-    };
-    let hash = hash_password(&password).map_err(|e| AppError::Internal(e.into()))?;
-    let mut tx = db::begin_write(&state.pool).await?;
-    let at = db::now();
-    let user = db::get_user(&mut tx, id).await?;
-    db::set_password(&mut tx, &user.name, &hash, &at, me.name()).await?;
-    db::audit::record(&mut tx, &at, me.name(), "user.password", &format!("user {id}"), &user.name).await?;
-    tx.commit().await?;
-    Ok(Redirect::to("/admin").into_response())
-}
-
-/// Create an API token (shared by the admin page and the CLI): the token is returned once.
-pub async fn issue_token(
-    pool: &SqlitePool,
-    user_name: &str,
-    label: &str,
-    actor: &str,
-) -> Result<(i64, String), AppError> {
-    let token = new_secret("plt_");
-    let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
-    let id = db::insert_token(&mut tx, user_name, label, &hash_secret(token.expose()), &at, actor).await?;
-    db::audit::record(
-        &mut tx,
-        &at,
-        actor,
-        "token.create",
-        &format!("token {id}"),
-        &format!("for {user_name}: {label}"),
-    )
-    .await?;
-    tx.commit().await?;
-    Ok((id, token.expose().to_string()))
-}
-
-/// Revoke a token (shared by the admin page and the CLI).
-pub async fn withdraw_token(pool: &SqlitePool, id: i64, actor: &str) -> Result<(), AppError> {
-    let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
-    db::revoke_token(&mut tx, id, &at, actor).await?;
-    db::audit::record(&mut tx, &at, actor, "token.revoke", &format!("token {id}"), "").await?;
-    tx.commit().await?;
-    Ok(())
+    match app::users::set_password(&state.pool, me.name(), Account::Id(UserId(id)), &form.password).await {
+        Ok(_) => Ok(Redirect::to("/admin").into_response()),
+        Err(e) => refused(&state, &me, e).await,
+    }
 }
 
 /// The new-token form.
@@ -224,16 +156,9 @@ pub async fn create_token(
     CurrentUser(me): CurrentUser,
     FormBody(form): FormBody<TokenForm>,
 ) -> Result<Response, AppError> {
-    let mut e = FieldErrors::default();
-    let label = e.take("label", crate::domain::CaseHeader::parse_label(&form.label));
-    let Some(label) = label else { return admin_page(&state, Nav::from(&me), e, None, None).await };
-    match issue_token(&state.pool, form.user.trim(), &label, me.name()).await {
-        Ok((_, token)) => admin_page(&state, Nav::from(&me), e, None, Some(token)).await,
-        Err(AppError::NotFound(_)) => {
-            e.push("user", "no user with this name");
-            admin_page(&state, Nav::from(&me), e, None, None).await
-        }
-        Err(other) => Err(other),
+    match app::users::issue_token(&state.pool, me.name(), form.user.trim(), &form.label).await {
+        Ok((_, token)) => admin_page(&state, Nav::from(&me), FieldErrors::default(), None, Some(token)).await,
+        Err(e) => refused(&state, &me, e).await,
     }
 }
 
@@ -243,7 +168,7 @@ pub async fn revoke_token(
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
 ) -> Result<Response, AppError> {
-    withdraw_token(&state.pool, id, me.name()).await?;
+    app::users::withdraw_token(&state.pool, me.name(), id).await?;
     Ok(Redirect::to("/admin").into_response())
 }
 

@@ -256,7 +256,7 @@ fn bearer(token: &str) -> Request<Body> {
 #[tokio::test]
 async fn a_deactivated_users_session_and_token_stop_at_once() {
     let t = test_app(false).await;
-    let (_, token) = pilot_ledger::web::admin::issue_token(&t.pool, "t-viewer", "report", "test").await.unwrap();
+    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report").await.unwrap();
     let viewer = t.as_role(Some(Role::Viewer));
     let anon = t.as_role(None);
     // Positive control: both work before.
@@ -281,18 +281,17 @@ async fn user_ids_are_never_reused_even_after_a_delete_behind_the_apps_back() {
     assert!(err.to_string().contains("users are deactivated, not deleted"), "{err}");
     let (last, name): (i64, String) =
         sqlx::query_as("SELECT id, name FROM users ORDER BY id DESC LIMIT 1").fetch_one(&t.pool).await.unwrap();
-    let (_, token) = pilot_ledger::web::admin::issue_token(&t.pool, &name, "old", "test").await.unwrap();
+    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", &name, "old").await.unwrap();
     let anon = t.as_role(None);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::OK, "positive control");
 
     let mut raw = intruder(&db_path(&t)).await;
     exec(&mut raw, "DROP TRIGGER users_no_delete").await.unwrap();
     exec(&mut raw, &format!("DELETE FROM users WHERE id = {last}")).await.unwrap();
-    let new_id =
-        pilot_ledger::web::admin::create_user(&t.pool, "newcomer", Role::Admin, crate::helpers::PASSWORD, "test")
-            .await
-            .unwrap();
-    assert_eq!(new_id, last + 1, "the next id, not the freed one");
+    let new_id = pilot_ledger::app::users::add_user(&t.pool, "test", "newcomer", Role::Admin, crate::helpers::PASSWORD)
+        .await
+        .unwrap();
+    assert_eq!(new_id.0, last + 1, "the next id, not the freed one");
     // A name taken (in any case) is still a clear conflict, not the trigger's raw error.
     let mut tx = db::begin_write(&t.pool).await.unwrap();
     let hash = pilot_ledger::auth::hash_password(crate::helpers::PASSWORD).unwrap();

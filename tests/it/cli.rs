@@ -135,3 +135,39 @@ fn tokens_never_appear_in_logs() {
     assert!(!log.contains(&token) && !err.contains(&token), "the token leaked into the log");
     assert!(!log.contains(&token[4..]), "part of the token leaked into the log");
 }
+
+/// The command line adds users through the same write path as the admin page, so the same
+/// name rule holds (a 199-character name once made every Idempotency-Key of its user a 422).
+#[test]
+fn user_add_follows_the_admin_page_rules() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = db_url(&dir);
+    let add = |name: &str| {
+        let mut child = Command::new(BIN)
+            .args(["--database-url", &url, "user", "add", name, "--role", "controller"])
+            .stdin(Stdio::piped())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
+        child.wait_with_output().unwrap()
+    };
+    let long = "c".repeat(199);
+    let out = add(&long);
+    assert!(!out.status.success());
+    assert_eq!(
+        String::from_utf8_lossy(&out.stderr).trim(),
+        "error: name: 2 to 40 letters, digits, dots, dashes or underscores; nothing was changed"
+    );
+    // Positive control: a name within the rule is created.
+    let out = add("plant.controller");
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(String::from_utf8_lossy(&out.stdout).starts_with("user plant.controller created (id "));
+    // And the same name again is refused with the page's message.
+    let out = add("plant.controller");
+    assert_eq!(
+        String::from_utf8_lossy(&out.stderr).trim(),
+        "error: name: a user named plant.controller already exists; nothing was changed"
+    );
+}

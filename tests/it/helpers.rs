@@ -46,7 +46,7 @@ pub async fn test_app(demo: bool) -> TestApp {
     let mut t = TestApp { pool, router, clock, cookies: HashMap::new(), cookie: None, _dir: Arc::new(dir) };
     for role in Role::ALL {
         let name = format!("t-{role}");
-        pilot_ledger::web::admin::create_user(&t.pool, &name, role, PASSWORD, "test").await.unwrap();
+        pilot_ledger::app::users::add_user(&t.pool, "test", &name, role, PASSWORD).await.unwrap();
         let cookie = t.sign_in(&name, PASSWORD).await.expect("test account signs in");
         t.cookies.insert(role, cookie);
     }
@@ -86,7 +86,7 @@ impl TestApp {
 
     /// The same app as a new account `name` with `role` (a second lead for four-eyes tests).
     pub async fn as_new_user(&self, name: &str, role: Role) -> TestApp {
-        pilot_ledger::web::admin::create_user(&self.pool, name, role, PASSWORD, "test").await.unwrap();
+        pilot_ledger::app::users::add_user(&self.pool, "test", name, role, PASSWORD).await.unwrap();
         let mut t = self.clone();
         t.cookie = Some(self.sign_in(name, PASSWORD).await.expect("new account signs in"));
         t

@@ -304,7 +304,7 @@ async fn csv_import_is_all_or_nothing_and_once_only() {
 async fn eight_writers_book_four_thousand_entries_exactly_once() {
     let t = test_app(false).await;
     let z = zone_with_baseline(&t, "CON-1").await;
-    let (_, token) = pilot_ledger::web::admin::issue_token(&t.pool, "t-controller", "load", "test").await.unwrap();
+    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-controller", "load").await.unwrap();
     let anon = t.as_role(None);
     let mut writers = Vec::new();
     for w in 0..8 {

@@ -75,7 +75,7 @@ async fn call(t: &TestApp, method: &Method, path: &str, role: Option<Role>) -> A
 #[tokio::test]
 async fn role_by_route_matrix() {
     let mut t = test_app(true).await;
-    pilot_ledger::web::admin::issue_token(&t.pool, "t-viewer", "matrix", "test").await.unwrap();
+    pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "matrix").await.unwrap();
     let mut table = routes();
     // Signing out kills the session the rest of the walk uses: do it last.
     table.sort_by_key(|r| r.path == "/logout");
@@ -176,7 +176,7 @@ fn bearer(uri: &str, token: &str) -> Request<Body> {
 async fn tokens_carry_the_role_and_revocation_is_immediate() {
     let t = test_app(true).await;
     let anon = t.as_role(None);
-    let (id, token) = pilot_ledger::web::admin::issue_token(&t.pool, "t-viewer", "report", "test").await.unwrap();
+    let (id, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report").await.unwrap();
     assert_eq!(anon.send(bearer("/api/v1/zones", &token)).await.status, StatusCode::OK);
     let write = Request::post("/api/v1/zones")
         .header(header::AUTHORIZATION, format!("Bearer {token}"))
@@ -184,7 +184,7 @@ async fn tokens_carry_the_role_and_revocation_is_immediate() {
         .body(Body::from(r#"{"code":"TOK-1","name":"By token"}"#))
         .unwrap();
     assert_eq!(anon.send(write).await.status, StatusCode::FORBIDDEN, "a viewer's token cannot write");
-    pilot_ledger::web::admin::withdraw_token(&t.pool, id, "test").await.unwrap();
+    pilot_ledger::app::users::withdraw_token(&t.pool, "test", id).await.unwrap();
     assert_eq!(anon.send(bearer("/api/v1/zones", &token)).await.status, StatusCode::UNAUTHORIZED);
     let stored: String =
         sqlx::query_scalar("SELECT token_hash FROM api_tokens WHERE id = ?").bind(id).fetch_one(&t.pool).await.unwrap();
