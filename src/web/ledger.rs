@@ -7,7 +7,7 @@ use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
     Booking, BookingBaseline, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry,
-    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, quantity, realized_view,
+    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, csv_safe, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -632,7 +632,8 @@ fn checked_rows(
             reporting_volume: get("reporting_volume"),
             measured_consumption: get("measured_consumption"),
             amount: get("amount"),
-            evidence: get("evidence"),
+            // An exported ledger reads back: the export's quote before a formula start goes.
+            evidence: crate::domain::csv_unquote(&get("evidence")).to_string(),
             paid_on: get("paid_on"),
             confirm_implausible: crate::domain::de::flag_text(&get("confirm_implausible")),
         };
@@ -733,7 +734,8 @@ fn csv_of(
         let amount = if e.kind == EntryKind::Spending { text(Some(-e.amount)) } else { String::new() };
         w.write_record([
             e.id.to_string(),
-            zone_codes.get(&e.zone_id).cloned().unwrap_or_default(),
+            // Text cells go through `csv_safe` (OWASP "CSV Injection"); numbers stay numbers.
+            zone_codes.get(&e.zone_id).map(|c| csv_safe(c)).unwrap_or_default(),
             e.period.to_string(),
             e.kind.as_str().to_string(),
             id(e.driver_id.or(e.cost_id)),
@@ -743,14 +745,14 @@ fn csv_of(
             text(e.reporting_volume),
             text(e.measured_consumption),
             amount,
-            e.evidence.clone(),
+            csv_safe(&e.evidence),
             e.paid_on.map(|d| d.to_string()).unwrap_or_default(),
             if e.implausible_confirmed { "yes".into() } else { String::new() },
             text(e.unit_value),
             id(e.reverses_id),
             id(e.reversed_by),
             e.booked_at.clone(),
-            e.booked_by.clone(),
+            csv_safe(&e.booked_by),
         ])
         .map_err(internal)?;
     }
