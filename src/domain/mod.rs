@@ -7,6 +7,7 @@
 mod approval;
 mod case;
 pub mod chain;
+mod csv_cell;
 mod figures;
 mod history;
 mod ids;
@@ -27,6 +28,7 @@ pub use case::{
     BenefitDriver, CaseHeader, CaseHeaderInput, CaseSpec, CaseSpecInput, CaseState, CostCategory, CostInput, CostItem,
     CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
 };
+pub use csv_cell::{FORMULA_STARTS, csv_safe, csv_unquote};
 pub use figures::{CaseFigures, View, case_figures};
 pub use history::{BaselineHistory, Expected, ExpectedDriver, InForce, settings_of};
 pub use ids::{CaseId, CostItemId, DriverId, EntryId, UserId, ZoneId};

@@ -7,7 +7,7 @@ use super::{ApiError, AppError, AppState, FormBody, JsonBody};
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
     Booking, BookingBaseline, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry,
-    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, quantity, realized_view,
+    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, csv_safe, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -548,6 +548,10 @@ pub async fn import_csv(
 /// The hash covers the header names sorted and, per record, the cells (trimmed, as booked) in
 /// that column order: line ends (CRLF or LF), spaces around cells, the final newline and the
 /// column order do not change it.
+/// Rows per CSV import: 100,000 is eight years of monthly bookings for a thousand items, and
+/// keeps the work of one request bounded (the 16 MiB body alone would allow about 500,000).
+pub const IMPORT_MAX_ROWS: usize = 100_000;
+
 fn checked_rows(
     bytes: &[u8],
     baseline: &BookingBaseline,
@@ -587,7 +591,11 @@ fn checked_rows(
     let col = |name: &str| headers.iter().position(|h| h == name);
     let mut errors = FieldErrors::default();
     let mut rows = Vec::new();
-    for record in reader.records() {
+    for (n, record) in reader.records().enumerate() {
+        if n == IMPORT_MAX_ROWS {
+            let limit = format!("at most {IMPORT_MAX_ROWS} rows per import; split the file by month");
+            return Err(invalid("file", limit));
+        }
         let record = match record {
             Ok(r) => r,
             Err(e) => {
@@ -633,7 +641,8 @@ fn checked_rows(
             reporting_volume: get("reporting_volume"),
             measured_consumption: get("measured_consumption"),
             amount: get("amount"),
-            evidence: get("evidence"),
+            // An exported ledger reads back: the export's quote before a formula start goes.
+            evidence: crate::domain::csv_unquote(&get("evidence")).to_string(),
             paid_on: get("paid_on"),
             confirm_implausible: crate::domain::de::flag_text(&get("confirm_implausible")),
         };
@@ -734,7 +743,8 @@ fn csv_of(
         let amount = if e.kind() == EntryKind::Spending { text(Some(-e.amount)) } else { String::new() };
         w.write_record([
             e.id.to_string(),
-            zone_codes.get(&e.zone_id).cloned().unwrap_or_default(),
+            // Text cells go through `csv_safe` (OWASP "CSV Injection"); numbers stay numbers.
+            zone_codes.get(&e.zone_id).map(|c| csv_safe(c)).unwrap_or_default(),
             e.period.to_string(),
             e.kind().as_str().to_string(),
             id(Some(e.item.id())),
@@ -744,14 +754,14 @@ fn csv_of(
             text(e.reporting_volume),
             text(e.measured_consumption),
             amount,
-            e.evidence.clone(),
+            csv_safe(&e.evidence),
             e.paid_on.map(|d| d.to_string()).unwrap_or_default(),
             if e.implausible_confirmed { "yes".into() } else { String::new() },
             text(e.unit_value),
             id(e.reverses_id.map(|r| r.0)),
             id(e.reversed_by.map(|r| r.0)),
             e.booked_at.clone(),
-            e.booked_by.clone(),
+            csv_safe(&e.booked_by),
         ])
         .map_err(internal)?;
     }

@@ -17,7 +17,7 @@ mod uncertainty;
 mod zones;
 
 pub use error::{ApiError, AppError};
-pub use ledger::IMPORT_MAX_BYTES;
+pub use ledger::{IMPORT_MAX_BYTES, IMPORT_MAX_ROWS};
 
 use crate::auth::{Clock, Permission, Throttle};
 use crate::domain::FieldErrors;

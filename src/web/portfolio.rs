@@ -8,7 +8,7 @@ use super::{ApiError, AppError, AppState};
 use crate::db;
 use crate::domain::{
     BudgetChoice, FieldErrors, Money, NumberFormat, Percent, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
-    RankBy, SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of,
+    RankBy, SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of, csv_safe,
 };
 use askama::Template;
 use axum::extract::{Query, State};
@@ -392,12 +392,13 @@ async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberForm
         let text = |v: Option<String>| v.map(|v| numbers.export(&v)).unwrap_or_default();
         let record = [
             j.rank.to_string(),
-            j.code.to_string(),
-            j.name.to_string(),
+            // Text cells go through `csv_safe` (OWASP "CSV Injection"); numbers stay numbers.
+            csv_safe(j.code),
+            csv_safe(j.name),
             j.status.to_string(),
             j.standing.to_string(),
             j.in_pi_order_set.to_string(),
-            j.case.map(|c| c.label).unwrap_or_default(),
+            j.case.map(|c| csv_safe(&c.label)).unwrap_or_default(),
             text(j.investment),
             text(j.npv),
             text(j.risk_adjusted_npv),
@@ -411,7 +412,7 @@ async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberForm
             text(j.p90_npv),
             text(j.realization_to_date),
             j.readiness.map(|x| numbers.export(&format!("{:.2}", x.score))).unwrap_or_default(),
-            j.problem.unwrap_or_default().to_string(),
+            csv_safe(j.problem.unwrap_or_default()),
             j.hurdle_rate,
             j.hurdle_rate_basis.to_string(),
         ];

@@ -433,6 +433,32 @@ async fn a_large_import_is_booked_whole_with_its_totals() {
     assert_eq!(n, 40_000);
 }
 
+#[tokio::test]
+async fn an_import_holds_at_most_the_row_limit() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "ROWS-1").await;
+    let limit = pilot_ledger::web::IMPORT_MAX_ROWS;
+    assert_eq!(limit, 100_000);
+    let header =
+        "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence";
+    let file = |n: usize| format!("{header}\n{}", "2025-01,saving,Energy,direct,1,,,,,x\n".repeat(n));
+    // One row over the limit: refused naming the limit, nothing written.
+    let a = import(&t, z.id, "over.csv", &file(limit + 1)).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(
+        a.text.contains("at most 100000 rows per import; split the file by month"),
+        "{}",
+        &a.text[..a.text.len().min(400)]
+    );
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 0);
+    // Positive control: exactly the limit is booked whole.
+    let a = import(&t, z.id, "at.csv", &file(limit)).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", &a.text[..a.text.len().min(400)]);
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 100_000);
+}
+
 // ---------------------------------------------------------------------------------------------
 // Ledger rules (issue 11, point 5)
 // ---------------------------------------------------------------------------------------------
