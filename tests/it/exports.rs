@@ -21,12 +21,12 @@ fn rows(text: &str) -> (csv::StringRecord, Vec<csv::StringRecord>) {
     (head, reader.records().map(|r| r.unwrap()).collect())
 }
 
-/// A zone coded `-INJ` whose entries were booked by `@ctl`: four savings with the notes above
+/// A zone coded `-INJ` whose entries were booked by `-ctl` (a user name may start with a dash): four savings with the notes above
 /// and a normalized saving of -3,650 kWh.
 async fn booked() -> (crate::helpers::TestApp, i64) {
     let t = test_app(false).await;
     let z = zone_with_baseline(&t, "-INJ").await;
-    let ctl = t.as_new_user("@ctl", Role::Controller).await;
+    let ctl = t.as_new_user("-ctl", Role::Controller).await;
     for (i, note) in NOTES.iter().enumerate() {
         let body = json!({"kind": "saving", "method": "direct", "item": z.energy, "period": format!("2025-0{}", i + 2),
                           "quantity": "100", "evidence": note});
@@ -52,7 +52,7 @@ fn check_ledger(text: &str) {
     assert_eq!(notes, ["'=1+2", "'+1+2", "'-1+2", "'@SUM(A1:A2)", "sub-meter M3"]);
     for r in &rows {
         assert_eq!(&r[col("zone")], "'-INJ");
-        assert_eq!(&r[col("booked_by")], "'@ctl");
+        assert_eq!(&r[col("booked_by")], "'-ctl");
     }
     // Numbers stay numbers: the negative quantity is -3650, not the text '-3650.
     assert_eq!(&rows[4][col("quantity")], "-3650");
