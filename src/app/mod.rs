@@ -4,6 +4,7 @@
 //! `domain`; rules against stored state and all SQL live in `db`.
 
 pub mod cases;
+pub mod ledger;
 pub mod site;
 pub mod users;
 pub mod zones;
@@ -39,6 +40,12 @@ impl From<DbError> for Error {
             DbError::Invalid(fields) => Self::Invalid(fields),
             other => Self::Internal(other.into()),
         }
+    }
+}
+
+impl From<sqlx::Error> for Error {
+    fn from(e: sqlx::Error) -> Self {
+        DbError::from(e).into()
     }
 }
 

@@ -12,6 +12,7 @@ mod figures;
 mod history;
 mod ids;
 mod ledger;
+pub mod ledger_csv;
 mod money;
 mod numbers;
 mod portfolio;

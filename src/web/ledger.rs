@@ -4,10 +4,11 @@
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::PairChart;
 use super::{ApiError, AppError, AppState, FormBody, JsonBody};
+use crate::app;
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
-    Booking, BookingBaseline, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NewEntry,
-    NumberFormat, Percent, Plausibility, RealizedView, SiteSettings, Zone, csv_safe, quantity, realized_view,
+    Booking, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NumberFormat, Percent,
+    Plausibility, RealizedView, SiteSettings, UserId, Zone, csv_safe, ledger_csv, quantity, realized_view,
 };
 use askama::Template;
 use axum::Json;
@@ -17,26 +18,11 @@ use axum::response::{Html, IntoResponse, Redirect, Response};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
-use std::sync::Arc;
 
-/// Largest CSV accepted by the import form: about 200,000 rows.
-pub const IMPORT_MAX_BYTES: usize = 16 * 1024 * 1024;
-/// The CSV columns, in order; export writes them and import reads them by name.
-pub const CSV_COLUMNS: [&str; 10] = [
-    "period",
-    "kind",
-    "item",
-    "method",
-    "quantity",
-    "baseline_intensity",
-    "reporting_volume",
-    "measured_consumption",
-    "amount",
-    "evidence",
-];
-
-/// Optional import columns, read when present and written by the export.
-pub const CSV_OPTIONAL_COLUMNS: [&str; 2] = ["paid_on", "confirm_implausible"];
+/// The signed-in user as the ledger's write path names them.
+fn who(me: &Principal) -> app::ledger::Who<'_> {
+    app::ledger::Who { id: UserId(me.user.id), name: me.name() }
+}
 
 /// The clock's date: nothing later can be booked (month) or paid (day).
 fn today(state: &AppState) -> time::Date {
@@ -70,15 +56,6 @@ impl FormQuery {
         }
         Ok(t)
     }
-}
-
-/// The outcome of a form or API write: done, or (a form) already done by an earlier submit of
-/// the same one-time token, with what that did (`entry 12`, `import 3`).
-pub enum Once<T> {
-    /// Written now.
-    Done(T),
-    /// The token was used before: nothing was written.
-    Already(String),
 }
 
 /// Where a form submitted twice sends the browser: the ledger page, saying what the first
@@ -298,7 +275,7 @@ async fn page_with(
         can_book: me.role().allows(crate::auth::Permission::Ledger) && baseline.is_some(),
         figures: view.as_ref().map(figures),
         period_hint: format!("up to {}", Month::of(today(state))),
-        csv_header: CSV_COLUMNS.join(&char::from(site.number_format.csv_delimiter()).to_string()),
+        csv_header: ledger_csv::CSV_COLUMNS.join(&char::from(site.number_format.csv_delimiter()).to_string()),
         info,
         book_token: form_token(),
         import_token: form_token(),
@@ -351,40 +328,6 @@ pub async fn show(
     .await
 }
 
-/// Book one entry with its audit row in one transaction; a form's one-time token is used in
-/// the same transaction (a second submit of it books nothing).
-async fn book_one(
-    state: &AppState,
-    me: &Principal,
-    zone_id: i64,
-    booking: &Booking,
-    key: Option<&db::ledger::Idempotency<'_>>,
-    form: Option<&str>,
-) -> Result<Once<Booked>, AppError> {
-    let mut tx = db::begin_write(&state.pool).await?;
-    if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
-    {
-        return Ok(Once::Already(outcome));
-    }
-    let booked = db::ledger::book(&mut tx, zone_id, booking, today(state), me.name(), key).await?;
-    if let Booked::New(e) = &booked {
-        let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method, e.amount);
-        if let Some(paid) = e.paid_on {
-            detail.push_str(&format!(" paid on {paid}"));
-        }
-        if e.implausible_confirmed {
-            detail.push_str(" (beyond the plausibility threshold, confirmed by the author)");
-        }
-        db::audit::record(&mut tx, &db::now(), me.name(), "ledger.book", &format!("entry {}", e.id), &detail).await?;
-        if let Some(token) = form {
-            db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", e.id)).await?;
-        }
-    }
-    tx.commit().await?;
-    Ok(Once::Done(booked))
-}
-
 /// POST /zones/{id}/ledger?form=TOKEN: book from the form.
 pub async fn book(
     State(state): State<AppState>,
@@ -402,9 +345,12 @@ pub async fn book(
         Ok(b) => b,
         Err(e) => return page(&state, &me, id, input, e, None).await,
     };
-    match book_one(&state, &me, id, &booking, None, Some(token)).await {
-        Ok(Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
-        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
+    match app::ledger::book(&state.pool, who(&me), id, &booking, today(&state), None, Some(token))
+        .await
+        .map_err(AppError::from)
+    {
+        Ok(app::ledger::Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Invalid(e)) => page(&state, &me, id, input, e, None).await,
         Err(AppError::Conflict(msg)) => page(&state, &me, id, input, FieldErrors::default(), Some(msg)).await,
         Err(other) => Err(other),
@@ -418,40 +364,6 @@ pub struct ReverseInput {
     evidence: String,
 }
 
-async fn reverse_one(
-    state: &AppState,
-    me: &Principal,
-    zone_id: i64,
-    entry: i64,
-    evidence: &str,
-    form: Option<&str>,
-) -> Result<Once<LedgerEntry>, AppError> {
-    let evidence = crate::domain::required_text(evidence, 80).map_err(|_| {
-        AppError::Invalid(FieldErrors::one("evidence", "required: why the entry is reversed, at most 80 characters"))
-    })?;
-    let mut tx = db::begin_write(&state.pool).await?;
-    if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
-    {
-        return Ok(Once::Already(outcome));
-    }
-    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, me.name()).await?;
-    if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("entry {}", r.id)).await?;
-    }
-    db::audit::record(
-        &mut tx,
-        &db::now(),
-        me.name(),
-        "ledger.reverse",
-        &format!("entry {}", r.id),
-        &format!("reverses entry {entry}"),
-    )
-    .await?;
-    tx.commit().await?;
-    Ok(Once::Done(r))
-}
-
 /// POST /zones/{id}/ledger/{entry}/reverse?form=TOKEN
 pub async fn reverse(
     State(state): State<AppState>,
@@ -461,204 +373,20 @@ pub async fn reverse(
     FormBody(input): FormBody<ReverseInput>,
 ) -> Result<Response, AppError> {
     let result = match q.token() {
-        Ok(token) => reverse_one(&state, &me, id, entry, &input.evidence, Some(token)).await,
+        Ok(token) => app::ledger::reverse(&state.pool, who(&me), id, entry, &input.evidence, Some(token))
+            .await
+            .map_err(AppError::from),
         Err(e) => Err(e),
     };
     match result {
-        Ok(Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
-        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
+        Ok(app::ledger::Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
+        Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Conflict(msg)) => {
             page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
         }
         Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
         Err(other) => Err(other),
     }
-}
-
-/// Parse and book a whole CSV file in one transaction: all rows or none. Every bad row is
-/// reported with its line number and column. Cells are read in the site's number format, and a
-/// decimal-comma site's files are separated by `;`. A file with the same rows as an earlier
-/// import is refused unless `again`; a form's one-time token is used in the same transaction.
-pub async fn import_csv(
-    state: &AppState,
-    me: &Principal,
-    zone_id: i64,
-    file_name: &str,
-    bytes: Vec<u8>,
-    again: bool,
-    form: Option<&str>,
-) -> Result<Once<usize>, AppError> {
-    if bytes.len() > IMPORT_MAX_BYTES {
-        return Err(AppError::Invalid(FieldErrors::one(
-            "file",
-            format!("larger than {} MiB; split it by month", IMPORT_MAX_BYTES / 1024 / 1024),
-        )));
-    }
-    let day = today(state);
-    let numbers = db::number_format(&state.pool).await?;
-    // Parse and check off the async threads and outside the write lock (a large file takes a
-    // noticeable fraction of a second); under the lock, the baseline is read again and the rows
-    // checked again only if it changed meanwhile, so they are stored against what they were
-    // checked with.
-    let baseline = db::ledger::booking_baseline(&mut *state.pool.acquire().await?, zone_id).await?;
-    let bytes = Arc::new(bytes);
-    let (mut rows, checked_with) = {
-        let (bytes, baseline) = (bytes.clone(), baseline.clone());
-        tokio::task::spawn_blocking(move || (checked_rows(&bytes, &baseline, day, numbers), baseline))
-            .await
-            .map_err(|e| AppError::Internal(e.into()))?
-    };
-    let mut tx = db::begin_write(&state.pool).await?;
-    if let Some(token) = form
-        && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, me.user.id, zone_id).await?
-    {
-        return Ok(Once::Already(outcome));
-    }
-    db::ledger::check_bookable(&mut tx, zone_id).await?;
-    let current = db::ledger::booking_baseline(&mut tx, zone_id).await?;
-    if current != checked_with {
-        rows = checked_rows(&bytes, &current, day, numbers);
-    }
-    let (rows, rows_hash) = rows?;
-    let file = db::ledger::ImportFile {
-        rows_hash: &rows_hash,
-        bytes_hash: &crate::auth::sha256_hex(&bytes),
-        file_name,
-        rows: rows.len(),
-        again,
-    };
-    let (import_id, earlier) = db::ledger::insert_import(&mut tx, zone_id, &file, me.name()).await?;
-    let tag = db::ledger::Tag { actor: me.name(), import_id: Some(import_id), reverses_id: None };
-    db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
-    let mut detail = format!("{file_name}: {} rows", rows.len());
-    if let Some((id, at, by)) = earlier {
-        detail.push_str(&format!("; the same rows as import {id} of {at} by {by}, booked again on purpose"));
-    }
-    db::audit::record(&mut tx, &db::now(), me.name(), "ledger.import", &format!("import {import_id}"), &detail).await?;
-    if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, me.user.id, zone_id, &format!("import {import_id}")).await?;
-    }
-    tx.commit().await?;
-    Ok(Once::Done(rows.len()))
-}
-
-/// Every row of a CSV file checked against the baseline, with the hash of its normalised rows
-/// (the file's identity), or every error by line and column.
-///
-/// The hash covers the header names sorted and, per record, the cells (trimmed, as booked) in
-/// that column order: line ends (CRLF or LF), spaces around cells, the final newline and the
-/// column order do not change it.
-/// Rows per CSV import: 100,000 is eight years of monthly bookings for a thousand items, and
-/// keeps the work of one request bounded (the 16 MiB body alone would allow about 500,000).
-pub const IMPORT_MAX_ROWS: usize = 100_000;
-
-fn checked_rows(
-    bytes: &[u8],
-    baseline: &BookingBaseline,
-    day: time::Date,
-    numbers: NumberFormat,
-) -> Result<(Vec<NewEntry>, String), AppError> {
-    use sha2::Digest;
-    let invalid = |field: &str, message: String| AppError::Invalid(FieldErrors::one(field, message));
-    let delimiter = numbers.csv_delimiter();
-    let mut reader =
-        csv::ReaderBuilder::new().delimiter(delimiter).trim(csv::Trim::All).flexible(false).from_reader(bytes);
-    let headers = reader.headers().map_err(|e| invalid("line 1", format!("cannot read the header row: {e}")))?.clone();
-    let missing: Vec<&str> = CSV_COLUMNS.iter().copied().filter(|c| !headers.iter().any(|h| h == *c)).collect();
-    if !missing.is_empty() {
-        return Err(invalid(
-            "line 1",
-            format!(
-                "missing column(s): {}; expected {} (this site separates columns by {:?})",
-                missing.join(", "),
-                CSV_COLUMNS.join(&char::from(delimiter).to_string()),
-                char::from(delimiter)
-            ),
-        ));
-    }
-    let mut order: Vec<usize> = (0..headers.len()).collect();
-    order.sort_by(|&a, &b| headers[a].cmp(&headers[b]));
-    let mut hasher = sha2::Sha256::new();
-    // Unit and record separators cannot occur in a trimmed cell's meaning here: they delimit.
-    let mut hash_record = |cells: &csv::StringRecord| {
-        for &i in &order {
-            hasher.update(cells.get(i).unwrap_or_default().as_bytes());
-            hasher.update([0x1f]);
-        }
-        hasher.update([0x1e]);
-    };
-    hash_record(&headers);
-    let col = |name: &str| headers.iter().position(|h| h == name);
-    let mut errors = FieldErrors::default();
-    let mut rows = Vec::new();
-    for (n, record) in reader.records().enumerate() {
-        if n == IMPORT_MAX_ROWS {
-            let limit = format!("at most {IMPORT_MAX_ROWS} rows per import; split the file by month");
-            return Err(invalid("file", limit));
-        }
-        let record = match record {
-            Ok(r) => r,
-            Err(e) => {
-                let line = e.position().map_or(0, |p| p.line());
-                errors.push(format!("line {line}"), e.to_string());
-                continue;
-            }
-        };
-        hash_record(&record);
-        let line = record.position().map_or(0, |p| p.line());
-        let get = |name: &str| col(name).and_then(|i| record.get(i)).unwrap_or_default().to_string();
-        let kind = get("kind");
-        let item_text = get("item");
-        // The item column takes the id or the exact label of a driver (saving) or cost item (spending).
-        let item = if item_text.parse::<i64>().is_ok() {
-            item_text.clone()
-        } else {
-            match baseline.items_labelled(kind == "saving", &item_text).as_slice() {
-                [id] => id.to_string(),
-                [] => {
-                    errors.push(
-                        format!("line {line}, column item"),
-                        format!("no driver or cost item of the baseline is named {item_text:?}"),
-                    );
-                    continue;
-                }
-                _ => {
-                    errors.push(
-                        format!("line {line}, column item"),
-                        format!("{item_text:?} names several items; use the id"),
-                    );
-                    continue;
-                }
-            }
-        };
-        let input = BookingInput {
-            kind,
-            method: get("method"),
-            item,
-            period: get("period"),
-            quantity: get("quantity"),
-            baseline_intensity: get("baseline_intensity"),
-            reporting_volume: get("reporting_volume"),
-            measured_consumption: get("measured_consumption"),
-            amount: get("amount"),
-            // An exported ledger reads back: the export's quote before a formula start goes.
-            evidence: crate::domain::csv_unquote(&get("evidence")).to_string(),
-            paid_on: get("paid_on"),
-            confirm_implausible: crate::domain::de::flag_text(&get("confirm_implausible")),
-        };
-        match Booking::parse(&input, numbers).and_then(|b| baseline.check(&b, day)) {
-            Ok(entry) => rows.push(entry),
-            Err(e) => errors.extend_prefixed(&format!("line {line}, column "), e),
-        }
-    }
-    if rows.is_empty() && errors.is_empty() {
-        return Err(invalid("file", "no rows below the header".into()));
-    }
-    if !errors.is_empty() {
-        return Err(AppError::Invalid(errors));
-    }
-    let hash = hasher.finalize().iter().map(|b| format!("{b:02x}")).collect();
-    Ok((rows, hash))
 }
 
 /// An upload that could not be read. A body cut by the outer size limit reaches multipart as
@@ -709,12 +437,22 @@ pub async fn import(
         return page(&state, &me, id, BookingInput::default(), FieldErrors::one("file", "choose a CSV file"), None)
             .await;
     };
-    match import_csv(&state, &me, id, &name, bytes, again, Some(token)).await {
-        Ok(Once::Done(n)) => {
+    match app::ledger::import(
+        &state.pool,
+        who(&me),
+        id,
+        app::ledger::Upload { file_name: &name, bytes, again },
+        Some(token),
+        today(&state),
+    )
+    .await
+    .map_err(AppError::from)
+    {
+        Ok(app::ledger::Once::Done(n)) => {
             tracing::info!(zone = id, rows = n, file = %name, "CSV imported");
             Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response())
         }
-        Ok(Once::Already(outcome)) => Ok(already(id, &outcome)),
+        Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
         Err(AppError::Conflict(msg)) => {
             page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
@@ -732,8 +470,8 @@ fn csv_of(
 ) -> Result<String, AppError> {
     let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let mut head: Vec<&str> = vec!["entry", "zone"];
-    head.extend(CSV_COLUMNS);
-    head.extend(CSV_OPTIONAL_COLUMNS);
+    head.extend(ledger_csv::CSV_COLUMNS);
+    head.extend(ledger_csv::CSV_OPTIONAL_COLUMNS);
     head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by"]);
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&head).map_err(internal)?;
@@ -855,10 +593,11 @@ pub async fn api_book(
     let fingerprint =
         crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{}", booking.canonical()).as_bytes());
     let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
-    let booked = match book_one(&state, &me, id, &booking, key.as_ref(), None).await? {
-        Once::Done(b) => b,
+    let booked = match app::ledger::book(&state.pool, who(&me), id, &booking, today(&state), key.as_ref(), None).await?
+    {
+        app::ledger::Once::Done(b) => b,
         // Only forms carry a one-time token; kept total all the same.
-        Once::Already(outcome) => {
+        app::ledger::Once::Already(outcome) => {
             return Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into());
         }
     };
@@ -877,8 +616,10 @@ pub async fn api_reverse(
     Path((id, entry)): Path<(i64, i64)>,
     JsonBody(input): JsonBody<ReverseInput>,
 ) -> Result<Response, ApiError> {
-    match reverse_one(&state, &me, id, entry, &input.evidence, None).await? {
-        Once::Done(r) => Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response()),
-        Once::Already(outcome) => Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into()),
+    match app::ledger::reverse(&state.pool, who(&me), id, entry, &input.evidence, None).await? {
+        app::ledger::Once::Done(r) => Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response()),
+        app::ledger::Once::Already(outcome) => {
+            Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into())
+        }
     }
 }

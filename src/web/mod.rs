@@ -16,8 +16,8 @@ mod portfolio;
 mod uncertainty;
 mod zones;
 
+pub use crate::domain::ledger_csv::{IMPORT_MAX_BYTES, IMPORT_MAX_ROWS};
 pub use error::{ApiError, AppError};
-pub use ledger::{IMPORT_MAX_BYTES, IMPORT_MAX_ROWS};
 
 use crate::auth::{Clock, Permission, Throttle};
 use crate::domain::FieldErrors;
@@ -168,7 +168,7 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::reverse)),
         // The file plus room for the multipart framing.
         route(p.clone(), "/zones/{id}/ledger/import", Ledger, post(ledger::import))
-            .body_limit(ledger::IMPORT_MAX_BYTES + 64 * 1024),
+            .body_limit(IMPORT_MAX_BYTES + 64 * 1024),
         route(g.clone(), "/zones/{id}/ledger.csv", Read, get(ledger::export_zone)),
         route(g.clone(), "/ledger.csv", Read, get(ledger::export_all)),
         route(g.clone(), "/portfolio", Read, get(portfolio::page)),
@@ -234,7 +234,7 @@ pub fn app(state: AppState) -> Router {
         .layer(SetResponseHeaderLayer::if_not_present(header::CACHE_CONTROL, HeaderValue::from_static("no-store")))
         .layer(CompressionLayer::new())
         // Above every route's own limit: refuses a declared oversized body before it is read.
-        .layer(RequestBodyLimitLayer::new(ledger::IMPORT_MAX_BYTES + 1024 * 1024))
+        .layer(RequestBodyLimitLayer::new(IMPORT_MAX_BYTES + 1024 * 1024))
         .layer(TimeoutLayer::with_status_code(StatusCode::REQUEST_TIMEOUT, REQUEST_TIMEOUT))
         .layer(TraceLayer::new_for_http())
         .layer(
