@@ -4,7 +4,7 @@
 
 use super::{AppResult, Error};
 use crate::db::{self, ledger::Booked};
-use crate::domain::{Booking, FieldErrors, LedgerEntry, UserId, ledger_csv};
+use crate::domain::{Booking, EntryId, FieldErrors, LedgerEntry, UserId, ZoneId, ledger_csv};
 use sqlx::SqlitePool;
 use std::sync::Arc;
 
@@ -31,7 +31,7 @@ pub enum Once<T> {
 pub async fn book(
     pool: &SqlitePool,
     who: Who<'_>,
-    zone_id: i64,
+    ZoneId(zone_id): ZoneId,
     booking: &Booking,
     today: time::Date,
     key: Option<&db::ledger::Idempotency<'_>>,
@@ -66,8 +66,8 @@ pub async fn book(
 pub async fn reverse(
     pool: &SqlitePool,
     who: Who<'_>,
-    zone_id: i64,
-    entry: i64,
+    ZoneId(zone_id): ZoneId,
+    EntryId(entry): EntryId,
     evidence: &str,
     form: Option<&str>,
 ) -> AppResult<Once<LedgerEntry>> {
@@ -114,7 +114,7 @@ pub struct Upload<'a> {
 pub async fn import(
     pool: &SqlitePool,
     who: Who<'_>,
-    zone_id: i64,
+    ZoneId(zone_id): ZoneId,
     Upload { file_name, bytes, again }: Upload<'_>,
     form: Option<&str>,
     today: time::Date,

@@ -10,6 +10,7 @@ use crate::domain::{
     Booking, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NumberFormat, Percent,
     Plausibility, RealizedView, SiteSettings, UserId, Zone, csv_safe, ledger_csv, quantity, realized_view,
 };
+use crate::domain::{EntryId, ZoneId};
 use askama::Template;
 use axum::Json;
 use axum::extract::{Multipart, Path, Query, State};
@@ -345,7 +346,7 @@ pub async fn book(
         Ok(b) => b,
         Err(e) => return page(&state, &me, id, input, e, None).await,
     };
-    match app::ledger::book(&state.pool, who(&me), id, &booking, today(&state), None, Some(token))
+    match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, today(&state), None, Some(token))
         .await
         .map_err(AppError::from)
     {
@@ -373,9 +374,11 @@ pub async fn reverse(
     FormBody(input): FormBody<ReverseInput>,
 ) -> Result<Response, AppError> {
     let result = match q.token() {
-        Ok(token) => app::ledger::reverse(&state.pool, who(&me), id, entry, &input.evidence, Some(token))
-            .await
-            .map_err(AppError::from),
+        Ok(token) => {
+            app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, Some(token))
+                .await
+                .map_err(AppError::from)
+        }
         Err(e) => Err(e),
     };
     match result {
@@ -440,7 +443,7 @@ pub async fn import(
     match app::ledger::import(
         &state.pool,
         who(&me),
-        id,
+        ZoneId(id),
         app::ledger::Upload { file_name: &name, bytes, again },
         Some(token),
         today(&state),
@@ -593,7 +596,8 @@ pub async fn api_book(
     let fingerprint =
         crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{}", booking.canonical()).as_bytes());
     let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
-    let booked = match app::ledger::book(&state.pool, who(&me), id, &booking, today(&state), key.as_ref(), None).await?
+    let booked = match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, today(&state), key.as_ref(), None)
+        .await?
     {
         app::ledger::Once::Done(b) => b,
         // Only forms carry a one-time token; kept total all the same.
@@ -616,7 +620,7 @@ pub async fn api_reverse(
     Path((id, entry)): Path<(i64, i64)>,
     JsonBody(input): JsonBody<ReverseInput>,
 ) -> Result<Response, ApiError> {
-    match app::ledger::reverse(&state.pool, who(&me), id, entry, &input.evidence, None).await? {
+    match app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, None).await? {
         app::ledger::Once::Done(r) => Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response()),
         app::ledger::Once::Already(outcome) => {
             Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into())
