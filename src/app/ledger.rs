@@ -135,9 +135,7 @@ pub async fn import(
     let bytes = Arc::new(bytes);
     let (mut rows, checked_with) = {
         let (bytes, baseline) = (bytes.clone(), baseline.clone());
-        tokio::task::spawn_blocking(move || (ledger_csv::checked_rows(&bytes, &baseline, day, numbers), baseline))
-            .await
-            .map_err(|e| Error::Internal(e.into()))?
+        super::cpu::run(move || (ledger_csv::checked_rows(&bytes, &baseline, day, numbers), baseline)).await?
     };
     let mut tx = db::begin_write(pool).await?;
     if let Some(token) = form

@@ -4,6 +4,7 @@
 //! `domain`; rules against stored state and all SQL live in `db`.
 
 pub mod cases;
+pub mod cpu;
 pub mod ledger;
 pub mod site;
 pub mod users;

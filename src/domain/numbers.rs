@@ -301,6 +301,12 @@ impl NumberFormat {
     pub async fn scope<F: Future>(self, work: F) -> F::Output {
         CURRENT.scope(self, work).await
     }
+
+    /// Run the blocking `work` with this as the [`current`](Self::current) format (work moved
+    /// off the async threads does not inherit the request's task-local format).
+    pub fn sync_scope<T>(self, work: impl FnOnce() -> T) -> T {
+        CURRENT.sync_scope(self, work)
+    }
 }
 
 /// Why a text is not a number of a format.

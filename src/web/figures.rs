@@ -58,14 +58,13 @@ impl FigureCache {
             })
             .collect();
         let site = site.clone();
-        let computed: Vec<(i64, Arc<ZoneBase>)> = tokio::task::spawn_blocking(move || {
+        let computed: Vec<(i64, Arc<ZoneBase>)> = crate::app::cpu::run(move || {
             stale
                 .into_par_iter()
                 .map(|(n, data, previous)| (n, Arc::new(zone_base(data, &site, trials, previous.as_deref()))))
                 .collect()
         })
-        .await
-        .map_err(|e| AppError::Internal(e.into()))?;
+        .await?;
         if cached {
             let mut map = self.lock();
             for (n, base) in &computed {
