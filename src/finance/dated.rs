@@ -22,6 +22,11 @@ fn day_offsets(flows: &[Decimal], dates: &[Date]) -> Result<Vec<i64>, FinanceErr
         return Err(FinanceError::DatesMismatch { flows: flows.len(), dates: dates.len() });
     }
     let first = *dates.first().ok_or(FinanceError::EmptyFlows)?;
+    // The spreadsheet XNPV and XIRR refuse a date before the first (from memory): time 0 is the
+    // first listed date, and a flow before it would be compounded forward unnoticed.
+    if let Some((index, &date)) = dates.iter().enumerate().find(|&(_, &d)| d < first) {
+        return Err(FinanceError::DateBeforeFirst { index, date, first });
+    }
     Ok(dates.iter().map(|&d| (d - first).whole_days()).collect())
 }
 
@@ -318,10 +323,16 @@ mod tests {
 
     #[test]
     fn first_listed_date_not_earliest() {
-        // The second flow is a year *before* the first listed date: compounded forward.
-        let flows = [d(100), d(100)];
+        // The second flow is a year *before* the first listed date: refused, as the spreadsheet
+        // functions do (from memory), instead of being compounded forward unnoticed.
+        let flows = [d(100), d(-100)];
         let dates = [date!(2022 - 01 - 01), date!(2021 - 01 - 01)];
-        assert_eq!(xnpv(0.1, &flows, &dates).unwrap(), d(210));
+        let refused = FinanceError::DateBeforeFirst { index: 1, date: dates[1], first: dates[0] };
+        assert_eq!(xnpv(0.1, &flows, &dates), Err(refused.clone()));
+        assert_eq!(xirr(&flows, &dates), Err(refused));
+        // Positive control: the same flows in date order.
+        let dates = [date!(2021 - 01 - 01), date!(2022 - 01 - 01)];
+        assert_eq!(xnpv(0.1, &flows, &dates).unwrap(), d(100) - d(100) / "1.1".parse::<Decimal>().unwrap());
     }
 
     #[test]

@@ -66,6 +66,17 @@ pub enum FinanceError {
         dates: usize,
     },
 
+    /// A dated flow lies before the first listed date, which is time 0 of the discounting.
+    #[error("flow {index} is dated {date}, before the first flow's date {first}: list the earliest flow first")]
+    DateBeforeFirst {
+        /// Position of the flow in the series.
+        index: usize,
+        /// Its date.
+        date: time::Date,
+        /// The first listed date.
+        first: time::Date,
+    },
+
     /// Converting an annual rate needs at least one period per year.
     #[error("the number of periods per year must be at least 1")]
     ZeroPeriodsPerYear,

@@ -13,19 +13,17 @@ use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 
-/// Decimal places of rates in answers (IRR tolerance is far below this).
-const RATE_DP: u32 = 12;
-/// Decimal places of money in answers.
-const MONEY_DP: u32 = 10;
-
-/// A rate as a decimal string.
+/// A rate as a decimal string, at full precision: the shortest text that reads back as the
+/// same double (Rust never writes an exponent), so NPV at a returned IRR is as close to zero as
+/// the double allows.
 pub fn rate_text(r: f64) -> String {
-    Decimal::from_f64_retain(r).map_or_else(|| r.to_string(), |d| d.round_dp(RATE_DP).normalize().to_string())
+    r.to_string()
 }
 
-/// Money (or a ratio) as a decimal string.
+/// Money (or a ratio) as a decimal string, at full precision (every digit the Decimal holds,
+/// trailing zeros dropped).
 pub fn money_text(d: Decimal) -> String {
-    d.round_dp(MONEY_DP).normalize().to_string()
+    d.normalize().to_string()
 }
 
 /// The raw body: every field kept as JSON so that each can be rejected by name.
@@ -125,22 +123,57 @@ fn parse(req: &MetricsRequest) -> Result<Parsed, FieldErrors> {
     }
 }
 
-/// A finance failure that the caller's input caused (numbers too large, for instance).
-fn input_error(e: FinanceError) -> ApiError {
-    ApiError(AppError::Invalid(FieldErrors::one("flows", e.to_string())))
+/// A finance failure that the caller's input caused, blamed on the field at fault: a date
+/// before the first, a rate whose discounting leaves the representable range (a rate a hair
+/// above -100 %), or else the flows (numbers too large).
+fn input_error(e: FinanceError, p: &Parsed) -> ApiError {
+    let field = match &e {
+        FinanceError::DateBeforeFirst { index, .. } => format!("dates[{index}]"),
+        FinanceError::RateOutOfRange { .. } => "rate".into(),
+        // The flows are summable undiscounted: the discounting at this rate overflowed.
+        FinanceError::NotRepresentable if finance::npv(0.0, &p.flows).is_ok() => {
+            let message = format!(
+                "discounting at this rate takes the flows beyond the largest number that can be held (about 7.9e28): {e}"
+            );
+            return ApiError(AppError::Invalid(FieldErrors::one("rate", message)));
+        }
+        _ => "flows".into(),
+    };
+    ApiError(AppError::Invalid(FieldErrors::one(&field, e.to_string())))
+}
+
+/// Every root as text, and the chosen one, keeping only real rates above -100 %: a root that a
+/// double cannot tell from -1 is not a rate anyone can use (and is refused as input), so it is
+/// dropped with a warning.
+fn rates_of(outcome: &finance::IrrOutcome, what: &str, warnings: &mut Vec<String>) -> (Option<String>, Vec<String>) {
+    let usable = |r: f64| r.is_finite() && r > -1.0;
+    let roots: Vec<String> = outcome.roots.iter().copied().filter(|&r| usable(r)).map(rate_text).collect();
+    if roots.len() < outcome.roots.len() {
+        warnings.push(format!("a {what} root at or below -100 % (a double cannot tell it from -1) is left out"));
+    }
+    let chosen = outcome.chosen.filter(|&r| usable(r));
+    if chosen.is_none() {
+        let reason = if roots.is_empty() {
+            "no rate above -100 % makes the present value zero".to_string()
+        } else {
+            format!("several rates make the present value zero ({}); let NPV or MIRR decide", roots.join(", "))
+        };
+        warnings.push(format!("no {what}: {reason}"));
+    }
+    (chosen.map(rate_text), roots)
 }
 
 /// POST /api/v1/metrics
 pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
     let p = parse(&req)?;
     let mut warnings: Vec<String> = Vec::new();
-    let npv = finance::npv(p.rate, &p.flows).map_err(input_error)?;
+    let npv = finance::npv(p.rate, &p.flows).map_err(|e| input_error(e, &p))?;
     let (irr, irr_roots) = match finance::irr(&p.flows) {
         Ok(outcome) => {
             if outcome.ambiguous {
                 warnings.push("the flows change sign more than once: IRR is ambiguous; let NPV or MIRR decide".into());
             }
-            (outcome.chosen.map(rate_text), outcome.roots.iter().map(|r| rate_text(*r)).collect::<Vec<_>>())
+            rates_of(&outcome, "IRR", &mut warnings)
         }
         Err(e) => {
             warnings.push(format!("no IRR: {e}"));
@@ -155,13 +188,27 @@ pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Val
         }
     };
     let payback = finance::payback(&p.flows);
-    let discounted = finance::discounted_payback(p.rate, &p.flows).map_err(input_error)?;
+    let discounted = finance::discounted_payback(p.rate, &p.flows).map_err(|e| input_error(e, &p))?;
     for (what, pb) in [("payback", &payback), ("discounted payback", &discounted)] {
         if pb.as_ref().is_some_and(|p| p.turns_negative_again) {
             warnings.push(format!("the cumulative flow turns negative again after the {what} period"));
         }
     }
-    let pi = finance::profitability_index(p.rate, &p.flows).map_err(input_error)?;
+    let pi = finance::profitability_index(p.rate, &p.flows).map_err(|e| input_error(e, &p))?;
+    let dated = match &p.dates {
+        Some(dates) => {
+            let xnpv = finance::xnpv(p.rate, &p.flows, dates).map_err(|e| input_error(e, &p))?;
+            let (xirr, xirr_roots) = match finance::xirr_outcome(&p.flows, dates) {
+                Ok(outcome) => rates_of(&outcome, "XIRR", &mut warnings),
+                Err(e) => {
+                    warnings.push(format!("no XIRR: {e}"));
+                    (None, Vec::new())
+                }
+            };
+            Some((xnpv, xirr, xirr_roots))
+        }
+        None => None,
+    };
     let mut body = json!({
         "npv": money_text(npv),
         "irr": irr,
@@ -172,11 +219,10 @@ pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Val
         "profitability_index": pi.map(money_text),
         "warnings": warnings,
     });
-    if let Some(dates) = &p.dates {
-        let xnpv = finance::xnpv(p.rate, &p.flows, dates).map_err(input_error)?;
-        let xirr = finance::xirr(&p.flows, dates).ok().map(rate_text);
+    if let Some((xnpv, xirr, xirr_roots)) = dated {
         body["xnpv"] = json!(money_text(xnpv));
         body["xirr"] = json!(xirr);
+        body["xirr_roots"] = json!(xirr_roots);
     }
     Ok(Json(body))
 }

@@ -177,3 +177,124 @@ async fn openapi_document_lists_the_routes() {
         assert!(doc["paths"].get(path).is_some(), "{path} missing");
     }
 }
+
+/// The metrics answer, as JSON, of `body`, which must be accepted.
+async fn metrics_of(t: &crate::helpers::TestApp, body: &str) -> Value {
+    let a = t.post_json("/api/v1/metrics", body).await;
+    assert_eq!(a.status, StatusCode::OK, "{body}: {}", a.text);
+    a.json()
+}
+
+fn warnings(v: &Value) -> Vec<String> {
+    v["warnings"].as_array().unwrap().iter().map(|w| w.as_str().unwrap().to_string()).collect()
+}
+
+#[tokio::test]
+async fn metrics_leading_zero_flows_are_not_a_payback() {
+    let t = test_app(false).await;
+    // Common practice: payback is when the cumulative flow turns from negative to
+    // non-negative. Hand count: 0, -1000, -400, +200: 2 + 400 / 600 periods, not 0.
+    let v = metrics_of(&t, r#"{"rate": "0", "flows": ["0", "-1000", "600", "600"]}"#).await;
+    assert_eq!(v["payback"], "2.6666666666666666666666666667");
+    assert_eq!(v["discounted_payback"], "2.6666666666666666666666666667");
+    // Positive control: without the leading zero, one period earlier.
+    let v = metrics_of(&t, r#"{"rate": "0", "flows": ["-1000", "600", "600"]}"#).await;
+    assert_eq!(v["payback"], "1.6666666666666666666666666667");
+}
+
+#[tokio::test]
+async fn metrics_answers_carry_full_precision() {
+    let t = test_app(false).await;
+    let v = metrics_of(&t, r#"{"rate": "0.1", "flows": ["-1000", "300", "420", "680"]}"#).await;
+    // The IRR is the shortest text of the double found, not rounded to 12 places (which left
+    // NPV at the returned IRR visibly off zero).
+    let irr = v["irr"].as_str().unwrap();
+    let places = irr.split('.').nth(1).unwrap().len();
+    assert!(places > 12, "{irr}");
+    assert_eq!(irr.parse::<f64>().unwrap().to_string(), irr);
+    // numpy-financial 1.0.0: irr(f) = 0.16340560068898902 (fixture value, see metrics_contract_example).
+    close(num(&v["irr"]), 0.163_405_600_688_989_02, 1e-13);
+    let at_irr = metrics_of(&t, &format!(r#"{{"rate": "{irr}", "flows": ["-1000", "300", "420", "680"]}}"#)).await;
+    assert!(num(&at_irr["npv"]).abs() < 1e-9, "{}", at_irr["npv"]);
+    // Money keeps every digit the Decimal holds: more than the 10 places it was cut to.
+    let npv = v["npv"].as_str().unwrap();
+    assert!(npv.split('.').nth(1).unwrap().len() > 10, "{npv}");
+}
+
+#[tokio::test]
+async fn metrics_never_answer_an_irr_at_or_below_minus_one() {
+    let t = test_app(false).await;
+    // -1 then 1e-20: the root is 1e-20 - 1, which a double cannot tell from -1 (hand algebra).
+    let v = metrics_of(&t, r#"{"rate": "0.1", "flows": ["-1", "0.00000000000000000001"]}"#).await;
+    let irr = &v["irr"];
+    assert!(irr.is_null() || num(irr) > -1.0, "{v}");
+    for root in v["irr_roots"].as_array().unwrap() {
+        assert!(num(root) > -1.0, "{v}");
+    }
+    if irr.is_null() {
+        assert!(warnings(&v).iter().any(|w| w.starts_with("no IRR")), "{v}");
+    }
+    // Positive control: a loss of 99 % is a usable rate, answered.
+    let v = metrics_of(&t, r#"{"rate": "0.1", "flows": ["-100", "1"]}"#).await;
+    close(num(&v["irr"]), -0.99, 1e-12);
+}
+
+#[tokio::test]
+async fn metrics_a_missing_irr_or_xirr_says_why() {
+    let t = test_app(false).await;
+    let body = r#"{"rate": "0.1", "flows": ["100", "200"], "dates": ["2025-01-01", "2025-07-01"]}"#;
+    let v = metrics_of(&t, body).await;
+    assert_eq!(v["irr"], Value::Null);
+    assert_eq!(v["xirr"], Value::Null);
+    let w = warnings(&v);
+    assert!(
+        w.contains(&"no IRR: the cash flows never change sign, so there is no internal rate of return".into()),
+        "{w:?}"
+    );
+    assert!(
+        w.contains(&"no XIRR: the cash flows never change sign, so there is no internal rate of return".into()),
+        "{w:?}"
+    );
+    // Several sign changes and no root at all: -1, 3, -3 has no real rate (the discriminant of
+    // -1 + 3x - 3x^2 is 9 - 12 < 0; hand algebra).
+    let v = metrics_of(&t, r#"{"rate": "0.1", "flows": ["-1", "3", "-3"]}"#).await;
+    assert_eq!(v["irr"], Value::Null);
+    assert!(warnings(&v).contains(&"no IRR: no rate above -100 % makes the present value zero".into()), "{v}");
+    // Positive control: a root, and no such warning.
+    let body = r#"{"rate": "0.1", "flows": ["-1000", "1100"], "dates": ["2025-01-01", "2026-01-01"]}"#;
+    let v = metrics_of(&t, body).await;
+    close(num(&v["xirr"]), 0.1, 1e-12);
+    assert!(warnings(&v).is_empty(), "{v}");
+}
+
+#[tokio::test]
+async fn metrics_refuse_a_date_before_the_first() {
+    let t = test_app(false).await;
+    let body =
+        r#"{"rate": "0.1", "flows": ["-1000", "600", "600"], "dates": ["2025-06-01", "2025-01-01", "2026-01-01"]}"#;
+    let a = t.post_json("/api/v1/metrics", body).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+    let v = a.json();
+    assert_eq!(v["fields"][0]["field"], "dates[1]");
+    assert_eq!(
+        v["fields"][0]["message"],
+        "flow 1 is dated 2025-01-01, before the first flow's date 2025-06-01: list the earliest flow first"
+    );
+    // Positive control: the same flows in date order are answered.
+    let body =
+        r#"{"rate": "0.1", "flows": ["-1000", "600", "600"], "dates": ["2025-01-01", "2025-06-01", "2026-01-01"]}"#;
+    assert!(metrics_of(&t, body).await["xnpv"].is_string());
+}
+
+#[tokio::test]
+async fn metrics_blame_a_rate_whose_discounting_overflows() {
+    let t = test_app(false).await;
+    let body = r#"{"rate": "-0.9999999999999999", "flows": ["-1000", "300", "420", "680"]}"#;
+    let a = t.post_json("/api/v1/metrics", body).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+    let v = a.json();
+    assert_eq!(v["fields"].as_array().unwrap().len(), 1, "{v}");
+    assert_eq!(v["fields"][0]["field"], "rate", "{v}");
+    // Positive control: a loss of 99 % a period is a rate that discounts within range.
+    metrics_of(&t, r#"{"rate": "-0.99", "flows": ["-1000", "300", "420", "680"]}"#).await;
+}

@@ -609,6 +609,40 @@ fn schedule_hand_computed_case() {
 }
 
 #[test]
+fn leading_zero_flows_are_not_a_payback() {
+    // Common practice: payback is when the cumulative flow turns from negative to non-negative.
+    // By hand: 0, -1000, -400, +200: negative after period 1, recovered 400 / 600 into period 3.
+    let p = payback(&ints(&[0, -1000, 600, 600])).unwrap();
+    assert_eq!(p, Payback { periods: Decimal::from(2) + d("400") / d("600"), turns_negative_again: false });
+    // Positive control: the same flows without the leading zero pay back one period earlier.
+    assert_eq!(payback(&ints(&[-1000, 600, 600])).unwrap().periods, Decimal::ONE + d("400") / d("600"));
+    // Discounted at 0 %, the same.
+    assert_eq!(discounted_payback(0.0, &ints(&[0, -1000, 600, 600])).unwrap(), Some(p));
+    // Zeros then an outlay never recovered: no payback (not 0).
+    assert_eq!(payback(&ints(&[0, 0, -1000, 100])), None);
+}
+
+#[test]
+fn a_monthly_case_whose_first_cost_falls_in_month_2_pays_back_after_it() {
+    // hand_case with its costs moved two months later: months 0 and 1 carry the recurring
+    // licence only from month 2, so the first flows are 0 and the outlay falls in month 2.
+    let mut case = hand_case(None);
+    case.costs[0].timing = CostTiming::OneOff { month: 2 };
+    case.costs[1].timing = CostTiming::OneOff { month: 2 };
+    case.go_live_month = 3;
+    let s = build_schedule(&case, 0.0).unwrap();
+    let net = s.net_flows();
+    assert_eq!(&net[..2], &[Decimal::ZERO, Decimal::ZERO]);
+    // By hand: month 2: -6600 - 100 = -6700; month 3 earns 1/3 (333.3333) - 100; month 4
+    // 666.6667 - 100; months 5.. 900 a month: cumulative after month 4 = -6700 + 233.3333
+    // + 566.6667 = -5900; 900 a month: -500 after month 10, +400 after month 11, so payback
+    // = 10 + 500 / 900 months, not 0.
+    assert_eq!(net[2], d("-6700"));
+    let m = case_metrics(&s);
+    assert_eq!(m.payback_months.unwrap().periods, Decimal::from(10) + d("500") / d("900"));
+}
+
+#[test]
 fn schedule_discounting_matches_npv() {
     let s = build_schedule(&hand_case(None), 0.10).unwrap();
     assert!(close(s.monthly_rate, 1.1_f64.powf(1.0 / 12.0) - 1.0, 1e-15));
