@@ -256,7 +256,8 @@ fn bearer(token: &str) -> Request<Body> {
 #[tokio::test]
 async fn a_deactivated_users_session_and_token_stop_at_once() {
     let t = test_app(false).await;
-    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report").await.unwrap();
+    let (_, token) =
+        pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report", 90, t.now()).await.unwrap();
     let viewer = t.as_role(Some(Role::Viewer));
     let anon = t.as_role(None);
     // Positive control: both work before.
@@ -268,10 +269,31 @@ async fn a_deactivated_users_session_and_token_stop_at_once() {
     assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
     assert_eq!(viewer.get("/api/v1/zones").await.status, StatusCode::UNAUTHORIZED);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::UNAUTHORIZED);
-    // Reactivated, the token works again (it was not revoked); the session stays ended.
+    // Reactivated, the token stays revoked (issue 12: deactivation ends it, in the same
+    // transaction, with an audit row); the session stays ended.
     admin.post_form(&format!("/admin/users/{id}"), "role=viewer&active=on").await;
-    assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::OK);
+    assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::UNAUTHORIZED);
     assert_eq!(viewer.get("/api/v1/zones").await.status, StatusCode::UNAUTHORIZED);
+    let trail: Vec<(String, String)> = sqlx::query_as(
+        "SELECT action, detail FROM audit_log WHERE action IN ('user.update', 'token.revoke') ORDER BY id",
+    )
+    .fetch_all(&t.pool)
+    .await
+    .unwrap();
+    let token_id: i64 = sqlx::query_scalar("SELECT id FROM api_tokens").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(
+        trail,
+        [
+            ("token.revoke".into(), "of t-viewer: user deactivated".into()),
+            (
+                "user.update".into(),
+                format!(
+                    "t-viewer: role viewer -> viewer, active true -> false; sessions ended; revoked token {token_id}"
+                )
+            ),
+            ("user.update".into(), "t-viewer: role viewer -> viewer, active false -> true; sessions ended".into()),
+        ]
+    );
 }
 
 #[tokio::test]
@@ -281,7 +303,7 @@ async fn user_ids_are_never_reused_even_after_a_delete_behind_the_apps_back() {
     assert!(err.to_string().contains("users are deactivated, not deleted"), "{err}");
     let (last, name): (i64, String) =
         sqlx::query_as("SELECT id, name FROM users ORDER BY id DESC LIMIT 1").fetch_one(&t.pool).await.unwrap();
-    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", &name, "old").await.unwrap();
+    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", &name, "old", 90, t.now()).await.unwrap();
     let anon = t.as_role(None);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::OK, "positive control");
 
@@ -357,6 +379,7 @@ async fn every_column_is_chained() {
         import_id: None,
         booked_at: "",
         booked_by: "",
+        on_behalf_by: None,
     };
     let tables = [
         ("ledger_entries", ledger_entry_row(&entry, &stamp), &LEDGER_0003[..]),
