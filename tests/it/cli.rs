@@ -171,3 +171,41 @@ fn user_add_follows_the_admin_page_rules() {
         "error: name: a user named plant.controller already exists; nothing was changed"
     );
 }
+
+/// `token create --days` goes through the admin page's rule (1 to 365, default 90) and says
+/// until when the token works.
+#[test]
+fn token_create_takes_its_life_in_days() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = db_url(&dir);
+    let migrate = Command::new(BIN).args(["--database-url", &url, "migrate"]).output().unwrap();
+    assert!(migrate.status.success());
+    let mut child = Command::new(BIN)
+        .args(["--database-url", &url, "user", "add", "script.owner", "--role", "viewer"])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
+    assert!(child.wait_with_output().unwrap().status.success());
+    let create = |days: &str| {
+        Command::new(BIN)
+            .args(["--database-url", &url, "token", "create", "script.owner", "--days", days])
+            .output()
+            .unwrap()
+    };
+    let out = create("366");
+    assert!(!out.status.success());
+    assert_eq!(
+        String::from_utf8_lossy(&out.stderr).trim(),
+        "error: days: a whole number of days from 1 to 365 (empty: 90); nothing was changed"
+    );
+    // Positive control: a week.
+    let out = create("7");
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let until = (time::OffsetDateTime::now_utc() + time::Duration::days(7)).date();
+    let said = String::from_utf8_lossy(&out.stderr);
+    assert!(said.contains(&format!("works until {until} (UTC")), "{said}");
+    assert!(String::from_utf8_lossy(&out.stdout).trim().starts_with("plt_"));
+}
