@@ -408,20 +408,25 @@ async fn every_column_is_chained() {
     }
 }
 
+/// A zone (1) with a draft case (1) and its driver (1), written as raw SQL into a database of
+/// an older schema (a test of what a later migration does with older rows adds its own).
+pub(crate) const OLD_ZONE: [&str; 3] = [
+    "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
+     VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
+    "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
+         ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
+     VALUES (1, 1, 1, 'Base', 36, '2025-01', 0, 0, '1', 'draft', 't', 'u', 't', 'u')",
+    "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
+         escalation, created_at, created_by) VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '2', '3', '0.2', '0', 't', 'u')",
+];
+
 /// Rows written before migration 0007 are sealed once, in id order; a row slipped in without
 /// a hash later is not sealed but reported.
 #[tokio::test]
 async fn rows_from_before_the_chain_are_sealed_once() {
     let dir = tempfile::tempdir().unwrap();
     let pool = crate::helpers::pool_before(dir.path(), "0007").await;
-    for sql in [
-        "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
-        "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
-             ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 1, 1, 'Base', 36, '2025-01', 0, 0, '1', 'draft', 't', 'u', 't', 'u')",
-        "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
-             escalation, created_at, created_by) VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '2', '3', '0.2', '0', 't', 'u')",
+    for sql in OLD_ZONE.into_iter().chain([
         "UPDATE case_versions SET state = 'approved' WHERE id = 1",
         "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, period, method, quantity, unit_value, amount,
              evidence, booked_at, booked_by)
@@ -429,7 +434,7 @@ async fn rows_from_before_the_chain_are_sealed_once() {
                 (1, 1, 'saving', 1, '2025-03', 'direct', '50', '0.2', '10', 'meter', 't', 'u')",
         "INSERT INTO audit_log (at, actor, action, subject) VALUES ('t', 'u', 'zone.create', 'zone 1'),
                                                                   ('t', 'u', 'ledger.book', 'entry 1')",
-    ] {
+    ]) {
         sqlx::query(sql).execute(&pool).await.unwrap();
     }
     db::migrate(&pool).await.unwrap();

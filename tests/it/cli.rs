@@ -136,23 +136,26 @@ fn tokens_never_appear_in_logs() {
     assert!(!log.contains(&token[4..]), "part of the token leaked into the log");
 }
 
+/// `user add NAME --role ROLE` with its password on standard input.
+fn add_user(url: &str, name: &str, role: &str) -> std::process::Output {
+    let mut child = Command::new(BIN)
+        .args(["--database-url", url, "user", "add", name, "--role", role])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
+    child.wait_with_output().unwrap()
+}
+
 /// The command line adds users through the same write path as the admin page, so the same
 /// name rule holds (a 199-character name once made every Idempotency-Key of its user a 422).
 #[test]
 fn user_add_follows_the_admin_page_rules() {
     let dir = tempfile::tempdir().unwrap();
     let url = db_url(&dir);
-    let add = |name: &str| {
-        let mut child = Command::new(BIN)
-            .args(["--database-url", &url, "user", "add", name, "--role", "controller"])
-            .stdin(Stdio::piped())
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
-        child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
-        child.wait_with_output().unwrap()
-    };
+    let add = |name: &str| add_user(&url, name, "controller");
     let long = "c".repeat(199);
     let out = add(&long);
     assert!(!out.status.success());
@@ -178,17 +181,7 @@ fn user_add_follows_the_admin_page_rules() {
 fn token_create_takes_its_life_in_days() {
     let dir = tempfile::tempdir().unwrap();
     let url = db_url(&dir);
-    let migrate = Command::new(BIN).args(["--database-url", &url, "migrate"]).output().unwrap();
-    assert!(migrate.status.success());
-    let mut child = Command::new(BIN)
-        .args(["--database-url", &url, "user", "add", "script.owner", "--role", "viewer"])
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
-    assert!(child.wait_with_output().unwrap().status.success());
+    assert!(add_user(&url, "script.owner", "viewer").status.success());
     let create = |days: &str| {
         Command::new(BIN)
             .args(["--database-url", &url, "token", "create", "script.owner", "--days", days])

@@ -321,15 +321,7 @@ async fn the_mark_cannot_be_added_to_an_entry_afterwards() {
 async fn entries_chained_before_the_column_still_verify() {
     let dir = tempfile::tempdir().unwrap();
     let pool = crate::helpers::pool_before(dir.path(), "0013").await;
-    for sql in [
-        "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
-        "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
-             ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 1, 1, 'Base', 36, '2025-01', 0, 0, '1', 'draft', 't', 'u', 't', 'u')",
-        "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
-             escalation, created_at, created_by) VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '2', '3', '0.2', '0', 't', 'u')",
-    ] {
+    for sql in crate::chain::OLD_ZONE {
         sqlx::query(sql).execute(&pool).await.unwrap();
     }
     // Written as the code before 0013 wrote them: the row without the column, chained.
