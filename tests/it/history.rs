@@ -358,7 +358,7 @@ async fn a_month_booked_before_the_approval_keeps_its_baseline() {
     let t = test_app(false).await;
     let (admin, controller) = (t.as_role(Some(Role::Admin)), t.as_role(Some(Role::Controller)));
     let z = crate::ledger::zone_with_baseline(&t, "HIST-3").await;
-    let today = Month::of(t.now().date());
+    let today = Month::of(t.clock.now().date());
     let start = Month::parse("2025-01").unwrap();
     // Month index of today in the case from 2025-01 (36 months, so through 2027-12).
     let idx = ((today.year - 2025) * 12 + i32::from(today.month) - 1) as usize;
