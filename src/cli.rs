@@ -88,7 +88,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
                     app::users::set_password(&pool, CLI_ACTOR, Account::Name(&name), &password)
                         .await
                         .map_err(refused)?;
-                    println!("password of {name} changed; their sessions were ended");
+                    println!("password of {name} changed; their sessions were ended and their tokens revoked");
                 }
             }
             Ok(())
@@ -96,10 +96,12 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
         Command::Token(cmd) => {
             let pool = open(&config.database_url).await?;
             match cmd {
-                TokenCommand::Create { name, label } => {
+                TokenCommand::Create { name, label, days } => {
+                    let now = time::OffsetDateTime::now_utc();
                     let (id, token) =
-                        app::users::issue_token(&pool, CLI_ACTOR, &name, &label).await.map_err(refused)?;
-                    eprintln!("token {id} for {name} (shown once; only its hash is stored):");
+                        app::users::issue_token(&pool, CLI_ACTOR, &name, &label, days, now).await.map_err(refused)?;
+                    let until = (now + time::Duration::days(i64::from(days))).date();
+                    eprintln!("token {id} for {name}, works until {until} (UTC; shown once, only its hash is stored):");
                     println!("{token}");
                 }
                 TokenCommand::Revoke { id } => {

@@ -80,6 +80,9 @@ pub enum TokenCommand {
         /// What the token is for.
         #[arg(long, default_value = "script")]
         label: String,
+        /// Days the token works, 1 to 365.
+        #[arg(long, default_value_t = crate::domain::TOKEN_DAYS_DEFAULT)]
+        days: u32,
     },
     /// Revoke a token by its id (as listed on the admin page).
     Revoke {

@@ -15,6 +15,21 @@ pub struct Who<'a> {
     pub id: UserId,
     /// The name written into `booked_by` and the audit trail.
     pub name: &'a str,
+    /// Who made the API token the user acts with, when someone else did (an admin): written
+    /// into `on_behalf_by` and the audit trail ("booked by <issuer> on behalf of <name>").
+    pub on_behalf: Option<&'a str>,
+}
+
+impl Who<'_> {
+    /// What the audit trail adds to a ledger action's detail: nothing, or how it was booked.
+    fn audit_note(&self) -> String {
+        match self.on_behalf {
+            Some(issuer) => {
+                format!("; booked by {issuer} on behalf of {} (with a token {issuer} issued)", self.name)
+            }
+            None => String::new(),
+        }
+    }
 }
 
 /// The outcome of a form or API write: done, or (a form) already done by an earlier submit of
@@ -43,7 +58,7 @@ pub async fn book(
     {
         return Ok(Once::Already(outcome));
     }
-    let booked = db::ledger::book(&mut tx, zone_id, booking, today, who.name, key).await?;
+    let booked = db::ledger::book(&mut tx, zone_id, booking, today, (who.name, who.on_behalf), key).await?;
     if let Booked::New(e) = &booked {
         let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method, e.amount);
         if let Some(paid) = e.paid_on {
@@ -52,6 +67,7 @@ pub async fn book(
         if e.implausible_confirmed {
             detail.push_str(" (beyond the plausibility threshold, confirmed by the author)");
         }
+        detail.push_str(&who.audit_note());
         db::audit::record(&mut tx, &db::now(), who.name, "ledger.book", &format!("entry {}", e.id), &detail).await?;
         if let Some(token) = form {
             db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", e.id)).await?;
@@ -80,7 +96,7 @@ pub async fn reverse(
     {
         return Ok(Once::Already(outcome));
     }
-    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, who.name).await?;
+    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, (who.name, who.on_behalf)).await?;
     if let Some(token) = form {
         db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", r.id)).await?;
     }
@@ -90,7 +106,7 @@ pub async fn reverse(
         who.name,
         "ledger.reverse",
         &format!("entry {}", r.id),
-        &format!("reverses entry {entry}"),
+        &format!("reverses entry {entry}{}", who.audit_note()),
     )
     .await?;
     tx.commit().await?;
@@ -157,12 +173,14 @@ pub async fn import(
         again,
     };
     let (import_id, earlier) = db::ledger::insert_import(&mut tx, zone_id, &file, who.name).await?;
-    let tag = db::ledger::Tag { actor: who.name, import_id: Some(import_id), reverses_id: None };
+    let tag =
+        db::ledger::Tag { actor: who.name, on_behalf: who.on_behalf, import_id: Some(import_id), reverses_id: None };
     db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
     let mut detail = format!("{file_name}: {} rows", rows.len());
     if let Some((id, at, by)) = earlier {
         detail.push_str(&format!("; the same rows as import {id} of {at} by {by}, booked again on purpose"));
     }
+    detail.push_str(&who.audit_note());
     db::audit::record(&mut tx, &db::now(), who.name, "ledger.import", &format!("import {import_id}"), &detail).await?;
     if let Some(token) = form {
         db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("import {import_id}")).await?;

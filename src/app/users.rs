@@ -3,8 +3,9 @@
 use super::{Actor, AppResult, Error, invalid};
 use crate::auth::{Role, hash_password, hash_secret, new_secret, parse_new_password};
 use crate::db;
-use crate::domain::{FieldErrors, UserId, parse_user_name};
+use crate::domain::{FieldErrors, UserId, check_token_days, parse_user_name};
 use sqlx::SqlitePool;
+use time::format_description::well_known::Rfc3339;
 
 fn hashed(password: &str) -> AppResult<String> {
     let password = parse_new_password(password).map_err(|msg| invalid("password", msg))?;
@@ -36,8 +37,33 @@ pub async fn add_user(
     Ok(UserId(id))
 }
 
-/// Change a user's role or active flag; the user's sessions end. Nobody removes their own
-/// admin role or deactivates themselves (`me`: the acting user's id).
+/// Revoke every live token of user `id` (`name`) in the caller's transaction, with an audit row
+/// each; returns what the user's own audit row adds (`""` when there were none).
+async fn end_tokens(
+    tx: &mut sqlx::SqliteConnection,
+    id: i64,
+    name: &str,
+    at: &str,
+    actor: Actor<'_>,
+    why: &str,
+) -> AppResult<String> {
+    let ended = db::revoke_user_tokens(tx, id, at, actor).await?;
+    for token in &ended {
+        db::audit::record(&mut *tx, at, actor, "token.revoke", &format!("token {token}"), &format!("of {name}: {why}"))
+            .await?;
+    }
+    Ok(match ended.as_slice() {
+        [] => String::new(),
+        ids => {
+            let ids: Vec<String> = ids.iter().map(|t| format!("token {t}")).collect();
+            format!("; revoked {}", ids.join(", "))
+        }
+    })
+}
+
+/// Change a user's role or active flag; the user's sessions end, and a deactivation revokes
+/// their tokens too (in the same transaction: a later reactivation does not bring them back).
+/// Nobody removes their own admin role or deactivates themselves (`me`: the acting user's id).
 pub async fn update_user(
     pool: &SqlitePool,
     actor: Actor<'_>,
@@ -53,7 +79,13 @@ pub async fn update_user(
     let at = db::now();
     let before = db::get_user(&mut tx, id).await?;
     db::update_user(&mut tx, id, role, active, &at, actor).await?;
-    let detail = format!("{}: role {} -> {}, active {} -> {}", before.name, before.role, role, before.active, active);
+    let mut detail = format!(
+        "{}: role {} -> {}, active {} -> {}; sessions ended",
+        before.name, before.role, role, before.active, active
+    );
+    if before.active && !active {
+        detail.push_str(&end_tokens(&mut tx, id, &before.name, &at, actor, "user deactivated").await?);
+    }
     db::audit::record(&mut tx, &at, actor, "user.update", &format!("user {id}"), &detail).await?;
     tx.commit().await?;
     Ok(())
@@ -67,7 +99,9 @@ pub enum Account<'a> {
     Name(&'a str),
 }
 
-/// Set a new password; the user's sessions end. Returns the user's name.
+/// Set a new password; the user's sessions end and their tokens are revoked, in the same
+/// transaction (whoever knew the old password may have made a token with it). Returns the
+/// user's name.
 pub async fn set_password(
     pool: &SqlitePool,
     actor: Actor<'_>,
@@ -82,23 +116,40 @@ pub async fn set_password(
         Account::Name(name) => name.to_string(),
     };
     let id = db::set_password(&mut tx, &name, &hash, &at, actor).await?;
-    db::audit::record(&mut tx, &at, actor, "user.password", &format!("user {id}"), &name).await?;
+    let tokens = end_tokens(&mut tx, id, &name, &at, actor, "password changed").await?;
+    let detail = format!("{name}; sessions ended{tokens}");
+    db::audit::record(&mut tx, &at, actor, "user.password", &format!("user {id}"), &detail).await?;
     tx.commit().await?;
     Ok(name)
 }
 
-/// Create an API token for `user_name`: the token is returned once, only its hash is kept.
+/// Create an API token for `user_name` that works for `days` (1 to 365) from `now`: the token
+/// is returned once, only its hash is kept. `actor` is recorded as its issuer; when that is
+/// not the owner, every entry the token books says so.
 pub async fn issue_token(
     pool: &SqlitePool,
     actor: Actor<'_>,
     user_name: &str,
     label: &str,
+    days: u32,
+    now: time::OffsetDateTime,
 ) -> AppResult<(i64, String)> {
-    let label = crate::domain::CaseHeader::parse_label(label).map_err(|msg| invalid("label", msg))?;
+    let mut e = FieldErrors::default();
+    let label = e.take("label", crate::domain::CaseHeader::parse_label(label));
+    let days = e.take("days", check_token_days(days));
+    let (Some(label), Some(days)) = (label, days) else { return Err(Error::Invalid(e)) };
+    let expires = now + time::Duration::days(i64::from(days));
+    let rfc3339 = |t: time::OffsetDateTime| t.format(&Rfc3339).map_err(|e| Error::Internal(e.into()));
+    let (at, expires_at) = (rfc3339(now)?, rfc3339(expires)?);
     let token = new_secret("plt_");
+    let hash = hash_secret(token.expose());
     let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
-    let id = match db::insert_token(&mut tx, user_name, &label, &hash_secret(token.expose()), &at, actor).await {
+    let new = db::NewToken { hash: &hash, label: &label, at: &at, expires_at: &expires_at };
+    let behalf = match crate::domain::issued_on_behalf(actor, user_name) {
+        Some(issuer) => format!("; issued by {issuer} for someone else: entries it books say so"),
+        None => String::new(),
+    };
+    let id = match db::insert_token(&mut tx, user_name, &new, actor).await {
         Err(db::DbError::NotFound(_)) => return Err(invalid("user", "no user with this name")),
         other => other?,
     };
@@ -108,7 +159,7 @@ pub async fn issue_token(
         actor,
         "token.create",
         &format!("token {id}"),
-        &format!("for {user_name}: {label}"),
+        &format!("for {user_name}: {label}; expires {expires_at}{behalf}"),
     )
     .await?;
     tx.commit().await?;

@@ -16,7 +16,7 @@ macro_rules! select_entry {
         concat!(
             "SELECT e.id, e.zone_id, e.case_id, e.kind, e.driver_id, e.cost_id, e.period, e.method, e.quantity, e.unit_value,
                     e.amount, e.baseline_intensity, e.reporting_volume, e.measured_consumption, e.evidence, e.reverses_id,
-                    r.id AS reversed_by, e.booked_at, e.booked_by, e.paid_on, e.implausible_confirmed
+                    r.id AS reversed_by, e.booked_at, e.booked_by, e.paid_on, e.implausible_confirmed, e.on_behalf_by
              FROM ledger_entries e LEFT JOIN ledger_entries r ON r.reverses_id = e.id ",
             $rest
         )
@@ -48,6 +48,7 @@ fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
         booked_by: r.try_get("booked_by")?,
         paid_on: r.try_get::<Option<String>, _>("paid_on")?.map(|d| parsed("paid_on", d, parse_date)).transpose()?,
         implausible_confirmed: r.try_get::<Option<i64>, _>("implausible_confirmed")?.is_some_and(|v| v != 0),
+        on_behalf_by: r.try_get("on_behalf_by")?,
     })
 }
 
@@ -136,6 +137,8 @@ pub enum Booked {
 pub struct Tag<'a> {
     /// The user booking.
     pub actor: &'a str,
+    /// Who made the token the user books with, when someone else did (`on_behalf_by`).
+    pub on_behalf: Option<&'a str>,
     /// The CSV import the entries came from.
     pub import_id: Option<i64>,
     /// The entry a reversal reverses.
@@ -155,7 +158,8 @@ pub struct Idempotency<'a> {
 /// Book one entry in the caller's transaction. Checks against the baseline are reported as
 /// field errors: unknown driver or cost item, a month outside the horizon or in the future, an
 /// implausible figure not confirmed. `key` makes a retried request book once; the same key with
-/// another request (body or URL) is a conflict and books nothing.
+/// another request (body or URL) is a conflict and books nothing. `(actor, on_behalf)`: who
+/// books, and who made their token when someone else did (`on_behalf_by`).
 ///
 /// The hot path of the API: one query reads the key's earlier use, the baseline, the item,
 /// its running totals and the ledger chain's tip; then the insert, the totals, the key and
@@ -165,7 +169,7 @@ pub async fn book(
     zone_id: i64,
     b: &Booking,
     today: time::Date,
-    actor: &str,
+    (actor, on_behalf): (&str, Option<&str>),
     key: Option<&Idempotency<'_>>,
 ) -> DbResult<Booked> {
     let saving = b.item.kind() == EntryKind::Saving;
@@ -231,7 +235,7 @@ pub async fn book(
         });
     }
     let e = baseline.check(b, today).map_err(DbError::Invalid)?;
-    let tag = Tag { actor, import_id: None, reverses_id: None };
+    let tag = Tag { actor, on_behalf, import_id: None, reverses_id: None };
     let at = now();
     let mut tip = Tip { id: row.try_get::<Option<i64>, _>("tip_id")?.unwrap_or(0), hash: row.try_get("tip_hash")? };
     let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at, &mut tip).await?;
@@ -364,6 +368,7 @@ fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> Ledg
         booked_by: tag.actor.to_string(),
         paid_on: e.paid_on,
         implausible_confirmed: e.implausible_confirmed,
+        on_behalf_by: tag.on_behalf.map(str::to_string),
     }
 }
 
@@ -655,6 +660,7 @@ async fn insert_rows(
         import_id: tag.import_id,
         booked_at: at,
         booked_by: tag.actor,
+        on_behalf_by: tag.on_behalf,
     };
     insert_chained(conn, LEDGER_ENTRIES, tip, rows, |e, id| ledger_entry_row(e, &stamp(id))).await.map_err(
         |e| match &e {
@@ -675,12 +681,13 @@ async fn insert_rows(
 
 /// Book the reversal of entry `id` (negated quantity and amount, same month and item), with
 /// its own evidence note. An entry can be reversed once; a reversal cannot be reversed.
+/// `(actor, on_behalf)` as for [`book`].
 pub async fn reverse(
     conn: &mut SqliteConnection,
     zone_id: i64,
     id: i64,
     evidence: &str,
-    actor: &str,
+    (actor, on_behalf): (&str, Option<&str>),
 ) -> DbResult<LedgerEntry> {
     let original =
         entry_in(conn, id).await?.filter(|e| e.zone_id == zone_id).ok_or(DbError::NotFound("ledger entry"))?;
@@ -704,7 +711,7 @@ pub async fn reverse(
         paid_on: original.paid_on,
         implausible_confirmed: false,
     };
-    insert_one(conn, zone_id, entry, &Tag { actor, import_id: None, reverses_id: Some(id) }).await
+    insert_one(conn, zone_id, entry, &Tag { actor, on_behalf, import_id: None, reverses_id: Some(id) }).await
 }
 
 /// A CSV file to record as an import.

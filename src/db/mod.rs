@@ -290,9 +290,9 @@ pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
 pub use site::{get_site, number_format, put_site};
 pub use users::{
-    SessionRow, TokenRow, User, count_users, delete_session, get_session, get_user, insert_session, insert_token,
-    insert_user, list_tokens, list_users, revoke_token, set_password, touch_session, update_user, user_for_login,
-    user_for_token,
+    NewToken, SessionRow, TokenRow, TokenUse, User, count_users, delete_session, get_session, get_user, insert_session,
+    insert_token, insert_user, list_tokens, list_users, revoke_token, revoke_user_tokens, set_password, token_use,
+    touch_session, touch_token, update_user, user_for_login,
 };
 pub use zones::{get_zone, insert_zone, list_zones, set_zone_status, update_zone};
 

@@ -71,7 +71,7 @@ async fn load_zone_extras(
     if !errors.is_empty() {
         return Err(DbError::Invalid(errors));
     }
-    let tag = ledger::Tag { actor, import_id: None, reverses_id: None };
+    let tag = ledger::Tag { actor, on_behalf: None, import_id: None, reverses_id: None };
     ledger::insert_checked(conn, zone_id, &entries, &tag).await?;
     Ok(z.ledger.len())
 }

@@ -209,28 +209,46 @@ pub struct TokenRow {
     pub created_by: String,
     /// Revoked, if so.
     pub revoked_at: Option<String>,
+    /// When it stops working (RFC 3339); `None` only for a row written behind the app's back,
+    /// and such a token is refused.
+    pub expires_at: Option<String>,
+    /// The last request it authenticated (to the minute), if any.
+    pub last_used_at: Option<String>,
 }
 
-/// Store a token hash for a user (by name); returns the token id.
+/// A token to store: its hash, label and expiry, made `at` by `actor`.
+pub struct NewToken<'a> {
+    /// SHA-256 of the token.
+    pub hash: &'a str,
+    /// What it is for.
+    pub label: &'a str,
+    /// When it was made (RFC 3339).
+    pub at: &'a str,
+    /// When it stops working (RFC 3339).
+    pub expires_at: &'a str,
+}
+
+/// Store a token hash for a user (by name); returns the token id. `actor`, kept as
+/// `created_by`, is the token's issuer.
 pub async fn insert_token(
     conn: &mut SqliteConnection,
     user_name: &str,
-    label: &str,
-    hash: &str,
-    at: &str,
+    t: &NewToken<'_>,
     actor: &str,
 ) -> DbResult<i64> {
     let user_id: Option<i64> =
         sqlx::query_scalar("SELECT id FROM users WHERE name = ?").bind(user_name).fetch_optional(&mut *conn).await?;
     let user_id = user_id.ok_or(DbError::NotFound("user"))?;
     Ok(sqlx::query_scalar(
-        "INSERT INTO api_tokens (user_id, label, token_hash, created_at, created_by) VALUES (?, ?, ?, ?, ?) RETURNING id",
+        "INSERT INTO api_tokens (user_id, label, token_hash, created_at, created_by, expires_at)
+         VALUES (?, ?, ?, ?, ?, ?) RETURNING id",
     )
     .bind(user_id)
-    .bind(label)
-    .bind(hash)
-    .bind(at)
+    .bind(t.label)
+    .bind(t.hash)
+    .bind(t.at)
     .bind(actor)
+    .bind(t.expires_at)
     .fetch_one(conn)
     .await?)
 }
@@ -249,10 +267,27 @@ pub async fn revoke_token(conn: &mut SqliteConnection, id: i64, at: &str, actor:
     Ok(())
 }
 
+/// Revoke every live token of a user (a password change, a deactivation); returns their ids.
+pub async fn revoke_user_tokens(
+    conn: &mut SqliteConnection,
+    user_id: i64,
+    at: &str,
+    actor: &str,
+) -> DbResult<Vec<i64>> {
+    Ok(sqlx::query_scalar(
+        "UPDATE api_tokens SET revoked_at = ?, revoked_by = ? WHERE user_id = ? AND revoked_at IS NULL RETURNING id",
+    )
+    .bind(at)
+    .bind(actor)
+    .bind(user_id)
+    .fetch_all(conn)
+    .await?)
+}
+
 /// Every token, newest first.
 pub async fn list_tokens(pool: &SqlitePool) -> DbResult<Vec<TokenRow>> {
     let rows = sqlx::query(
-        "SELECT t.id, u.name, u.role, t.label, t.created_at, t.created_by, t.revoked_at
+        "SELECT t.id, u.name, u.role, t.label, t.created_at, t.created_by, t.revoked_at, t.expires_at, t.last_used_at
          FROM api_tokens t JOIN users u ON u.id = t.user_id ORDER BY t.id DESC",
     )
     .fetch_all(pool)
@@ -267,20 +302,54 @@ pub async fn list_tokens(pool: &SqlitePool) -> DbResult<Vec<TokenRow>> {
                 created_at: r.try_get("created_at")?,
                 created_by: r.try_get("created_by")?,
                 revoked_at: r.try_get("revoked_at")?,
+                expires_at: r.try_get("expires_at")?,
+                last_used_at: r.try_get("last_used_at")?,
             })
         })
         .collect()
 }
 
-/// The active user owning an unrevoked token with this hash.
-pub async fn user_for_token(pool: &SqlitePool, hash: &str) -> DbResult<Option<User>> {
+/// An unrevoked token of an active user, as a request presents it.
+#[derive(Debug, Clone)]
+pub struct TokenUse {
+    /// The token's id.
+    pub id: i64,
+    /// Its owner.
+    pub user: User,
+    /// Who made it (`created_by`).
+    pub issued_by: String,
+    /// When it stops working (RFC 3339); `None` is refused.
+    pub expires_at: Option<String>,
+    /// Its last use, if any.
+    pub last_used_at: Option<String>,
+}
+
+/// The unrevoked token with this hash and its active owner; expiry is the caller's to check
+/// (against the injectable clock, and so that an expired token can be told from an unknown one).
+pub async fn token_use(pool: &SqlitePool, hash: &str) -> DbResult<Option<TokenUse>> {
     let row = sqlx::query(
-        "SELECT u.id, u.name, u.role, u.active, u.updated_at, u.updated_by
+        "SELECT u.id, u.name, u.role, u.active, u.updated_at, u.updated_by,
+                t.id AS token_id, t.created_by AS issued_by, t.expires_at, t.last_used_at
          FROM api_tokens t JOIN users u ON u.id = t.user_id
          WHERE t.token_hash = ? AND t.revoked_at IS NULL AND u.active = 1",
     )
     .bind(hash)
     .fetch_optional(pool)
     .await?;
-    row.as_ref().map(user_from).transpose()
+    row.map(|r| {
+        Ok(TokenUse {
+            id: r.try_get("token_id")?,
+            user: user_from(&r)?,
+            issued_by: r.try_get("issued_by")?,
+            expires_at: r.try_get("expires_at")?,
+            last_used_at: r.try_get("last_used_at")?,
+        })
+    })
+    .transpose()
+}
+
+/// Note a token's use (the admin page shows it).
+pub async fn touch_token(pool: &SqlitePool, id: i64, at: &str) -> DbResult<()> {
+    sqlx::query("UPDATE api_tokens SET last_used_at = ? WHERE id = ?").bind(at).bind(id).execute(pool).await?;
+    Ok(())
 }

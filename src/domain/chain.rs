@@ -105,6 +105,8 @@ pub struct EntryStamp<'a> {
     pub booked_at: &'a str,
     /// Who booked it.
     pub booked_by: &'a str,
+    /// Who made the token it was booked with, when not `booked_by` (see `LedgerEntry`).
+    pub on_behalf_by: Option<&'a str>,
 }
 
 /// Every stored column of one `ledger_entries` row, by name. **A new ledger column is added
@@ -134,6 +136,8 @@ pub fn ledger_entry_row(e: &NewEntry, s: &EntryStamp<'_>) -> Row {
         ("paid_on", Value::opt_text(e.paid_on.map(|d| d.to_string()).as_deref())),
         // NULL unless confirmed, so rows from before the column keep their hashes.
         ("implausible_confirmed", Value::opt_int(e.implausible_confirmed.then_some(1))),
+        // Migration 0013; NULL (left out of the hash) unless booked on someone's behalf.
+        ("on_behalf_by", Value::opt_text(s.on_behalf_by)),
     ]
 }
 

@@ -383,9 +383,21 @@ pub struct LedgerEntry {
     pub paid_on: Option<time::Date>,
     /// Beyond the plausibility threshold and confirmed by its author.
     pub implausible_confirmed: bool,
+    /// Booked with a token that someone else (this name, e.g. an admin) made for `booked_by`:
+    /// they booked it on `booked_by`'s behalf. `None`: booked by `booked_by` themselves.
+    pub on_behalf_by: Option<String>,
 }
 
 impl LedgerEntry {
+    /// Who booked the entry, in words: `booked by t-admin on behalf of t-controller`, or
+    /// `booked by t-controller`.
+    pub fn booked_by_words(&self) -> String {
+        match &self.on_behalf_by {
+            Some(issuer) => format!("booked by {issuer} on behalf of {}", self.booked_by),
+            None => format!("booked by {}", self.booked_by),
+        }
+    }
+
     /// Saving or spending.
     pub fn kind(&self) -> EntryKind {
         self.item.kind()

@@ -51,7 +51,10 @@ pub use uncertainty::{
     Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, parse_seed, quantity_ranges,
     risk_adjusted_npv,
 };
-pub use user::{USER_NAME_MAX, parse_user_name};
+pub use user::{
+    TOKEN_DAYS_DEFAULT, TOKEN_DAYS_MAX, USER_NAME_MAX, check_token_days, issued_on_behalf, parse_token_days,
+    parse_user_name,
+};
 pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
 
 use serde::Serialize;

@@ -5,7 +5,9 @@ use super::{AppError, AppState, FormBody};
 use crate::app::{self, users::Account};
 use crate::auth::Role;
 use crate::db::{self, TokenRow, User, audit::AuditEntry};
-use crate::domain::{Criterion, FieldErrors, NumberFormat, SiteSettings, SiteSettingsInput, UserId, parse_weights};
+use crate::domain::{
+    Criterion, FieldErrors, NumberFormat, SiteSettings, SiteSettingsInput, UserId, parse_token_days, parse_weights,
+};
 use askama::Template;
 use axum::extract::{Path, State};
 use axum::http::StatusCode;
@@ -18,7 +20,8 @@ use std::collections::HashMap;
 struct AdminPage {
     nav: Nav,
     users: Vec<User>,
-    tokens: Vec<TokenRow>,
+    tokens: Vec<TokenLine>,
+    token_days: u32,
     site: SiteSettings,
     roles: [Role; 4],
     errors: FieldErrors,
@@ -26,6 +29,36 @@ struct AdminPage {
     new_token: Option<String>,
     criteria: Vec<Criterion>,
     formats: [NumberFormat; 2],
+}
+
+/// A token as the list shows it: expiry and last use to the minute (UTC), and whether it
+/// has expired by the clock.
+struct TokenLine {
+    t: TokenRow,
+    expires: String,
+    expired: bool,
+    last_used: String,
+    /// Made by someone other than its owner: entries it books say so.
+    on_behalf: bool,
+}
+
+impl TokenLine {
+    fn new(t: TokenRow, now: time::OffsetDateTime) -> Self {
+        use time::format_description::well_known::Rfc3339;
+        let parse = |s: &Option<String>| s.as_deref().and_then(|s| time::OffsetDateTime::parse(s, &Rfc3339).ok());
+        let minute = time::macros::format_description!("[year]-[month]-[day] [hour]:[minute] UTC");
+        let show = |at: Option<time::OffsetDateTime>, none: &str| {
+            at.and_then(|at| at.to_offset(time::UtcOffset::UTC).format(&minute).ok()).unwrap_or_else(|| none.into())
+        };
+        let expires_at = parse(&t.expires_at);
+        Self {
+            expires: show(expires_at, "unknown (refused)"),
+            expired: expires_at.is_none_or(|at| now >= at),
+            last_used: show(parse(&t.last_used_at), "never"),
+            on_behalf: crate::domain::issued_on_behalf(&t.created_by, &t.user_name).is_some(),
+            t,
+        }
+    }
 }
 
 async fn admin_page(
@@ -38,7 +71,11 @@ async fn admin_page(
     let page = AdminPage {
         nav,
         users: db::list_users(&state.pool).await?,
-        tokens: db::list_tokens(&state.pool).await?,
+        tokens: {
+            let now = state.clock.now();
+            db::list_tokens(&state.pool).await?.into_iter().map(|t| TokenLine::new(t, now)).collect()
+        },
+        token_days: crate::domain::TOKEN_DAYS_DEFAULT,
         site: db::get_site(&state.pool).await?,
         roles: Role::ALL,
         errors,
@@ -148,6 +185,8 @@ pub async fn reset_password(
 pub struct TokenForm {
     user: String,
     label: String,
+    /// Days the token works; empty: the default (90).
+    days: String,
 }
 
 /// POST /admin/tokens: the page shows the new token once.
@@ -156,7 +195,12 @@ pub async fn create_token(
     CurrentUser(me): CurrentUser,
     FormBody(form): FormBody<TokenForm>,
 ) -> Result<Response, AppError> {
-    match app::users::issue_token(&state.pool, me.name(), form.user.trim(), &form.label).await {
+    let days = match parse_token_days(&form.days) {
+        Ok(days) => days,
+        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("days", msg), None, None).await,
+    };
+    let now = state.clock.now();
+    match app::users::issue_token(&state.pool, me.name(), form.user.trim(), &form.label, days, now).await {
         Ok((_, token)) => admin_page(&state, Nav::from(&me), FieldErrors::default(), None, Some(token)).await,
         Err(e) => refused(&state, &me, e).await,
     }

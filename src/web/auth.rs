@@ -42,6 +42,9 @@ pub struct Principal {
     pub user: User,
     /// Hash of the session id, when signed in by cookie (logout needs it).
     pub session: Option<String>,
+    /// Who made the API token of this request, when it was not the user (an admin making a
+    /// token for a controller): ledger entries it books are marked as booked on their behalf.
+    pub on_behalf: Option<String>,
 }
 
 impl Principal {
@@ -95,12 +98,10 @@ fn rfc3339(t: time::OffsetDateTime) -> String {
 async fn principal(state: &AppState, headers: &HeaderMap) -> Result<Option<Principal>, AppError> {
     if let Some(auth) = headers.get(header::AUTHORIZATION) {
         let token = auth.to_str().ok().and_then(|v| v.strip_prefix("Bearer ")).map(str::trim);
-        return Ok(match token {
-            Some(t) => {
-                db::user_for_token(&state.pool, &hash_secret(t)).await?.map(|user| Principal { user, session: None })
-            }
-            None => None,
-        });
+        return match token {
+            Some(t) => token_principal(state, t).await,
+            None => Ok(None),
+        };
     }
     let Some(id) = cookie_value(headers, SESSION_COOKIE) else { return Ok(None) };
     let id_hash = hash_secret(&id);
@@ -119,7 +120,27 @@ async fn principal(state: &AppState, headers: &HeaderMap) -> Result<Option<Princ
     if now - seen >= TOUCH_INTERVAL {
         db::touch_session(&state.pool, &id_hash, &rfc3339(now)).await?;
     }
-    Ok(Some(Principal { user: row.user, session: Some(id_hash) }))
+    Ok(Some(Principal { user: row.user, session: Some(id_hash), on_behalf: None }))
+}
+
+/// The principal of a Bearer token: unknown, revoked or its owner deactivated is `None` (the
+/// usual 401); expired is a 401 that says so and when, so that a script's owner knows what to
+/// do. A token lives until its expiry unless revoked (a password change or a deactivation
+/// revokes all of the owner's tokens). Its last use is noted at most once a minute.
+async fn token_principal(state: &AppState, token: &str) -> Result<Option<Principal>, AppError> {
+    let Some(found) = db::token_use(&state.pool, &hash_secret(token)).await? else { return Ok(None) };
+    let now = state.clock.now();
+    let parse = |s: &str| time::OffsetDateTime::parse(s, &Rfc3339).ok();
+    // A token without a readable expiry (written behind the app's back) is refused.
+    let Some(expires) = found.expires_at.as_deref().and_then(parse) else { return Ok(None) };
+    if now >= expires {
+        return Err(AppError::TokenExpired(expires.date()));
+    }
+    if found.last_used_at.as_deref().and_then(parse).is_none_or(|last| now - last >= TOUCH_INTERVAL) {
+        db::touch_token(&state.pool, found.id, &rfc3339(now)).await?;
+    }
+    let on_behalf = crate::domain::issued_on_behalf(&found.issued_by, &found.user.name).map(str::to_string);
+    Ok(Some(Principal { user: found.user, session: None, on_behalf }))
 }
 
 /// Route middleware: resolve the principal, then allow or refuse by the route's permission.

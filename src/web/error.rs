@@ -29,6 +29,9 @@ pub enum AppError {
     /// Not signed in, or the token is unknown or revoked (401).
     #[error("sign in first, or send a valid API token as Authorization: Bearer <token>")]
     Unauthenticated,
+    /// The API token has expired (401), on this day (UTC).
+    #[error("this token expired on {0}; ask an admin for a new one")]
+    TokenExpired(time::Date),
     /// Signed in, but the role does not allow this (403).
     #[error("your role does not allow this")]
     Forbidden,
@@ -50,7 +53,7 @@ impl AppError {
             Self::Invalid(_) => StatusCode::UNPROCESSABLE_ENTITY,
             Self::InvalidHeader(_) => StatusCode::BAD_REQUEST,
             Self::BadRequest { status, .. } => *status,
-            Self::Unauthenticated => StatusCode::UNAUTHORIZED,
+            Self::Unauthenticated | Self::TokenExpired(_) => StatusCode::UNAUTHORIZED,
             Self::Forbidden => StatusCode::FORBIDDEN,
             Self::NotFound(_) => StatusCode::NOT_FOUND,
             Self::Conflict(_) => StatusCode::CONFLICT,
@@ -171,9 +174,15 @@ impl IntoResponse for ApiError {
         };
         let body = json!({ "error": self.0.public_message(), "fields": fields });
         let mut res = (self.0.status(), Json(body)).into_response();
-        if matches!(self.0, AppError::Unauthenticated) {
+        // RFC 6750 section 3: a bad (here: expired) token is `error="invalid_token"`.
+        let challenge = match self.0 {
+            AppError::Unauthenticated => Some("Bearer"),
+            AppError::TokenExpired(_) => Some("Bearer error=\"invalid_token\""),
+            _ => None,
+        };
+        if let Some(challenge) = challenge {
             res.headers_mut()
-                .insert(axum::http::header::WWW_AUTHENTICATE, axum::http::HeaderValue::from_static("Bearer"));
+                .insert(axum::http::header::WWW_AUTHENTICATE, axum::http::HeaderValue::from_static(challenge));
         }
         res
     }

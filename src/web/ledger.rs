@@ -22,7 +22,7 @@ use serde_json::{Value, json};
 
 /// The signed-in user as the ledger's write path names them.
 fn who(me: &Principal) -> app::ledger::Who<'_> {
-    app::ledger::Who { id: UserId(me.user.id), name: me.name() }
+    app::ledger::Who { id: UserId(me.user.id), name: me.name(), on_behalf: me.on_behalf.as_deref() }
 }
 
 /// The clock's date: nothing later can be booked (month) or paid (day).
@@ -475,7 +475,7 @@ fn csv_of(
     let mut head: Vec<&str> = vec!["entry", "zone"];
     head.extend(ledger_csv::CSV_COLUMNS);
     head.extend(ledger_csv::CSV_OPTIONAL_COLUMNS);
-    head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by"]);
+    head.extend(["unit_value", "reverses", "reversed_by", "booked_at", "booked_by", "on_behalf_by"]);
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&head).map_err(internal)?;
     let text = |d: Option<Decimal>| d.map(|d| numbers.export(&d.to_string())).unwrap_or_default();
@@ -503,6 +503,8 @@ fn csv_of(
             id(e.reversed_by.map(|r| r.0)),
             e.booked_at.clone(),
             csv_safe(&e.booked_by),
+            // Empty, or who made the token it was booked with on `booked_by`'s behalf.
+            e.on_behalf_by.as_deref().map(csv_safe).unwrap_or_default(),
         ])
         .map_err(internal)?;
     }

@@ -256,7 +256,8 @@ fn bearer(token: &str) -> Request<Body> {
 #[tokio::test]
 async fn a_deactivated_users_session_and_token_stop_at_once() {
     let t = test_app(false).await;
-    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report").await.unwrap();
+    let (_, token) =
+        pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report", 90, t.now()).await.unwrap();
     let viewer = t.as_role(Some(Role::Viewer));
     let anon = t.as_role(None);
     // Positive control: both work before.
@@ -268,10 +269,31 @@ async fn a_deactivated_users_session_and_token_stop_at_once() {
     assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
     assert_eq!(viewer.get("/api/v1/zones").await.status, StatusCode::UNAUTHORIZED);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::UNAUTHORIZED);
-    // Reactivated, the token works again (it was not revoked); the session stays ended.
+    // Reactivated, the token stays revoked (issue 12: deactivation ends it, in the same
+    // transaction, with an audit row); the session stays ended.
     admin.post_form(&format!("/admin/users/{id}"), "role=viewer&active=on").await;
-    assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::OK);
+    assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::UNAUTHORIZED);
     assert_eq!(viewer.get("/api/v1/zones").await.status, StatusCode::UNAUTHORIZED);
+    let trail: Vec<(String, String)> = sqlx::query_as(
+        "SELECT action, detail FROM audit_log WHERE action IN ('user.update', 'token.revoke') ORDER BY id",
+    )
+    .fetch_all(&t.pool)
+    .await
+    .unwrap();
+    let token_id: i64 = sqlx::query_scalar("SELECT id FROM api_tokens").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(
+        trail,
+        [
+            ("token.revoke".into(), "of t-viewer: user deactivated".into()),
+            (
+                "user.update".into(),
+                format!(
+                    "t-viewer: role viewer -> viewer, active true -> false; sessions ended; revoked token {token_id}"
+                )
+            ),
+            ("user.update".into(), "t-viewer: role viewer -> viewer, active false -> true; sessions ended".into()),
+        ]
+    );
 }
 
 #[tokio::test]
@@ -281,7 +303,7 @@ async fn user_ids_are_never_reused_even_after_a_delete_behind_the_apps_back() {
     assert!(err.to_string().contains("users are deactivated, not deleted"), "{err}");
     let (last, name): (i64, String) =
         sqlx::query_as("SELECT id, name FROM users ORDER BY id DESC LIMIT 1").fetch_one(&t.pool).await.unwrap();
-    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", &name, "old").await.unwrap();
+    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", &name, "old", 90, t.now()).await.unwrap();
     let anon = t.as_role(None);
     assert_eq!(anon.send(bearer(&token)).await.status, StatusCode::OK, "positive control");
 
@@ -357,6 +379,7 @@ async fn every_column_is_chained() {
         import_id: None,
         booked_at: "",
         booked_by: "",
+        on_behalf_by: None,
     };
     let tables = [
         ("ledger_entries", ledger_entry_row(&entry, &stamp), &LEDGER_0003[..]),
@@ -385,20 +408,25 @@ async fn every_column_is_chained() {
     }
 }
 
+/// A zone (1) with a draft case (1) and its driver (1), written as raw SQL into a database of
+/// an older schema (a test of what a later migration does with older rows adds its own).
+pub(crate) const OLD_ZONE: [&str; 3] = [
+    "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
+     VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
+    "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
+         ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
+     VALUES (1, 1, 1, 'Base', 36, '2025-01', 0, 0, '1', 'draft', 't', 'u', 't', 'u')",
+    "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
+         escalation, created_at, created_by) VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '2', '3', '0.2', '0', 't', 'u')",
+];
+
 /// Rows written before migration 0007 are sealed once, in id order; a row slipped in without
 /// a hash later is not sealed but reported.
 #[tokio::test]
 async fn rows_from_before_the_chain_are_sealed_once() {
     let dir = tempfile::tempdir().unwrap();
     let pool = crate::helpers::pool_before(dir.path(), "0007").await;
-    for sql in [
-        "INSERT INTO zones (id, code, name, status, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 'OLD-1', 'Old zone', 'measuring', 't', 'u', 't', 'u')",
-        "INSERT INTO case_versions (id, zone_id, version, label, horizon_months, start_month, go_live_offset,
-             ramp_up_months, success_probability, state, created_at, created_by, updated_at, updated_by)
-         VALUES (1, 1, 1, 'Base', 36, '2025-01', 0, 0, '1', 'draft', 't', 'u', 't', 'u')",
-        "INSERT INTO benefit_drivers (id, case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value,
-             escalation, created_at, created_by) VALUES (1, 1, 'Energy', 'energy', 'kWh', '1', '2', '3', '0.2', '0', 't', 'u')",
+    for sql in OLD_ZONE.into_iter().chain([
         "UPDATE case_versions SET state = 'approved' WHERE id = 1",
         "INSERT INTO ledger_entries (zone_id, case_id, kind, driver_id, period, method, quantity, unit_value, amount,
              evidence, booked_at, booked_by)
@@ -406,7 +434,7 @@ async fn rows_from_before_the_chain_are_sealed_once() {
                 (1, 1, 'saving', 1, '2025-03', 'direct', '50', '0.2', '10', 'meter', 't', 'u')",
         "INSERT INTO audit_log (at, actor, action, subject) VALUES ('t', 'u', 'zone.create', 'zone 1'),
                                                                   ('t', 'u', 'ledger.book', 'entry 1')",
-    ] {
+    ]) {
         sqlx::query(sql).execute(&pool).await.unwrap();
     }
     db::migrate(&pool).await.unwrap();

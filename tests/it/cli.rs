@@ -136,23 +136,26 @@ fn tokens_never_appear_in_logs() {
     assert!(!log.contains(&token[4..]), "part of the token leaked into the log");
 }
 
+/// `user add NAME --role ROLE` with its password on standard input.
+fn add_user(url: &str, name: &str, role: &str) -> std::process::Output {
+    let mut child = Command::new(BIN)
+        .args(["--database-url", url, "user", "add", name, "--role", role])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
+    child.wait_with_output().unwrap()
+}
+
 /// The command line adds users through the same write path as the admin page, so the same
 /// name rule holds (a 199-character name once made every Idempotency-Key of its user a 422).
 #[test]
 fn user_add_follows_the_admin_page_rules() {
     let dir = tempfile::tempdir().unwrap();
     let url = db_url(&dir);
-    let add = |name: &str| {
-        let mut child = Command::new(BIN)
-            .args(["--database-url", &url, "user", "add", name, "--role", "controller"])
-            .stdin(Stdio::piped())
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
-        child.stdin.take().unwrap().write_all(b"a long enough password\n").unwrap();
-        child.wait_with_output().unwrap()
-    };
+    let add = |name: &str| add_user(&url, name, "controller");
     let long = "c".repeat(199);
     let out = add(&long);
     assert!(!out.status.success());
@@ -170,4 +173,32 @@ fn user_add_follows_the_admin_page_rules() {
         String::from_utf8_lossy(&out.stderr).trim(),
         "error: name: a user named plant.controller already exists; nothing was changed"
     );
+}
+
+/// `token create --days` goes through the admin page's rule (1 to 365, default 90) and says
+/// until when the token works.
+#[test]
+fn token_create_takes_its_life_in_days() {
+    let dir = tempfile::tempdir().unwrap();
+    let url = db_url(&dir);
+    assert!(add_user(&url, "script.owner", "viewer").status.success());
+    let create = |days: &str| {
+        Command::new(BIN)
+            .args(["--database-url", &url, "token", "create", "script.owner", "--days", days])
+            .output()
+            .unwrap()
+    };
+    let out = create("366");
+    assert!(!out.status.success());
+    assert_eq!(
+        String::from_utf8_lossy(&out.stderr).trim(),
+        "error: days: a whole number of days from 1 to 365 (empty: 90); nothing was changed"
+    );
+    // Positive control: a week.
+    let out = create("7");
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let until = (time::OffsetDateTime::now_utc() + time::Duration::days(7)).date();
+    let said = String::from_utf8_lossy(&out.stderr);
+    assert!(said.contains(&format!("works until {until} (UTC")), "{said}");
+    assert!(String::from_utf8_lossy(&out.stdout).trim().starts_with("plt_"));
 }

@@ -77,6 +77,11 @@ impl Answer {
 }
 
 impl TestApp {
+    /// The test clock's time.
+    pub fn now(&self) -> time::OffsetDateTime {
+        pilot_ledger::auth::Clock::now(self.clock.as_ref())
+    }
+
     /// The same app, sending requests as `role` (or anonymously with `None`).
     pub fn as_role(&self, role: Option<Role>) -> TestApp {
         let mut t = self.clone();

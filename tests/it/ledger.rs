@@ -230,7 +230,7 @@ async fn bad_bookings_name_their_field_and_write_nothing() {
     assert_eq!(v.get(&format!("/zones/{}/ledger", z.id)).await.status, StatusCode::OK);
 }
 
-fn multipart(name: &str, csv: &str) -> Request<Body> {
+pub(crate) fn multipart(name: &str, csv: &str) -> Request<Body> {
     let boundary = "----pilot-ledger-test-boundary";
     let body = format!(
         "--{boundary}\r\nContent-Disposition: form-data; name=\"file\"; filename=\"{name}\"\r\nContent-Type: text/csv\r\n\r\n{csv}\r\n--{boundary}--\r\n"
@@ -304,7 +304,8 @@ async fn csv_import_is_all_or_nothing_and_once_only() {
 async fn eight_writers_book_four_thousand_entries_exactly_once() {
     let t = test_app(false).await;
     let z = zone_with_baseline(&t, "CON-1").await;
-    let (_, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-controller", "load").await.unwrap();
+    let (_, token) =
+        pilot_ledger::app::users::issue_token(&t.pool, "test", "t-controller", "load", 90, t.now()).await.unwrap();
     let anon = t.as_role(None);
     let mut writers = Vec::new();
     for w in 0..8 {

@@ -75,7 +75,7 @@ async fn call(t: &TestApp, method: &Method, path: &str, role: Option<Role>) -> A
 #[tokio::test]
 async fn role_by_route_matrix() {
     let mut t = test_app(true).await;
-    pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "matrix").await.unwrap();
+    pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "matrix", 90, t.now()).await.unwrap();
     let mut table = routes();
     // Signing out kills the session the rest of the walk uses: do it last.
     table.sort_by_key(|r| r.path == "/logout");
@@ -176,7 +176,8 @@ fn bearer(uri: &str, token: &str) -> Request<Body> {
 async fn tokens_carry_the_role_and_revocation_is_immediate() {
     let t = test_app(true).await;
     let anon = t.as_role(None);
-    let (id, token) = pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report").await.unwrap();
+    let (id, token) =
+        pilot_ledger::app::users::issue_token(&t.pool, "test", "t-viewer", "report", 90, t.now()).await.unwrap();
     assert_eq!(anon.send(bearer("/api/v1/zones", &token)).await.status, StatusCode::OK);
     let write = Request::post("/api/v1/zones")
         .header(header::AUTHORIZATION, format!("Bearer {token}"))
