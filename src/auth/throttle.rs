@@ -21,9 +21,9 @@ use std::sync::Mutex;
 use std::sync::atomic::{AtomicU64, Ordering};
 use time::{Duration, OffsetDateTime};
 
-/// Failures of one (account, address) pair answered normally before the back-off starts.
+/// Failures of one (account, address) pair before it backs off.
 pub const PAIR_FREE_FAILURES: u32 = 5;
-/// The back-off after the first failure beyond the free ones; it doubles with each further one.
+/// The back-off after the [`PAIR_FREE_FAILURES`]th failure; it doubles with each further one.
 pub const PAIR_BACKOFF_START: Duration = Duration::seconds(30);
 /// The longest back-off of a pair.
 pub const PAIR_BACKOFF_CAP: Duration = Duration::minutes(15);
@@ -44,10 +44,10 @@ pub const MAX_RECORDS: usize = 100_000;
 /// Characters of a sign-in name used as its key (longer names cannot exist).
 const KEY_CHARS: usize = 64;
 
-/// How long a pair with `failures` recent failures must wait after its last failure, if at all.
-/// 30 s after the 6th failure, then 1, 2, 4, 8 minutes, then 15 minutes at most.
+/// How long a pair with `failures` recent failures must wait after its last failure, if at all:
+/// 30 s after the 5th failure, then 1, 2, 4, 8 minutes, then 15 minutes at most.
 pub fn pair_backoff(failures: u32) -> Option<Duration> {
-    let beyond = failures.checked_sub(PAIR_FREE_FAILURES + 1)?;
+    let beyond = failures.checked_sub(PAIR_FREE_FAILURES)?;
     // 2^5 x 30 s already exceeds the cap: no need to shift further.
     let wait = PAIR_BACKOFF_START * (1_i32 << beyond.min(5));
     Some(wait.min(PAIR_BACKOFF_CAP))
@@ -168,25 +168,10 @@ mod tests {
     fn pair_backoff_doubles_from_30_seconds_to_15_minutes() {
         // OWASP Authentication Cheat Sheet, "Account Lockout": an exponential back-off per
         // account and source instead of a lockout.
-        let waits: Vec<Option<i64>> = (0..=12).map(|n| pair_backoff(n).map(|d| d.whole_seconds())).collect();
-        assert_eq!(
-            waits,
-            [
-                None,
-                None,
-                None,
-                None,
-                None,
-                None,
-                Some(30),
-                Some(60),
-                Some(120),
-                Some(240),
-                Some(480),
-                Some(900),
-                Some(900)
-            ]
-        );
+        let waits: Vec<Option<i64>> = (0..=11).map(|n| pair_backoff(n).map(|d| d.whole_seconds())).collect();
+        let none = [None; 5];
+        assert_eq!(waits[..5], none);
+        assert_eq!(waits[5..], [Some(30), Some(60), Some(120), Some(240), Some(480), Some(900), Some(900)]);
         assert_eq!(pair_backoff(u32::MAX), Some(PAIR_BACKOFF_CAP));
     }
 
@@ -200,15 +185,15 @@ mod tests {
     #[test]
     fn a_pair_backs_off_and_others_do_not() -> Result<(), time::error::ComponentRange> {
         let (t, c) = (Throttle::default(), clock()?);
-        for _ in 0..6 {
+        for _ in 0..5 {
             assert_eq!(t.pair_wait("Admin", "10.0.0.1", &c), None);
             t.fail("Admin", "10.0.0.1", &c);
         }
-        // Sixth failure: 30 s, the name's case and spaces do not matter.
+        // Fifth failure: 30 s; the name's case and spaces do not matter.
         assert_eq!(t.pair_wait(" admin ", "10.0.0.1", &c), Some(Duration::seconds(30)));
         assert_eq!(t.pair_wait("admin", "10.0.0.2", &c), None, "another address");
         assert_eq!(t.pair_wait("viewer", "10.0.0.1", &c), None, "another name from the same address");
-        assert_eq!(t.account_delay("admin", &c), ACCOUNT_DELAY_CAP, "six failures of the name");
+        assert_eq!(t.account_delay("admin", &c), std::time::Duration::from_secs(1), "five failures of the name");
         assert_eq!(t.account_delay("viewer", &c), std::time::Duration::ZERO);
         c.advance(Duration::seconds(20));
         assert_eq!(t.pair_wait("admin", "10.0.0.1", &c), Some(Duration::seconds(10)));
@@ -233,7 +218,7 @@ mod tests {
         }
         t.succeed("lead", "10.0.0.1");
         assert_eq!(t.account_delay("lead", &c), std::time::Duration::from_millis(250));
-        for _ in 0..6 {
+        for _ in 0..5 {
             t.fail("lead", "10.0.0.1", &c);
         }
         assert_eq!(t.pair_wait("lead", "10.0.0.1", &c), Some(Duration::seconds(30)), "counted from zero again");

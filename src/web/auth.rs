@@ -260,7 +260,11 @@ fn login_failed(form: &LoginForm, status: StatusCode, message: String) -> Result
 fn backing_off(form: &LoginForm, wait: Duration) -> Result<Response, AppError> {
     let seconds = wait.whole_seconds() + i64::from(wait.subsec_nanoseconds() > 0);
     let seconds = seconds.max(1);
-    let when = if seconds < 120 { format!("{seconds} seconds") } else { format!("{} minutes", (seconds + 59) / 60) };
+    let when = match seconds {
+        1 => "1 second".to_string(),
+        s if s < 120 => format!("{s} seconds"),
+        s => format!("{} minutes", (s + 59) / 60),
+    };
     let mut res = login_failed(
         form,
         StatusCode::TOO_MANY_REQUESTS,

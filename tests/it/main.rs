@@ -19,3 +19,4 @@ mod pages;
 mod portfolio;
 mod realized;
 mod security;
+mod signin;
