@@ -116,32 +116,59 @@ impl Throttle {
 
     /// If the pair (`account`, `address`) is backing off now, how long until it may try again.
     pub fn pair_wait(&self, account: &str, address: &str, clock: &dyn Clock) -> Option<Duration> {
-        let now = clock.now();
-        let counts = self.counts();
-        let record = counts.pairs.get(&(account_key(account), address.to_string()))?;
+        Self::wait_of(&self.counts(), &(account_key(account), address.to_string()), clock.now())
+    }
+
+    fn wait_of(counts: &Counts, pair: &(String, String), now: OffsetDateTime) -> Option<Duration> {
+        let record = counts.pairs.get(pair)?;
         let until = record.last + pair_backoff(live(Some(record), PAIR_MEMORY, now))?;
         (until > now).then(|| until - now)
     }
 
-    /// How long to wait before answering a sign-in for `account` now.
+    /// How long a sign-in for `account` would wait now.
     pub fn account_delay(&self, account: &str, clock: &dyn Clock) -> std::time::Duration {
         let now = clock.now();
         account_delay(live(self.counts().accounts.get(&account_key(account)), ACCOUNT_MEMORY, now))
     }
 
-    /// Record a failed sign-in of `account` from `address`.
-    pub fn fail(&self, account: &str, address: &str, clock: &dyn Clock) {
+    /// Start a sign-in of `account` from `address`: `Err(wait)` while the pair backs off (the
+    /// password is then not checked); otherwise the delay to wait before checking it. The
+    /// attempt counts as a failure at once, in the same lock as the check, so that a burst of
+    /// concurrent guesses cannot all pass before the first is counted; [`Self::succeed`] takes
+    /// it back.
+    pub fn begin(&self, account: &str, address: &str, clock: &dyn Clock) -> Result<std::time::Duration, Duration> {
         let now = clock.now();
-        let key = account_key(account);
+        let pair = (account_key(account), address.to_string());
         let mut counts = self.counts();
-        bump(&mut counts.pairs, (key.clone(), address.to_string()), PAIR_MEMORY, now);
-        bump(&mut counts.accounts, key, ACCOUNT_MEMORY, now);
+        if let Some(wait) = Self::wait_of(&counts, &pair, now) {
+            return Err(wait);
+        }
+        let delay = account_delay(live(counts.accounts.get(&pair.0), ACCOUNT_MEMORY, now));
+        Self::count(&mut counts, pair, now);
+        Ok(delay)
     }
 
-    /// Forget the pair's failures after a success. The account's other failures stay until they
-    /// age out: someone else may be guessing it from elsewhere.
+    fn count(counts: &mut Counts, (account, address): (String, String), now: OffsetDateTime) {
+        bump(&mut counts.pairs, (account.clone(), address), PAIR_MEMORY, now);
+        bump(&mut counts.accounts, account, ACCOUNT_MEMORY, now);
+    }
+
+    /// A failed sign-in of `account` from `address`, outside [`Self::begin`] (tests).
+    #[cfg(test)]
+    fn fail(&self, account: &str, address: &str, clock: &dyn Clock) {
+        Self::count(&mut self.counts(), (account_key(account), address.to_string()), clock.now());
+    }
+
+    /// The attempt begun by [`Self::begin`] succeeded: forget the pair's failures and take back
+    /// the attempt's count on the account. The account's other failures stay until they age
+    /// out: someone else may be guessing it from elsewhere.
     pub fn succeed(&self, account: &str, address: &str) {
-        self.counts().pairs.remove(&(account_key(account), address.to_string()));
+        let key = account_key(account);
+        let mut counts = self.counts();
+        counts.pairs.remove(&(key.clone(), address.to_string()));
+        if let Some(r) = counts.accounts.get_mut(&key) {
+            r.failures = r.failures.saturating_sub(1);
+        }
     }
 
     /// Note one password verification by sign-in.
@@ -211,11 +238,25 @@ mod tests {
     }
 
     #[test]
+    fn an_attempt_counts_before_it_is_checked() -> Result<(), time::error::ComponentRange> {
+        let (t, c) = (Throttle::default(), clock()?);
+        // Five attempts begun at once (none finished yet): the sixth is already refused.
+        let delays: Vec<_> = (0..5).map(|_| t.begin("lead", "10.0.0.1", &c)).collect();
+        let ms = |d: u64| Ok(std::time::Duration::from_millis(d));
+        assert_eq!(delays, [ms(0), ms(0), ms(0), ms(250), ms(500)]);
+        assert_eq!(t.begin("lead", "10.0.0.1", &c), Err(Duration::seconds(30)));
+        assert_eq!(t.begin("lead", "10.0.0.2", &c), ms(1000), "another address waits, then is checked");
+        Ok(())
+    }
+
+    #[test]
     fn success_clears_the_pair_only() -> Result<(), time::error::ComponentRange> {
         let (t, c) = (Throttle::default(), clock()?);
         for _ in 0..3 {
             t.fail("lead", "10.0.0.1", &c);
         }
+        // The successful attempt itself is taken back; the three failures stay.
+        assert_eq!(t.begin("lead", "10.0.0.1", &c), Ok(std::time::Duration::from_millis(250)));
         t.succeed("lead", "10.0.0.1");
         assert_eq!(t.account_delay("lead", &c), std::time::Duration::from_millis(250));
         for _ in 0..5 {

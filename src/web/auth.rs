@@ -242,6 +242,20 @@ impl<S: Send + Sync> FromRequestParts<S> for ClientAddr {
     }
 }
 
+/// The address sign-in throttling counts by: IPv4 as is (IPv4-mapped IPv6 included), IPv6 by
+/// its /64, since one host or subscriber commonly holds a whole /64 (common practice) and could
+/// otherwise change address at every attempt.
+fn throttle_address(ip: Option<IpAddr>) -> String {
+    match ip.map(|ip| ip.to_canonical()) {
+        None => "unknown".to_string(),
+        Some(IpAddr::V4(v4)) => v4.to_string(),
+        Some(IpAddr::V6(v6)) => {
+            let s = v6.segments();
+            format!("{:x}:{:x}:{:x}:{:x}::/64", s[0], s[1], s[2], s[3])
+        }
+    }
+}
+
 /// A fixed argon2id hash to verify against for unknown names, so that unknown and known
 /// names take the same time and get the same answer (ASVS 4.0.3 V2.2.1 / V3.2.1 intent).
 fn dummy_hash() -> &'static str {
@@ -285,12 +299,12 @@ pub async fn login(
     super::FormBody(form): super::FormBody<LoginForm>,
 ) -> Result<Response, AppError> {
     let clock = state.clock.as_ref();
-    let address = addr.map_or_else(|| "unknown".to_string(), |a| a.to_string());
-    if let Some(wait) = state.throttle.pair_wait(&form.name, &address, clock) {
-        return backing_off(&form, wait);
-    }
+    let address = throttle_address(addr);
+    let delay = match state.throttle.begin(&form.name, &address, clock) {
+        Ok(delay) => delay,
+        Err(wait) => return backing_off(&form, wait),
+    };
     // Slows a guesser spread over many addresses; the right password still signs in after it.
-    let delay = state.throttle.account_delay(&form.name, clock);
     if !delay.is_zero() {
         tokio::time::sleep(delay).await;
     }
@@ -310,11 +324,10 @@ pub async fn login(
     let user = candidate.filter(|u| matches && usable && u.active);
     let now = rfc3339(clock.now());
     let Some(user) = user else {
-        state.throttle.fail(&form.name, &address, clock);
         let mut tx = db::begin_write(&state.pool).await?;
         let subject = format!("account {}", form.name.trim().chars().take(64).collect::<String>());
-        db::audit::record(&mut tx, &now, "anonymous", "sign_in_failed", &subject, &format!("address:{address}"))
-            .await?;
+        let seen = addr.map_or_else(|| "unknown".to_string(), |a| a.to_string());
+        db::audit::record(&mut tx, &now, "anonymous", "sign_in_failed", &subject, &format!("address:{seen}")).await?;
         tx.commit().await?;
         return login_failed(&form, StatusCode::UNAUTHORIZED, "Unknown user name or wrong password.".into());
     };
@@ -386,6 +399,18 @@ impl From<&Principal> for Nav {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn ipv6_is_throttled_by_its_64_and_mapped_ipv4_as_ipv4() -> Result<(), std::net::AddrParseError> {
+        let of = |s: &str| s.parse::<IpAddr>().map(|ip| throttle_address(Some(ip)));
+        assert_eq!(of("2001:db8:1:2:aaaa::1")?, "2001:db8:1:2::/64");
+        assert_eq!(of("2001:db8:1:2:bbbb::9")?, of("2001:db8:1:2::77")?);
+        assert_ne!(of("2001:db8:1:3::1")?, of("2001:db8:1:2::1")?);
+        assert_eq!(of("::ffff:10.0.0.7")?, "10.0.0.7");
+        assert_eq!(of("10.0.0.7")?, "10.0.0.7");
+        assert_eq!(throttle_address(None), "unknown");
+        Ok(())
+    }
 
     #[test]
     fn next_is_a_same_site_path_or_home() {
