@@ -27,7 +27,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let pool = prepare(&config.database_url, !args.no_demo).await?;
             let listener =
                 TcpListener::bind(args.addr).await.with_context(|| format!("cannot listen on {}", args.addr))?;
-            serve(listener, pool, args.secure_cookies).await
+            serve(listener, pool, &args).await
         }
         Command::Migrate => {
             open(&config.database_url).await?;
@@ -230,14 +230,15 @@ pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::Load
 /// Serve on `listener` until Ctrl-C or SIGTERM; logs the bound address (port 0 picks a free
 /// one). A graceful stop lets requests finish, then checkpoints the WAL into the database
 /// file and closes it, so that the `.db` file alone is complete.
-pub async fn serve(listener: TcpListener, pool: SqlitePool, secure_cookies: bool) -> anyhow::Result<()> {
+pub async fn serve(listener: TcpListener, pool: SqlitePool, args: &ServeArgs) -> anyhow::Result<()> {
     let addr = listener.local_addr()?;
     let stop = stop_signal();
     tracing::info!(%addr, "listening on http://{addr}");
     axum::serve(
         listener,
-        app(AppState::new(pool.clone(), Arc::new(SystemClock), secure_cookies))
-            .into_make_service_with_connect_info::<SocketAddr>(),
+        app(AppState::new(pool.clone(), Arc::new(SystemClock), args.secure_cookies)
+            .with_allowed_hosts(args.allowed_hosts.clone()))
+        .into_make_service_with_connect_info::<SocketAddr>(),
     )
     .with_graceful_shutdown(stop)
     .await?;

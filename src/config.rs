@@ -103,10 +103,70 @@ pub struct ServeArgs {
     /// Mark cookies Secure: set this when the server is reached over TLS (behind a proxy).
     #[arg(long, env = "PILOT_LEDGER_SECURE_COOKIES")]
     pub secure_cookies: bool,
+    /// A Host header this server answers to, as clients send it (`ledger.plant.example`, or
+    /// `ledger.plant.example:8443` when they reach a port other than 80 / 443); repeat the flag
+    /// or separate with commas. Requests naming another host are refused with 400 (against DNS
+    /// rebinding and forged Host headers). Unset: any host is accepted.
+    #[arg(long = "allowed-host", env = "PILOT_LEDGER_ALLOWED_HOSTS", value_delimiter = ',', value_parser = parse_allowed_host)]
+    pub allowed_hosts: Vec<String>,
 }
 
 impl Default for ServeArgs {
     fn default() -> Self {
-        Self { addr: SocketAddr::from(([127, 0, 0, 1], 8080)), no_demo: false, secure_cookies: false }
+        Self {
+            addr: SocketAddr::from(([127, 0, 0, 1], 8080)),
+            no_demo: false,
+            secure_cookies: false,
+            allowed_hosts: Vec::new(),
+        }
+    }
+}
+
+/// One `--allowed-host` value: a host with an optional port, lower case; not a URL.
+pub fn parse_allowed_host(value: &str) -> Result<String, String> {
+    let host = value.trim().to_ascii_lowercase();
+    let valid = !host.is_empty()
+        && host.bytes().all(|b| b.is_ascii_alphanumeric() || b"-.:[]".contains(&b))
+        && !host.starts_with(':')
+        && !host.ends_with(':');
+    if valid {
+        Ok(host)
+    } else {
+        Err(format!(
+            "{value:?} is not a host name with an optional port as sent in the Host header \
+             (ledger.plant.example or ledger.plant.example:8443); give no scheme or path"
+        ))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn allowed_hosts_repeat_or_split_on_commas() -> Result<(), clap::Error> {
+        let c = Config::try_parse_from([
+            "pilot-ledger",
+            "serve",
+            "--allowed-host",
+            "Ledger.Plant.Example",
+            "--allowed-host",
+            "ledger.plant.example:8443,127.0.0.1:8080",
+        ])?;
+        let Some(Command::Serve(args)) = c.command else {
+            return Err(clap::Error::new(clap::error::ErrorKind::InvalidSubcommand));
+        };
+        assert_eq!(args.allowed_hosts, ["ledger.plant.example", "ledger.plant.example:8443", "127.0.0.1:8080"]);
+        let none = Config::try_parse_from(["pilot-ledger", "serve"])?;
+        assert!(matches!(none.command, Some(Command::Serve(a)) if a.allowed_hosts.is_empty()));
+        Ok(())
+    }
+
+    #[test]
+    fn an_allowed_host_is_not_a_url() {
+        for bad in ["https://ledger.plant.example", "ledger.plant.example/", "", "ledger plant", "host:"] {
+            assert!(parse_allowed_host(bad).is_err(), "{bad:?}");
+        }
+        assert_eq!(parse_allowed_host(" [::1]:8080 "), Ok("[::1]:8080".to_string()));
     }
 }

@@ -8,7 +8,7 @@ mod secret;
 mod throttle;
 
 pub use clock::{Clock, ManualClock, SystemClock};
-pub use password::{PasswordError, hash_password, parse_new_password, verify_password};
+pub use password::{PasswordError, hash_password, parse_new_password, usable_hash, verify_password};
 pub use role::{Permission, Role};
 pub use secret::{Secret, hash_secret, new_secret, sha256_hex};
-pub use throttle::{Throttle, ThrottleRule};
+pub use throttle::{Throttle, account_key};

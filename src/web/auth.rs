@@ -8,7 +8,7 @@
 //! same injectable clock as everything else and the store needs no second sqlx.
 
 use super::{AppError, AppState};
-use crate::auth::{Permission, Role, Secret, Throttle, hash_password, hash_secret, new_secret, verify_password};
+use crate::auth::{Permission, Role, Secret, hash_password, hash_secret, new_secret, usable_hash, verify_password};
 use crate::db::{self, User};
 use askama::Template;
 use axum::extract::connect_info::ConnectInfo;
@@ -156,8 +156,11 @@ pub async fn authorize(State(state): State<AppState>, req: Request, next: Next) 
 
 async fn authorize_inner(state: &AppState, mut req: Request, next: Next) -> Result<Response, AppError> {
     let path = req.extensions().get::<MatchedPath>().map(|p| p.as_str().to_string()).unwrap_or_default();
+    // axum answers HEAD with the GET handler (body dropped), so HEAD needs what GET needs
+    // (RFC 9110 section 9.3.2: HEAD is GET without the content).
+    let method = if req.method() == Method::HEAD { Method::GET } else { req.method().clone() };
     // Fail closed: a route missing from the table needs the highest permission.
-    let permission = state.permissions.get(&(req.method().clone(), path.clone())).copied().unwrap_or(Permission::Admin);
+    let permission = state.permissions.get(&(method.clone(), path.clone())).copied().unwrap_or(Permission::Admin);
     let who = principal(state, req.headers()).await?;
     let api = path.starts_with("/api/");
     match (&who, permission) {
@@ -165,8 +168,7 @@ async fn authorize_inner(state: &AppState, mut req: Request, next: Next) -> Resu
         (None, _) if api => return Err(AppError::Unauthenticated),
         (None, _) => {
             let target = req.uri().path_and_query().map_or("/zones", |p| p.as_str());
-            let next_param =
-                if req.method() == Method::GET { format!("?next={}", urlencode(target)) } else { String::new() };
+            let next_param = if method == Method::GET { format!("?next={}", urlencode(target)) } else { String::new() };
             return Ok(Redirect::to(&format!("/login{next_param}")).into_response());
         }
         (Some(p), needed) if !p.role().allows(needed) => return Err(AppError::Forbidden),
@@ -187,9 +189,37 @@ fn urlencode(s: &str) -> String {
         .collect()
 }
 
-/// Only same-site relative paths may be redirect targets (no open redirect, ASVS 4.0.3 V5.1.5).
+/// Only a same-site path may be a redirect target (no open redirect, ASVS 4.0.3 V5.1.5; OWASP
+/// Unvalidated Redirects and Forwards Cheat Sheet): visible ASCII as sent, and once
+/// percent-decoded one leading `/`, no `//`, no `\`, no control character or white space
+/// (browsers drop a tab or newline, so `/\t/evil.example` becomes `//evil.example`, another
+/// site). Anything else goes to `/`.
 fn safe_next(next: &str) -> &str {
-    if next.starts_with('/') && !next.starts_with("//") && !next.contains('\\') { next } else { "/zones" }
+    let safe = next.bytes().all(|b| b.is_ascii_graphic())
+        && percent_decode(next).is_some_and(|path| {
+            path.starts_with('/')
+                && !path.contains("//")
+                && !path.contains('\\')
+                && !path.chars().any(|c| c.is_control() || c.is_whitespace())
+        });
+    if safe { next } else { "/" }
+}
+
+/// `%XX` sequences decoded; `None` for a broken sequence or bytes that are not UTF-8.
+fn percent_decode(s: &str) -> Option<String> {
+    let (mut out, mut bytes) = (Vec::with_capacity(s.len()), s.bytes());
+    while let Some(b) = bytes.next() {
+        if b == b'%' {
+            let hex = [bytes.next()?, bytes.next()?];
+            if !hex.iter().all(u8::is_ascii_hexdigit) {
+                return None;
+            }
+            out.push(u8::from_str_radix(std::str::from_utf8(&hex).ok()?, 16).ok()?);
+        } else {
+            out.push(b);
+        }
+    }
+    String::from_utf8(out).ok()
 }
 
 #[derive(Template)]
@@ -233,6 +263,20 @@ impl<S: Send + Sync> FromRequestParts<S> for ClientAddr {
     }
 }
 
+/// The address sign-in throttling counts by: IPv4 as is (IPv4-mapped IPv6 included), IPv6 by
+/// its /64, since one host or subscriber commonly holds a whole /64 (common practice) and could
+/// otherwise change address at every attempt.
+fn throttle_address(ip: Option<IpAddr>) -> String {
+    match ip.map(|ip| ip.to_canonical()) {
+        None => "unknown".to_string(),
+        Some(IpAddr::V4(v4)) => v4.to_string(),
+        Some(IpAddr::V6(v6)) => {
+            let s = v6.segments();
+            format!("{:x}:{:x}:{:x}:{:x}::/64", s[0], s[1], s[2], s[3])
+        }
+    }
+}
+
 /// A fixed argon2id hash to verify against for unknown names, so that unknown and known
 /// names take the same time and get the same answer (ASVS 4.0.3 V2.2.1 / V3.2.1 intent).
 fn dummy_hash() -> &'static str {
@@ -246,7 +290,29 @@ fn login_failed(form: &LoginForm, status: StatusCode, message: String) -> Result
     Ok((status, Html(page.render()?)).into_response())
 }
 
-/// POST /login: check throttling, then the password; on success a fresh session.
+/// The answer to a pair (account, address) that is backing off: 429 with Retry-After, the
+/// password unchecked.
+fn backing_off(form: &LoginForm, wait: Duration) -> Result<Response, AppError> {
+    let seconds = wait.whole_seconds() + i64::from(wait.subsec_nanoseconds() > 0);
+    let seconds = seconds.max(1);
+    let when = match seconds {
+        1 => "1 second".to_string(),
+        s if s < 120 => format!("{s} seconds"),
+        s => format!("{} minutes", (s + 59) / 60),
+    };
+    let mut res = login_failed(
+        form,
+        StatusCode::TOO_MANY_REQUESTS,
+        format!("Too many failed sign-ins for this account from this address; try again in {when}."),
+    )?;
+    if let Ok(v) = HeaderValue::from_str(&seconds.to_string()) {
+        res.headers_mut().insert(header::RETRY_AFTER, v);
+    }
+    Ok(res)
+}
+
+/// POST /login: back-off of the (name, address) pair, the name's delay, then one password
+/// check whatever the account; on success a fresh session. See [`crate::auth::Throttle`].
 pub async fn login(
     State(state): State<AppState>,
     ClientAddr(addr): ClientAddr,
@@ -254,47 +320,39 @@ pub async fn login(
     super::FormBody(form): super::FormBody<LoginForm>,
 ) -> Result<Response, AppError> {
     let clock = state.clock.as_ref();
-    let account_key = format!("account:{}", form.name.trim().to_lowercase());
-    let address_key = format!("address:{}", addr.map_or_else(|| "unknown".to_string(), |a| a.to_string()));
-    let locked = state
-        .throttle
-        .locked_for(&account_key, Throttle::PER_ACCOUNT, clock)
-        .or_else(|| state.throttle.locked_for(&address_key, Throttle::PER_ADDRESS, clock));
-    if let Some(wait) = locked {
-        let minutes = (wait.whole_seconds() + 59) / 60;
-        let mut res = login_failed(
-            &form,
-            StatusCode::TOO_MANY_REQUESTS,
-            format!(
-                "Too many failed sign-ins for this account or from this address. Try again in {minutes} minute(s)."
-            ),
-        )?;
-        if let Ok(v) = HeaderValue::from_str(&wait.whole_seconds().max(1).to_string()) {
-            res.headers_mut().insert(header::RETRY_AFTER, v);
-        }
-        return Ok(res);
+    let address = throttle_address(addr);
+    let delay = match state.throttle.begin(&form.name, &address, clock) {
+        Ok(delay) => delay,
+        Err(wait) => return backing_off(&form, wait),
+    };
+    // Slows a guesser spread over many addresses; the right password still signs in after it.
+    if !delay.is_zero() {
+        tokio::time::sleep(delay).await;
     }
     let found = db::user_for_login(&state.pool, form.name.trim()).await?;
-    let user = match found {
-        Some((user, hash)) if user.active && verify_password(&form.password, &hash) => Some(user),
-        Some(_) => None,
-        None => {
-            // Same work and same answer as a wrong password.
-            verify_password(&form.password, dummy_hash());
-            None
-        }
+    // Exactly one argon2 verification for every name, unknown, disabled or without a usable hash
+    // (then against the dummy hash), and one answer for all failures: neither the time nor the
+    // message tells which names exist (OWASP Authentication Cheat Sheet, "Authentication and
+    // Error Messages").
+    let (candidate, stored) = found.map_or((None, None), |(user, hash)| (Some(user), Some(hash)));
+    let usable = stored.as_deref().is_some_and(usable_hash);
+    let hash = match stored.as_deref() {
+        Some(h) if usable => h,
+        _ => dummy_hash(),
     };
+    state.throttle.count_password_check();
+    let matches = verify_password(&form.password, hash);
+    let user = candidate.filter(|u| matches && usable && u.active);
     let now = rfc3339(clock.now());
     let Some(user) = user else {
-        state.throttle.fail(&account_key, clock);
-        state.throttle.fail(&address_key, clock);
         let mut tx = db::begin_write(&state.pool).await?;
         let subject = format!("account {}", form.name.trim().chars().take(64).collect::<String>());
-        db::audit::record(&mut tx, &now, "anonymous", "sign_in_failed", &subject, &address_key).await?;
+        let seen = addr.map_or_else(|| "unknown".to_string(), |a| a.to_string());
+        db::audit::record(&mut tx, &now, "anonymous", "sign_in_failed", &subject, &format!("address:{seen}")).await?;
         tx.commit().await?;
         return login_failed(&form, StatusCode::UNAUTHORIZED, "Unknown user name or wrong password.".into());
     };
-    state.throttle.clear(&account_key);
+    state.throttle.succeed(&form.name, &address);
     // A fresh id at every sign-in; any session the browser had is ended (no fixation).
     if let Some(old) = cookie_value(&headers, SESSION_COOKIE) {
         db::delete_session(&state.pool, &hash_secret(&old)).await?;
@@ -355,6 +413,51 @@ impl From<&Principal> for Nav {
             role: p.role().as_str().to_string(),
             can_edit: p.role().allows(Permission::EditCases),
             is_admin: p.role().allows(Permission::Admin),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn ipv6_is_throttled_by_its_64_and_mapped_ipv4_as_ipv4() -> Result<(), std::net::AddrParseError> {
+        let of = |s: &str| s.parse::<IpAddr>().map(|ip| throttle_address(Some(ip)));
+        assert_eq!(of("2001:db8:1:2:aaaa::1")?, "2001:db8:1:2::/64");
+        assert_eq!(of("2001:db8:1:2:bbbb::9")?, of("2001:db8:1:2::77")?);
+        assert_ne!(of("2001:db8:1:3::1")?, of("2001:db8:1:2::1")?);
+        assert_eq!(of("::ffff:10.0.0.7")?, "10.0.0.7");
+        assert_eq!(of("10.0.0.7")?, "10.0.0.7");
+        assert_eq!(throttle_address(None), "unknown");
+        Ok(())
+    }
+
+    #[test]
+    fn next_is_a_same_site_path_or_home() {
+        // OWASP Unvalidated Redirects and Forwards Cheat Sheet; the tab trick is how browsers
+        // read `/\t/evil.example` (the URL parser drops tabs and newlines: WHATWG URL standard).
+        for bad in [
+            "/%09/evil.example",
+            "/\t/evil.example",
+            "//evil.example",
+            "/\\evil.example",
+            "/%5Cevil.example",
+            "https://evil.example",
+            "/%2F%2Fevil",
+            "/%2f/evil",
+            "/zones%0A",
+            "/zones/%E9",
+            "/zones/\u{e9}",
+            "/zones/%G1",
+            "/zones/%4",
+            "zones",
+            "",
+        ] {
+            assert_eq!(safe_next(bad), "/", "{bad:?}");
+        }
+        for good in ["/zones/3?x=1", "/", "/portfolio?rank=npv&budget=100000", "/cases/7/flows", "/zones?q=a%2Cb"] {
+            assert_eq!(safe_next(good), good);
         }
     }
 }

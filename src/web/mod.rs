@@ -89,6 +89,8 @@ pub struct AppState {
     /// Rendered portfolio answers, recomputed when the database has changed.
     pub answers: Arc<answers::AnswerCache>,
     permissions: Arc<HashMap<(Method, String), Permission>>,
+    /// Host headers answered (lower case); empty: any (`serve --allowed-host`).
+    allowed_hosts: Arc<[String]>,
 }
 
 impl AppState {
@@ -103,8 +105,48 @@ impl AppState {
             figures: Arc::default(),
             answers: Arc::default(),
             permissions: Arc::new(permissions),
+            allowed_hosts: Arc::new([]),
         }
     }
+
+    /// Answer only requests whose Host header is one of `hosts` (compared without case);
+    /// an empty list accepts any host.
+    #[must_use]
+    pub fn with_allowed_hosts(mut self, hosts: Vec<String>) -> Self {
+        self.allowed_hosts = hosts.into_iter().map(|h| h.to_ascii_lowercase()).collect();
+        self
+    }
+}
+
+/// Refuse (400) a request whose Host header is not an allowed host, when a list is set: a page
+/// reached through another name (DNS rebinding, a forged Host header) is not served (OWASP Web
+/// Security Testing Guide, "Testing for Host Header Injection"). HTTP/2 sends the host as the
+/// URI's authority instead.
+async fn check_host(
+    axum::extract::State(state): axum::extract::State<AppState>,
+    req: Request,
+    next: axum::middleware::Next,
+) -> axum::response::Response {
+    use axum::response::IntoResponse;
+    if state.allowed_hosts.is_empty() {
+        return next.run(req).await;
+    }
+    let host = req
+        .headers()
+        .get(header::HOST)
+        .and_then(|v| v.to_str().ok())
+        .or_else(|| req.uri().authority().map(|a| a.as_str()))
+        .unwrap_or_default()
+        .to_ascii_lowercase();
+    if state.allowed_hosts.contains(&host) {
+        return next.run(req).await;
+    }
+    let shown: String = host.chars().take(100).collect();
+    let e = AppError::BadRequest {
+        status: StatusCode::BAD_REQUEST,
+        message: format!("this server does not answer for host \"{shown}\"; use the address it is published under"),
+    };
+    if req.uri().path().starts_with("/api/") { ApiError(e).into_response() } else { e.into_response() }
 }
 
 /// One route: method, path, the permission it needs, and its handler.
@@ -216,8 +258,10 @@ pub fn app(state: AppState) -> Router {
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), site_numbers))
         .nest_service("/static", ServeDir::new(static_dir))
         .fallback(pages::not_found)
-        .with_state(state);
+        .with_state(state.clone());
+    let hosts = axum::middleware::from_fn_with_state(state.clone(), check_host);
     answer_panics(router)
+        .layer(hosts)
         // Cross-site form posts are refused by Sec-Fetch-Site / Origin (no token state needed).
         // Scripts with a Bearer token send neither header and pass; browsers cannot attach a
         // Bearer token by themselves.

@@ -53,8 +53,14 @@ impl Drop for Served {
 }
 
 pub(crate) fn serve(url: &str, log: &str) -> Served {
+    serve_with(url, log, &[])
+}
+
+/// [`serve`] with more `serve` flags.
+pub(crate) fn serve_with(url: &str, log: &str, flags: &[&str]) -> Served {
     let mut child = Command::new(BIN)
         .args(["--database-url", url, "serve", "--addr", "127.0.0.1:0"])
+        .args(flags)
         .env("RUST_LOG", log)
         .env("NO_COLOR", "1")
         .stdout(Stdio::piped())

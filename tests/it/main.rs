@@ -19,4 +19,5 @@ mod pages;
 mod portfolio;
 mod realized;
 mod security;
+mod signin;
 mod tokens;

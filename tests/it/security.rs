@@ -272,7 +272,8 @@ async fn sign_in_is_throttled_and_does_not_reveal_names() {
     for _ in 0..4 {
         anon.post_form("/login", "name=t-viewer&password=wrong+password+1").await;
     }
-    // The sixth attempt, even with the right password, is refused while the lock lasts.
+    // The sixth attempt from this address, even with the right password, is refused while the
+    // pair backs off (tests/it/signin.rs: other addresses and other names are not).
     let right = format!("name=t-viewer&password={}", PASSWORD.replace(' ', "+"));
     let locked = anon.post_form("/login", &right).await;
     assert_eq!(locked.status, StatusCode::TOO_MANY_REQUESTS);
