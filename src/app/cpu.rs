@@ -13,6 +13,9 @@ use tokio::sync::Semaphore;
 
 /// One slot per core: more would only make each piece of work slower.
 static SLOTS: LazyLock<Arc<Semaphore>> = LazyLock::new(|| Arc::new(Semaphore::new(slots())));
+/// Password hashing (argon2id, about 25 ms each) has slots of its own, so that a sign-in never
+/// queues behind a long metrics request.
+static PASSWORD_SLOTS: LazyLock<Arc<Semaphore>> = LazyLock::new(|| Arc::new(Semaphore::new(slots())));
 
 /// How many pieces of CPU-heavy work run at once.
 pub fn slots() -> usize {
@@ -26,7 +29,24 @@ where
     F: FnOnce() -> T + Send + 'static,
     T: Send + 'static,
 {
-    let slot = SLOTS.clone().acquire_owned().await.map_err(|e| Error::Internal(e.into()))?;
+    run_in(&SLOTS, work).await
+}
+
+/// Run a password hash or verification on the blocking pool, in the password slots.
+pub async fn password<T, F>(work: F) -> AppResult<T>
+where
+    F: FnOnce() -> T + Send + 'static,
+    T: Send + 'static,
+{
+    run_in(&PASSWORD_SLOTS, work).await
+}
+
+async fn run_in<T, F>(slots: &Arc<Semaphore>, work: F) -> AppResult<T>
+where
+    F: FnOnce() -> T + Send + 'static,
+    T: Send + 'static,
+{
+    let slot = slots.clone().acquire_owned().await.map_err(|e| Error::Internal(e.into()))?;
     let numbers = NumberFormat::current();
     tokio::task::spawn_blocking(move || {
         let _slot = slot;

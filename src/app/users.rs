@@ -7,9 +7,9 @@ use crate::domain::{FieldErrors, UserId, check_token_days, parse_user_name};
 use sqlx::SqlitePool;
 use time::format_description::well_known::Rfc3339;
 
-fn hashed(password: &str) -> AppResult<String> {
+async fn hashed(password: &str) -> AppResult<String> {
     let password = parse_new_password(password).map_err(|msg| invalid("password", msg))?;
-    hash_password(&password).map_err(|e| Error::Internal(e.into()))
+    super::cpu::password(move || hash_password(&password)).await?.map_err(|e| Error::Internal(e.into()))
 }
 
 /// Create a user. The name and password rules are the same whoever asks (page, CLI, first
@@ -25,7 +25,7 @@ pub async fn add_user(
     let name = e.take("name", parse_user_name(name));
     let hash = e.take("password", parse_new_password(password).map(|_| ()));
     let (Some(name), Some(())) = (name, hash) else { return Err(Error::Invalid(e)) };
-    let hash = hashed(password)?;
+    let hash = hashed(password).await?;
     let mut tx = db::begin_write(pool).await?;
     let at = db::now();
     let id = match db::insert_user(&mut tx, &name, role, &hash, &at, actor).await {
@@ -108,7 +108,7 @@ pub async fn set_password(
     account: Account<'_>,
     password: &str,
 ) -> AppResult<String> {
-    let hash = hashed(password)?;
+    let hash = hashed(password).await?;
     let mut tx = db::begin_write(pool).await?;
     let at = db::now();
     let name = match account {

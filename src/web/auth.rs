@@ -336,12 +336,14 @@ pub async fn login(
     // Error Messages").
     let (candidate, stored) = found.map_or((None, None), |(user, hash)| (Some(user), Some(hash)));
     let usable = stored.as_deref().is_some_and(usable_hash);
-    let hash = match stored.as_deref() {
+    let hash = match stored {
         Some(h) if usable => h,
-        _ => dummy_hash(),
+        _ => dummy_hash().to_string(),
     };
     state.throttle.count_password_check();
-    let matches = verify_password(&form.password, hash);
+    // Off the async threads: argon2id takes tens of milliseconds of CPU by design.
+    let password = form.password.clone();
+    let matches = crate::app::cpu::password(move || verify_password(&password, &hash)).await?;
     let user = candidate.filter(|u| matches && usable && u.active);
     let now = rfc3339(clock.now());
     let Some(user) = user else {
