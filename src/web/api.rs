@@ -101,6 +101,86 @@ async fn case_body(state: &AppState, id: i64) -> Result<Value, ApiError> {
         "metrics": metrics_json(&figures.pre_tax.metrics),
         "after_tax_metrics": figures.after_tax.as_ref().map(|v| metrics_json(&v.metrics)),
         "monthly_net_flows": figures.pre_tax.schedule.net_flows().iter().map(|f| metrics::money_text(*f)).collect::<Vec<_>>(),
+        "uncertainty": uncertainty_json(state, &full, &site, &figures.pre_tax.metrics, &today).await?,
+    }))
+}
+
+/// What the case page shows about uncertainty, at full precision: per driver the break-even
+/// quantity, the tornado's NPV at the low and high quantity and the calibration factor with its
+/// evidence; the Monte Carlo figures with their seed and trial count; the risk-adjusted and
+/// calibrated NPV. `null` (with the reason in `uncertainty_error`) when it cannot be computed.
+async fn uncertainty_json(
+    state: &AppState,
+    full: &CaseFull,
+    site: &SiteSettings,
+    metrics: &CaseMetrics,
+    today: &SiteSettings,
+) -> Result<Value, ApiError> {
+    use crate::domain::{Trials, calibration_of, case_uncertainty};
+    use crate::finance::linear::BreakEven;
+    let bases = state.figures.bases(&state.pool, today, Trials::default()).await?;
+    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
+    let (header, costs, drivers) = (full.case.header.clone(), full.costs.clone(), full.drivers.clone());
+    let (site, metrics, evidence) = (site.clone(), metrics.clone(), calibration.zones.clone());
+    let computed = app::cpu::run(move || {
+        let costs: Vec<_> = costs.iter().map(|c| &c.item).collect();
+        let drivers: Vec<_> = drivers.iter().map(|d| &d.driver).collect();
+        case_uncertainty(&header, &costs, &drivers, &site, &metrics, &calibration, Trials::default())
+    })
+    .await?;
+    let u = match computed {
+        Ok(u) => u,
+        Err(e) => return Ok(json!({ "error": format!("the uncertainty cannot be computed: {e}") })),
+    };
+    let float = |x: f64| x.is_finite().then(|| metrics::rate_text(x));
+    let drivers: Vec<Value> = u
+        .drivers
+        .iter()
+        .map(|d| {
+            let (break_even, quantity) = match d.break_even {
+                BreakEven::At(q) => ("at", float(q)),
+                BreakEven::NotNeeded => ("not_needed", None),
+                BreakEven::Never => ("never", None),
+            };
+            json!({
+                "label": d.label,
+                "kind": d.kind,
+                "unit": d.unit,
+                "quantity_low": metrics::money_text(d.low),
+                "quantity_likely": metrics::money_text(d.likely),
+                "quantity_high": metrics::money_text(d.high),
+                "npv_at_low": metrics::money_text(d.npv_low),
+                "npv_at_high": metrics::money_text(d.npv_high),
+                "break_even": break_even,
+                "break_even_quantity": quantity,
+                "calibration": {
+                    "factor": float(d.factor.factor),
+                    "measured_over_expected": d.factor.raw.and_then(float),
+                    "credibility": float(d.factor.credibility),
+                    "evidence_drivers": d.factor.drivers,
+                    "evidence_driver_months": d.factor.months,
+                },
+            })
+        })
+        .collect();
+    let sim = &u.simulation;
+    Ok(json!({
+        "npv": metrics::money_text(u.npv),
+        "risk_adjusted_npv": metrics::money_text(u.risk_adjusted),
+        "calibrated_npv": metrics::money_text(u.calibrated),
+        "drivers": drivers,
+        "tornado_order": u.tornado.iter().filter_map(|&i| u.drivers.get(i).map(|d| d.label.clone())).collect::<Vec<_>>(),
+        "calibration_zones": evidence,
+        "monte_carlo": {
+            "seed": sim.seed.to_string(),
+            "trials": sim.trials,
+            "mean": float(sim.mean),
+            "std_dev": float(sim.std_dev),
+            "p10": float(sim.p10),
+            "p50": float(sim.p50),
+            "p90": float(sim.p90),
+            "probability_npv_below_zero": float(sim.prob_negative),
+        },
     }))
 }
 

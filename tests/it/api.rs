@@ -298,3 +298,44 @@ async fn metrics_blame_a_rate_whose_discounting_overflows() {
     // Positive control: a loss of 99 % a period is a rate that discounts within range.
     metrics_of(&t, r#"{"rate": "-0.99", "flows": ["-1000", "300", "420", "680"]}"#).await;
 }
+
+#[tokio::test]
+async fn the_case_answer_carries_what_the_case_page_shows() {
+    let t = test_app(false).await;
+    let zone = t.post_json("/api/v1/zones", r#"{"code":"weld-9","name":"Weld cell 9","status":"candidate"}"#).await;
+    let zone_id = zone.json()["zone"]["id"].as_i64().unwrap();
+    let case = t.post_json(&format!("/api/v1/zones/{zone_id}/cases"), &simple_case().to_string()).await;
+    let case_id = case.json()["case"]["id"].as_i64().unwrap();
+    let u = t.get(&format!("/api/v1/cases/{case_id}")).await.json()["uncertainty"].clone();
+    // numpy-financial 1.0.0 (see zone_and_case_round_trip_with_metrics): NPV = 1000 A - 12000 =
+    // 19435.143641317074, so the annuity factor A = 31.435143641317074. By hand from it: a yearly
+    // quantity q earns q / 12 x 10 a month, so NPV(q) = q x 10 / 12 x A - 12000.
+    let a = 31.435_143_641_317_074;
+    let npv_at = |q: f64| q * 10.0 / 12.0 * a - 12_000.0;
+    let d = &u["drivers"][0];
+    assert_eq!(d["label"], "Scrap avoided");
+    assert_eq!(d["break_even"], "at");
+    close(num(&d["break_even_quantity"]), 12_000.0 * 12.0 / (10.0 * a), 1e-9);
+    close(num(&d["npv_at_low"]), npv_at(800.0), 1e-9);
+    close(num(&d["npv_at_high"]), npv_at(1500.0), 1e-9);
+    // Risk-adjusted: 0.9 x PV(benefits) - PV(costs) = 0.9 x 1000 A - 12000.
+    close(num(&u["risk_adjusted_npv"]), 0.9 * 1000.0 * a - 12_000.0, 1e-9);
+    // No measured zones: no calibration evidence, the factor is 1.
+    assert_eq!(d["calibration"]["factor"], "1");
+    assert_eq!(d["calibration"]["measured_over_expected"], Value::Null);
+    assert_eq!(u["calibration_zones"], json!([]));
+    close(num(&u["calibrated_npv"]), 19_435.143_641_317_074, 1e-9);
+    let mc = &u["monte_carlo"];
+    assert_eq!(mc["trials"], 10_000);
+    assert!(mc["seed"].as_str().unwrap().parse::<u64>().is_ok(), "{mc}");
+    // Every trial's quantity lies within 800..1500, so every NPV within npv_at(800)..npv_at(1500).
+    for key in ["mean", "p10", "p50", "p90"] {
+        let v = num(&mc[key]);
+        assert!(npv_at(800.0) <= v && v <= npv_at(1500.0), "{key} = {v}");
+    }
+    assert!(num(&mc["p10"]) <= num(&mc["p50"]) && num(&mc["p50"]) <= num(&mc["p90"]), "{mc}");
+    assert_eq!(mc["probability_npv_below_zero"], "0");
+    // The page shows the same break-even to one decimal (458.1).
+    let page = t.get(&format!("/cases/{case_id}")).await.text;
+    assert!(page.contains("458.1"), "the page's break-even");
+}
