@@ -5,7 +5,7 @@
 //! when ambiguous), MIRR, payback, discounted payback, PI, and XNPV / XIRR when dates are given.
 //! Values are decimal strings, or null where undefined.
 
-use super::{ApiError, AppError, JsonBody};
+use super::{ApiError, ApiQuery, AppError, JsonBody, NoQuery};
 use crate::domain::{FieldErrors, NumberFormat};
 use crate::finance::{self, FinanceError};
 use axum::Json;
@@ -131,7 +131,7 @@ fn input_error(e: FinanceError) -> ApiError {
 }
 
 /// POST /api/v1/metrics
-pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
+pub async fn metrics(_: ApiQuery<NoQuery>, JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
     let p = parse(&req)?;
     let mut warnings: Vec<String> = Vec::new();
     let npv = finance::npv(p.rate, &p.flows).map_err(input_error)?;
