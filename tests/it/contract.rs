@@ -123,3 +123,122 @@ async fn an_oversized_declared_body_is_a_json_413() {
     let ok = t.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["-1000", "1100"]}"#).await;
     assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
 }
+
+/// The document as served and as compiled in.
+fn document() -> serde_json::Value {
+    serde_json::from_str(include_str!("../../src/web/openapi.json")).unwrap()
+}
+
+fn permission_name(p: pilot_ledger::auth::Permission) -> &'static str {
+    use pilot_ledger::auth::Permission::*;
+    match p {
+        Public => "public",
+        SignedIn => "signed_in",
+        Read => "read",
+        EditCases => "edit_cases",
+        Ledger => "ledger",
+        Admin => "admin",
+    }
+}
+
+/// Every schema object in `v`, depth first.
+fn walk<'a>(v: &'a serde_json::Value, path: String, out: &mut Vec<(String, &'a serde_json::Value)>) {
+    match v {
+        serde_json::Value::Object(m) => {
+            out.push((path.clone(), v));
+            for (k, x) in m {
+                walk(x, format!("{path}/{k}"), out);
+            }
+        }
+        serde_json::Value::Array(a) => {
+            for (i, x) in a.iter().enumerate() {
+                walk(x, format!("{path}/{i}"), out);
+            }
+        }
+        _ => {}
+    }
+}
+
+#[test]
+fn the_document_describes_exactly_the_api_routes_with_their_statuses() {
+    let doc = document();
+    let routes: Vec<_> = pilot_ledger::web::routes().into_iter().filter(|r| r.path.starts_with("/api/")).collect();
+    assert!(routes.len() >= 18, "the API has at least 18 routes");
+    for r in &routes {
+        let method = r.method.as_str().to_ascii_lowercase();
+        let what = format!("{} {}", r.method, r.path);
+        let op = &doc["paths"][r.path][method.as_str()];
+        assert!(op.is_object(), "{what} is missing from the document");
+        assert_eq!(op["x-permission"], permission_name(r.permission), "{what}: permission");
+        let statuses: Vec<&str> = op["responses"].as_object().unwrap().keys().map(String::as_str).collect();
+        let mut needed = vec!["400", "422", "503"];
+        if r.permission != pilot_ledger::auth::Permission::Public {
+            needed.extend(["401", "403"]);
+        } else {
+            assert_eq!(op["security"], json!([]), "{what}: a public operation needs no token");
+        }
+        if r.path.contains('{') {
+            needed.push("404");
+        }
+        if op.get("requestBody").is_some() {
+            assert_eq!(op["requestBody"]["required"], true, "{what}: the body is required");
+            needed.extend(["413", "415"]);
+        }
+        for s in needed {
+            assert!(statuses.contains(&s), "{what} does not list {s}");
+        }
+        let has_success = statuses.iter().any(|s| s.starts_with('2'));
+        assert!(has_success, "{what} lists no success status");
+        for (status, answer) in op["responses"].as_object().unwrap() {
+            assert!(
+                answer["content"]["application/json"]["schema"].is_object(),
+                "{what} {status}: every answer has a JSON schema"
+            );
+        }
+        // Path parameters are exactly those of the route.
+        let in_path: Vec<&str> = r.path.split('{').skip(1).filter_map(|s| s.split('}').next()).collect();
+        let documented: Vec<&str> = op["parameters"]
+            .as_array()
+            .map(|ps| ps.iter().filter(|p| p["in"] == "path").map(|p| p["name"].as_str().unwrap()).collect())
+            .unwrap_or_default();
+        assert_eq!(documented, in_path, "{what}: path parameters");
+    }
+    // And nothing in the document that the route table does not have.
+    for (path, ops) in doc["paths"].as_object().unwrap() {
+        for method in ops.as_object().unwrap().keys() {
+            let known = routes.iter().any(|r| r.path == path && r.method.as_str().eq_ignore_ascii_case(method));
+            assert!(known, "{method} {path} is documented but not routed");
+        }
+    }
+}
+
+#[test]
+fn the_document_is_well_formed_and_integers_are_integers() {
+    let doc = document();
+    let mut nodes = Vec::new();
+    walk(&doc, String::new(), &mut nodes);
+    for (path, node) in &nodes {
+        if let Some(r) = node.get("$ref").and_then(|r| r.as_str()) {
+            let target = r.strip_prefix("#/components/schemas/").unwrap_or_else(|| panic!("{path}: {r} is not local"));
+            assert!(doc["components"]["schemas"][target].is_object(), "{path}: {r} resolves to nothing");
+        }
+        let ty = &node["type"];
+        let integer = ty == "integer" || ty.as_array().is_some_and(|a| a.contains(&json!("integer")));
+        let number_too = ty.as_array().is_some_and(|a| a.contains(&json!("number")));
+        if integer && !number_too {
+            assert_eq!(node["format"], "int64", "{path}: an integer states its format");
+            for ex in node.get("examples").and_then(|e| e.as_array()).into_iter().flatten().chain(node.get("example")) {
+                assert!(ex.is_i64(), "{path}: integer example {ex}");
+            }
+        }
+        // Every object a request sends refuses unknown fields, as JsonBody does.
+        if path.starts_with("/components/schemas/") && path.ends_with("Input") {
+            assert_eq!(node["additionalProperties"], false, "{path}: request bodies are closed");
+        }
+    }
+    // Responses stay open to new fields (the case and metrics answers grow).
+    for name in ["CaseAnswer", "MetricsAnswer", "PortfolioAnswer", "LedgerEntry"] {
+        assert!(doc["components"]["schemas"][name].get("additionalProperties").is_none(), "{name} is open");
+    }
+    assert_eq!(doc["components"]["schemas"]["MetricsInput"]["properties"]["flows"]["maxItems"], 2400);
+}
