@@ -384,6 +384,14 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
             })
         })?;
         let known = serde_json::to_value(&parsed).map_err(|e| ApiError(AppError::Internal(e.into())))?;
+        // serde builds a struct from an array too (`[null, null]` as the first two fields); a
+        // body is an object of named fields.
+        if known.is_object() && !sent.is_object() {
+            return Err(ApiError(AppError::BadRequest {
+                status: StatusCode::UNPROCESSABLE_ENTITY,
+                message: "the body must be a JSON object of named fields".into(),
+            }));
+        }
         let mut unknown = FieldErrors::default();
         unknown_fields(&sent, &known, "", &mut unknown);
         if unknown.is_empty() { Ok(Self(parsed)) } else { Err(ApiError(AppError::Invalid(unknown))) }

@@ -242,3 +242,23 @@ fn the_document_is_well_formed_and_integers_are_integers() {
     }
     assert_eq!(doc["components"]["schemas"]["MetricsInput"]["properties"]["flows"]["maxItems"], 2400);
 }
+
+#[tokio::test]
+async fn a_body_must_be_an_object_of_named_fields() {
+    let t = test_app(false).await;
+    let admin = t.as_role(Some(Role::Admin));
+    // serde would read an array as the struct's fields in order: `[null, null]` was a 200.
+    let array = admin.patch_json("/api/v1/site", "[null, null]").await;
+    assert_eq!(
+        (array.status, array.json()),
+        (StatusCode::UNPROCESSABLE_ENTITY, json!({"error": "the body must be a JSON object of named fields", "fields": []}))
+    );
+    let object = admin.patch_json("/api/v1/site", "{}").await;
+    assert_eq!(object.status, StatusCode::OK, "{}", object.text);
+
+    let flows = t.post_json("/api/v1/metrics", r#"["0.1", ["-1000", "1100"]]"#).await;
+    assert_eq!(flows.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(flows.json()["error"], "the body must be a JSON object of named fields");
+    let ok = t.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["-1000", "1100"]}"#).await;
+    assert_eq!((ok.status, ok.json()["npv"].clone()), (StatusCode::OK, json!("0")));
+}
