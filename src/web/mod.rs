@@ -377,6 +377,11 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
         let Json(sent) = Json::<serde_json::Value>::from_request(req, state)
             .await
             .map_err(|r| ApiError(AppError::BadRequest { status: r.status(), message: r.body_text() }))?;
+        // serde builds a struct from an array too (`[null, null]` as its first two fields); a
+        // body is an object of named fields. (A type with `flatten` refuses an array itself.)
+        if !struct_fields::<T>().is_empty() && !sent.is_object() {
+            return Err(not_an_object());
+        }
         let parsed = serde_path_to_error::deserialize(&sent).map_err(|e| {
             ApiError(AppError::BadRequest {
                 status: StatusCode::UNPROCESSABLE_ENTITY,
@@ -384,18 +389,17 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
             })
         })?;
         let known = serde_json::to_value(&parsed).map_err(|e| ApiError(AppError::Internal(e.into())))?;
-        // serde builds a struct from an array too (`[null, null]` as the first two fields); a
-        // body is an object of named fields.
-        if known.is_object() && !sent.is_object() {
-            return Err(ApiError(AppError::BadRequest {
-                status: StatusCode::UNPROCESSABLE_ENTITY,
-                message: "the body must be a JSON object of named fields".into(),
-            }));
-        }
         let mut unknown = FieldErrors::default();
         unknown_fields(&sent, &known, "", &mut unknown);
         if unknown.is_empty() { Ok(Self(parsed)) } else { Err(ApiError(AppError::Invalid(unknown))) }
     }
+}
+
+fn not_an_object() -> ApiError {
+    ApiError(AppError::BadRequest {
+        status: StatusCode::UNPROCESSABLE_ENTITY,
+        message: "the body must be a JSON object of named fields".into(),
+    })
 }
 
 /// Record every key of `sent` that `known` (the parsed body written back) lacks, by its path.

@@ -251,7 +251,10 @@ async fn a_body_must_be_an_object_of_named_fields() {
     let array = admin.patch_json("/api/v1/site", "[null, null]").await;
     assert_eq!(
         (array.status, array.json()),
-        (StatusCode::UNPROCESSABLE_ENTITY, json!({"error": "the body must be a JSON object of named fields", "fields": []}))
+        (
+            StatusCode::UNPROCESSABLE_ENTITY,
+            json!({"error": "the body must be a JSON object of named fields", "fields": []})
+        )
     );
     let object = admin.patch_json("/api/v1/site", "{}").await;
     assert_eq!(object.status, StatusCode::OK, "{}", object.text);
@@ -261,4 +264,20 @@ async fn a_body_must_be_an_object_of_named_fields() {
     assert_eq!(flows.json()["error"], "the body must be a JSON object of named fields");
     let ok = t.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["-1000", "1100"]}"#).await;
     assert_eq!((ok.status, ok.json()["npv"].clone()), (StatusCode::OK, json!("0")));
+}
+
+#[tokio::test]
+async fn an_array_for_a_case_is_refused_too() {
+    // CaseSpecInput flattens its header, so serde reads it as a map and refuses an array itself.
+    let t = test_app(false).await;
+    let zone = t.post_json("/api/v1/zones", r#"{"code": "ARR-1", "name": "Array test"}"#).await;
+    let id = zone.json()["zone"]["id"].as_i64().unwrap();
+    let array = t.post_json(&format!("/api/v1/zones/{id}/cases"), "[]").await;
+    assert_eq!(array.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", array.text);
+    assert_eq!(
+        array.json()["error"],
+        "Failed to deserialize the JSON body into the target type: invalid type: sequence, expected struct CaseSpecInput"
+    );
+    let ok = t.post_json(&format!("/api/v1/zones/{id}/cases"), &crate::api::simple_case().to_string()).await;
+    assert_eq!(ok.status, StatusCode::CREATED, "{}", ok.text);
 }
