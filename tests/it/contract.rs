@@ -281,3 +281,87 @@ async fn an_array_for_a_case_is_refused_too() {
     let ok = t.post_json(&format!("/api/v1/zones/{id}/cases"), &crate::api::simple_case().to_string()).await;
     assert_eq!(ok.status, StatusCode::CREATED, "{}", ok.text);
 }
+
+/// Resolve a local `$ref`.
+fn resolve<'a>(doc: &'a serde_json::Value, schema: &'a serde_json::Value) -> &'a serde_json::Value {
+    match schema.get("$ref").and_then(|r| r.as_str()) {
+        Some(r) => &doc["components"]["schemas"][r.trim_start_matches("#/components/schemas/")],
+        None => schema,
+    }
+}
+
+/// Every key of `value` (recursively) that `schema` does not describe, by its path.
+fn undescribed(
+    doc: &serde_json::Value,
+    schema: &serde_json::Value,
+    value: &serde_json::Value,
+    path: &str,
+) -> Vec<String> {
+    let schema = resolve(doc, schema);
+    if let Some(branches) = schema.get("oneOf").and_then(|b| b.as_array()) {
+        // The branch for this kind of value (an object, an array); null needs no description.
+        let branch = branches.iter().map(|b| resolve(doc, b)).find(|b| match value {
+            serde_json::Value::Object(_) => b.get("properties").is_some(),
+            serde_json::Value::Array(_) => b.get("items").is_some(),
+            _ => false,
+        });
+        return branch.map(|b| undescribed(doc, b, value, path)).unwrap_or_default();
+    }
+    let mut out = Vec::new();
+    match value {
+        serde_json::Value::Object(m) => {
+            for (k, v) in m {
+                match schema["properties"].get(k) {
+                    Some(s) => out.extend(undescribed(doc, s, v, &format!("{path}.{k}"))),
+                    None => out.push(format!("{path}.{k}")),
+                }
+            }
+        }
+        serde_json::Value::Array(items) => {
+            for (i, v) in items.iter().enumerate().take(3) {
+                out.extend(undescribed(doc, &schema["items"], v, &format!("{path}[{i}]")));
+            }
+        }
+        _ => {}
+    }
+    out
+}
+
+#[tokio::test]
+async fn every_field_the_api_answers_is_in_the_document() {
+    let t = test_app(true).await;
+    let admin = t.as_role(Some(Role::Admin));
+    let doc = document();
+    let metrics_body =
+        r#"{"rate": "0.1", "flows": ["-1000", "600", "600"], "dates": ["2026-01-01", "2026-07-01", "2027-01-01"]}"#;
+    let answers = [
+        ("/api/v1/zones", "get", admin.get("/api/v1/zones").await),
+        ("/api/v1/zones/{id}", "get", admin.get("/api/v1/zones/1").await),
+        ("/api/v1/cases/{id}", "get", admin.get("/api/v1/cases/1").await),
+        ("/api/v1/zones/{id}/ledger", "get", admin.get("/api/v1/zones/1/ledger").await),
+        ("/api/v1/portfolio", "get", admin.get("/api/v1/portfolio?budget=150000&min_readiness=2").await),
+        ("/api/v1/site", "get", admin.get("/api/v1/site").await),
+        ("/api/v1/metrics", "post", admin.post_json("/api/v1/metrics", metrics_body).await),
+    ];
+    for (path, method, answer) in answers {
+        assert_eq!(answer.status, StatusCode::OK, "{path}: {}", answer.text);
+        let body = answer.json();
+        let schema = &doc["paths"][path][method]["responses"]["200"]["content"]["application/json"]["schema"];
+        assert_eq!(
+            undescribed(&doc, schema, &body, ""),
+            Vec::<String>::new(),
+            "{method} {path}: fields not in the document"
+        );
+    }
+    // The check itself sees a field the document lacks, nested too.
+    let schema = json!({"$ref": "#/components/schemas/CaseAnswer"});
+    let invented = json!({"currency": "EUR", "surprise": 1, "case": {"id": 1, "costs": [{"id": 1, "colour": "red"}]}});
+    assert_eq!(
+        undescribed(&doc, &schema, &invented, ""),
+        vec![".case.costs[0].colour".to_string(), ".surprise".to_string()]
+    );
+    // The portfolio answer above carries a budget choice and readiness, so those are checked too.
+    let p = admin.get("/api/v1/portfolio?budget=150000&min_readiness=2").await.json();
+    assert!(p["choice"].is_object());
+    assert!(p["zones"].as_array().unwrap().iter().any(|z| z["readiness"].is_object()));
+}
