@@ -56,7 +56,14 @@ fn rate(v: &Value) -> Result<f64, String> {
     if d <= Decimal::NEGATIVE_ONE {
         return Err("a rate greater than -1 (rates are fractions: 0.1 = 10 %)".into());
     }
-    d.to_f64().ok_or_else(|| "a rate within range".into())
+    // The finance engine computes in doubles, where a rate this close to -1 is -1 itself.
+    match d.to_f64() {
+        Some(r) if r > -1.0 => Ok(r),
+        Some(_) => {
+            Err(format!("a rate greater than -1: {d} is -1 in double precision, where the figures are computed"))
+        }
+        None => Err("a rate within range".into()),
+    }
 }
 
 struct Parsed {

@@ -365,3 +365,20 @@ async fn every_field_the_api_answers_is_in_the_document() {
     assert!(p["choice"].is_object());
     assert!(p["zones"].as_array().unwrap().iter().any(|z| z["readiness"].is_object()));
 }
+
+#[tokio::test]
+async fn a_rate_that_is_minus_one_in_doubles_blames_the_rate() {
+    let t = test_app(false).await;
+    // It blamed `flows`: the engine's -1 came from the rate's conversion to a double.
+    let body = r#"{"rate": "-0.9999999999999999", "flows": ["-1000", "300", "420", "680"]}"#;
+    let a = t.post_json("/api/v1/metrics", body).await;
+    assert_eq!(
+        (a.status, a.json()["fields"].clone()),
+        (
+            StatusCode::UNPROCESSABLE_ENTITY,
+            json!([{"field": "rate", "message": "a rate greater than -1: -0.9999999999999999 is -1 in double precision, where the figures are computed"}])
+        )
+    );
+    let ok = t.post_json("/api/v1/metrics", r#"{"rate": "-0.999999", "flows": ["-1000", "300", "420", "680"]}"#).await;
+    assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
+}
