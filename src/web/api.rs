@@ -4,7 +4,7 @@
 use super::auth::CurrentUser;
 use super::cases::{CommentForm, CopyForm, figures_of};
 use super::metrics;
-use super::{ApiError, AppError, AppState, JsonBody};
+use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, JsonBody, NoQuery};
 use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
 use crate::domain::{CaseId, ZoneId};
@@ -13,19 +13,19 @@ use crate::domain::{
 };
 use crate::finance::schedule::CaseMetrics;
 use axum::Json;
-use axum::extract::{Path, State};
+use axum::extract::State;
 use axum::http::{StatusCode, header};
 use axum::response::IntoResponse;
 use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 
 /// GET /api/v1/openapi.json
-pub async fn openapi() -> impl IntoResponse {
+pub async fn openapi(_: ApiQuery<NoQuery>) -> impl IntoResponse {
     ([(header::CONTENT_TYPE, "application/json")], include_str!("openapi.json"))
 }
 
 /// GET /api/v1/zones
-pub async fn list_zones(State(state): State<AppState>) -> Result<Json<Value>, ApiError> {
+pub async fn list_zones(State(state): State<AppState>, _: ApiQuery<NoQuery>) -> Result<Json<Value>, ApiError> {
     let zones = db::list_zones(&state.pool).await?;
     Ok(Json(json!({ "zones": zones })))
 }
@@ -33,6 +33,7 @@ pub async fn list_zones(State(state): State<AppState>) -> Result<Json<Value>, Ap
 /// POST /api/v1/zones
 pub async fn create_zone(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
@@ -46,7 +47,11 @@ pub async fn create_zone(
 }
 
 /// GET /api/v1/zones/{id}
-pub async fn get_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+pub async fn get_zone(
+    State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
+    ApiPath(id): ApiPath<i64>,
+) -> Result<Json<Value>, ApiError> {
     let zone = db::get_zone(&state.pool, id).await?;
     let cases = db::list_cases(&state.pool, id).await?;
     Ok(Json(json!({ "zone": zone, "cases": cases })))
@@ -56,8 +61,9 @@ pub async fn get_zone(State(state): State<AppState>, Path(id): Path<i64>) -> Res
 /// the zone's next draft version.
 pub async fn create_case(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(zone_id): Path<i64>,
+    ApiPath(zone_id): ApiPath<i64>,
     JsonBody(input): JsonBody<CaseSpecInput>,
 ) -> Result<impl IntoResponse, ApiError> {
     let mut spec = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain))?;
@@ -79,7 +85,11 @@ pub async fn create_case(
 }
 
 /// GET /api/v1/cases/{id}
-pub async fn get_case(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+pub async fn get_case(
+    State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
+    ApiPath(id): ApiPath<i64>,
+) -> Result<Json<Value>, ApiError> {
     Ok(Json(case_body(&state, id).await?))
 }
 
@@ -204,8 +214,9 @@ fn metrics_json(m: &CaseMetrics) -> Value {
 /// POST /api/v1/cases/{id}/copy `{"label"}`: the version saved as the zone's next draft.
 pub async fn copy_case(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<CopyForm>,
 ) -> Result<impl IntoResponse, ApiError> {
     let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &body.label).await?.0;
@@ -227,8 +238,9 @@ async fn review(
 /// POST /api/v1/cases/{id}/submit `{"comment"?}`
 pub async fn submit_case(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<CommentForm>,
 ) -> Result<Json<Value>, ApiError> {
     review(&state, &user, id, ReviewStep::Submit, &body.comment).await
@@ -237,8 +249,9 @@ pub async fn submit_case(
 /// POST /api/v1/cases/{id}/approve `{"comment"?}`: four eyes unless the site allows one person.
 pub async fn approve_case(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<CommentForm>,
 ) -> Result<Json<Value>, ApiError> {
     review(&state, &user, id, ReviewStep::Approve, &body.comment).await
@@ -247,8 +260,9 @@ pub async fn approve_case(
 /// POST /api/v1/cases/{id}/reject `{"comment"}`: back to draft with the reason.
 pub async fn reject_case(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<CommentForm>,
 ) -> Result<Json<Value>, ApiError> {
     review(&state, &user, id, ReviewStep::Reject, &body.comment).await
@@ -266,8 +280,9 @@ pub struct StatusBody {
 /// lifecycle does not allow the move.
 pub async fn zone_status(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<StatusBody>,
 ) -> Result<Json<Value>, ApiError> {
     let zone = app::zones::change_status(&state.pool, user.name(), ZoneId(id), &body.status).await?;
@@ -290,7 +305,7 @@ fn site_json(site: &SiteSettings) -> Value {
 }
 
 /// GET /api/v1/site
-pub async fn get_site(State(state): State<AppState>) -> Result<Json<Value>, ApiError> {
+pub async fn get_site(State(state): State<AppState>, _: ApiQuery<NoQuery>) -> Result<Json<Value>, ApiError> {
     Ok(Json(site_json(&db::get_site(&state.pool).await?)))
 }
 
@@ -346,6 +361,7 @@ impl SitePatch {
 /// PATCH /api/v1/site: change some settings (admin); errors name each field.
 pub async fn patch_site(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(user): CurrentUser,
     JsonBody(patch): JsonBody<SitePatch>,
 ) -> Result<Json<Value>, ApiError> {

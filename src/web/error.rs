@@ -15,6 +15,9 @@ pub enum AppError {
     /// Input fields were rejected (422); each names its field.
     #[error("some fields are not valid: {0}")]
     Invalid(FieldErrors),
+    /// A path parameter cannot name anything (404); each names its parameter (`id`).
+    #[error("no such resource: {0}")]
+    InvalidPath(FieldErrors),
     /// Request headers were rejected (400); each names its header (`Idempotency-Key`).
     #[error("some request headers are not valid: {0}")]
     InvalidHeader(FieldErrors),
@@ -51,6 +54,7 @@ impl AppError {
     pub fn status(&self) -> StatusCode {
         match self {
             Self::Invalid(_) => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::InvalidPath(_) => StatusCode::NOT_FOUND,
             Self::InvalidHeader(_) => StatusCode::BAD_REQUEST,
             Self::BadRequest { status, .. } => *status,
             Self::Unauthenticated | Self::TokenExpired(_) => StatusCode::UNAUTHORIZED,
@@ -135,7 +139,7 @@ impl IntoResponse for AppError {
         self.log();
         let status = self.status();
         let fields = match &self {
-            Self::Invalid(f) | Self::InvalidHeader(f) => f.clone(),
+            Self::Invalid(f) | Self::InvalidPath(f) | Self::InvalidHeader(f) => f.clone(),
             _ => FieldErrors::default(),
         };
         let page = ErrorPage {
@@ -169,7 +173,7 @@ impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
         self.0.log();
         let fields = match &self.0 {
-            AppError::Invalid(f) | AppError::InvalidHeader(f) => f.clone(),
+            AppError::Invalid(f) | AppError::InvalidPath(f) | AppError::InvalidHeader(f) => f.clone(),
             _ => FieldErrors::default(),
         };
         let body = json!({ "error": self.0.public_message(), "fields": fields });

@@ -3,7 +3,7 @@
 
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::PairChart;
-use super::{ApiError, AppError, AppState, FormBody, JsonBody};
+use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, FormBody, JsonBody, NoQuery};
 use crate::app;
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
@@ -539,7 +539,11 @@ pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppEr
 }
 
 /// GET /api/v1/zones/{id}/ledger: entries and realized figures.
-pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Result<Json<Value>, ApiError> {
+pub async fn api_show(
+    State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
+    ApiPath(id): ApiPath<i64>,
+) -> Result<Json<Value>, ApiError> {
     let (site, _, history, entries, view) = load(&state, id).await?;
     let realized = view.map(|v| {
         json!({
@@ -581,8 +585,9 @@ pub async fn api_show(State(state): State<AppState>, Path(id): Path<i64>) -> Res
 /// ASCII characters is a 400.
 pub async fn api_book(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(me): CurrentUser,
-    Path(id): Path<i64>,
+    ApiPath(id): ApiPath<i64>,
     headers: HeaderMap,
     JsonBody(input): JsonBody<BookingInput>,
 ) -> Result<Response, ApiError> {
@@ -618,8 +623,9 @@ pub async fn api_book(
 /// POST /api/v1/zones/{id}/ledger/{entry}/reverse with `{"evidence": "..."}`.
 pub async fn api_reverse(
     State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
     CurrentUser(me): CurrentUser,
-    Path((id, entry)): Path<(i64, i64)>,
+    ApiPath((id, entry)): ApiPath<(i64, i64)>,
     JsonBody(input): JsonBody<ReverseInput>,
 ) -> Result<Response, ApiError> {
     match app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, None).await? {

@@ -5,7 +5,7 @@
 //! when ambiguous), MIRR, payback, discounted payback, PI, and XNPV / XIRR when dates are given.
 //! Values are decimal strings, or null where undefined.
 
-use super::{ApiError, AppError, JsonBody};
+use super::{ApiError, ApiQuery, AppError, JsonBody, NoQuery};
 use crate::domain::{FieldErrors, NumberFormat};
 use crate::finance::{self, FinanceError};
 use axum::Json;
@@ -54,7 +54,14 @@ fn rate(v: &Value) -> Result<f64, String> {
     if d <= Decimal::NEGATIVE_ONE {
         return Err("a rate greater than -1 (rates are fractions: 0.1 = 10 %)".into());
     }
-    d.to_f64().ok_or_else(|| "a rate within range".into())
+    // The finance engine computes in doubles, where a rate this close to -1 is -1 itself.
+    match d.to_f64() {
+        Some(r) if r > -1.0 => Ok(r),
+        Some(_) => {
+            Err(format!("a rate greater than -1: {d} is -1 in double precision, where the figures are computed"))
+        }
+        None => Err("a rate within range".into()),
+    }
 }
 
 struct Parsed {
@@ -164,7 +171,7 @@ fn rates_of(outcome: &finance::IrrOutcome, what: &str, warnings: &mut Vec<String
 }
 
 /// POST /api/v1/metrics
-pub async fn metrics(JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
+pub async fn metrics(_: ApiQuery<NoQuery>, JsonBody(req): JsonBody<MetricsRequest>) -> Result<Json<Value>, ApiError> {
     let p = parse(&req)?;
     let mut warnings: Vec<String> = Vec::new();
     let npv = finance::npv(p.rate, &p.flows).map_err(|e| input_error(e, &p))?;

@@ -22,7 +22,8 @@ pub use error::{ApiError, AppError};
 use crate::auth::{Clock, Permission, Throttle};
 use crate::domain::FieldErrors;
 use crate::domain::NumberFormat;
-use axum::extract::{DefaultBodyLimit, FromRequest, Request};
+use axum::extract::{DefaultBodyLimit, FromRequest, FromRequestParts, Request};
+use axum::http::request::Parts;
 use axum::http::{HeaderValue, Method, StatusCode, header};
 use axum::routing::{MethodRouter, get, patch, post};
 use axum::{Form, Json, Router};
@@ -254,6 +255,7 @@ pub fn app(state: AppState) -> Router {
         router = router.route(r.path, r.handler.layer(DefaultBodyLimit::max(r.body_limit)));
     }
     let router = router
+        .method_not_allowed_fallback(method_not_allowed)
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), auth::authorize))
         .route_layer(axum::middleware::from_fn_with_state(state.clone(), site_numbers))
         .nest_service("/static", ServeDir::new(static_dir))
@@ -287,6 +289,18 @@ pub fn app(state: AppState) -> Router {
                 .load_shed()
                 .concurrency_limit(MAX_IN_FLIGHT),
         )
+        .layer(axum::middleware::from_fn(api_errors_as_json))
+}
+
+/// A known path asked with a method it does not have: 405 (axum adds the `Allow` header), in
+/// the JSON error format under `/api/`.
+async fn method_not_allowed(uri: axum::http::Uri) -> axum::response::Response {
+    use axum::response::IntoResponse;
+    let error = AppError::BadRequest {
+        status: StatusCode::METHOD_NOT_ALLOWED,
+        message: "this path does not take this method; the Allow header lists those it takes".into(),
+    };
+    if uri.path().starts_with("/api/") { ApiError(error).into_response() } else { error.into_response() }
 }
 
 /// Marks the answer to a request whose handler panicked.
@@ -407,6 +421,11 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
         let Json(sent) = Json::<serde_json::Value>::from_request(req, state)
             .await
             .map_err(|r| ApiError(AppError::BadRequest { status: r.status(), message: r.body_text() }))?;
+        // serde builds a struct from an array too (`[null, null]` as its first two fields); a
+        // body is an object of named fields. (A type with `flatten` refuses an array itself.)
+        if !struct_fields::<T>().is_empty() && !sent.is_object() {
+            return Err(not_an_object());
+        }
         let parsed = serde_path_to_error::deserialize(&sent).map_err(|e| {
             ApiError(AppError::BadRequest {
                 status: StatusCode::UNPROCESSABLE_ENTITY,
@@ -418,6 +437,13 @@ impl<S: Send + Sync, T: DeserializeOwned + Serialize> FromRequest<S> for JsonBod
         unknown_fields(&sent, &known, "", &mut unknown);
         if unknown.is_empty() { Ok(Self(parsed)) } else { Err(ApiError(AppError::Invalid(unknown))) }
     }
+}
+
+fn not_an_object() -> ApiError {
+    ApiError(AppError::BadRequest {
+        status: StatusCode::UNPROCESSABLE_ENTITY,
+        message: "the body must be a JSON object of named fields".into(),
+    })
 }
 
 /// Record every key of `sent` that `known` (the parsed body written back) lacks, by its path.
@@ -466,4 +492,150 @@ impl<S: Send + Sync, T: DeserializeOwned> FromRequest<S> for FormBody<T> {
             Err(rejection) => Err(AppError::BadRequest { status: rejection.status(), message: rejection.body_text() }),
         }
     }
+}
+
+/// A path extractor for the API whose rejection is an [`ApiError`]: a parameter that cannot
+/// name anything (`/api/v1/zones/abc`) is a 404 whose `fields` names the parameter, instead of
+/// axum's plain-text 400.
+pub struct ApiPath<T>(pub T);
+
+impl<S: Send + Sync, T: DeserializeOwned + Send> FromRequestParts<S> for ApiPath<T> {
+    type Rejection = ApiError;
+
+    async fn from_request_parts(parts: &mut Parts, state: &S) -> Result<Self, Self::Rejection> {
+        use axum::extract::path::ErrorKind;
+        use axum::extract::rejection::PathRejection;
+        let e = match axum::extract::Path::<T>::from_request_parts(parts, state).await {
+            Ok(axum::extract::Path(v)) => return Ok(Self(v)),
+            Err(PathRejection::FailedToDeserializePathParams(e)) => e,
+            Err(other) => return Err(ApiError(AppError::Internal(anyhow::anyhow!("path parameters: {other}")))),
+        };
+        // Tuples report a position; the route's parameters give its name.
+        let names: Vec<String> = axum::extract::RawPathParams::from_request_parts(parts, state)
+            .await
+            .map(|raw| raw.iter().map(|(k, _)| k.to_string()).collect())
+            .unwrap_or_default();
+        let (key, value) = match e.kind() {
+            ErrorKind::ParseErrorAtKey { key, value, .. } | ErrorKind::DeserializeError { key, value, .. } => {
+                (key.clone(), value.clone())
+            }
+            ErrorKind::ParseErrorAtIndex { index, value, .. } => {
+                (names.get(*index).cloned().unwrap_or_else(|| format!("#{index}")), value.clone())
+            }
+            ErrorKind::ParseError { value, .. } => (names.first().cloned().unwrap_or_default(), value.clone()),
+            ErrorKind::InvalidUtf8InPathParam { key } => (key.clone(), String::new()),
+            other => return Err(ApiError(AppError::Internal(anyhow::anyhow!("path parameters: {other}")))),
+        };
+        let message = format!("an id is a whole number, not {value:?}");
+        Err(ApiError(AppError::InvalidPath(FieldErrors::one(key, message))))
+    }
+}
+
+/// A query extractor for the API whose rejection is an [`ApiError`] 422 naming the parameter:
+/// a parameter the query type does not have is refused (`rnak=irr` is never silently ignored),
+/// as [`JsonBody`] does for body fields. `T` is a struct of optional text fields.
+pub struct ApiQuery<T>(pub T);
+
+impl<S: Send + Sync, T: DeserializeOwned> FromRequestParts<S> for ApiQuery<T> {
+    type Rejection = ApiError;
+
+    async fn from_request_parts(parts: &mut Parts, _: &S) -> Result<Self, Self::Rejection> {
+        let query = parts.uri.query().unwrap_or_default();
+        let pairs: Vec<(String, String)> = serde_urlencoded::from_str(query).map_err(|e| {
+            ApiError(AppError::BadRequest {
+                status: StatusCode::BAD_REQUEST,
+                message: format!("the query string cannot be read: {e}"),
+            })
+        })?;
+        let known = struct_fields::<T>();
+        let mut errors = FieldErrors::default();
+        for (name, _) in &pairs {
+            if !known.contains(&name.as_str()) {
+                let expected = if known.is_empty() { "none".to_string() } else { known.join(", ") };
+                errors.push(name.clone(), format!("unknown query parameter; expected one of: {expected}"));
+            }
+        }
+        let mut seen = std::collections::HashSet::new();
+        for (name, _) in &pairs {
+            if known.contains(&name.as_str()) && !seen.insert(name.as_str()) {
+                errors.push(name.clone(), "given more than once; give it once");
+            }
+        }
+        if !errors.is_empty() {
+            return Err(ApiError(AppError::Invalid(errors)));
+        }
+        serde_urlencoded::from_str(query).map(Self).map_err(|e| {
+            ApiError(AppError::BadRequest {
+                status: StatusCode::UNPROCESSABLE_ENTITY,
+                message: format!("the query string does not fit: {e}"),
+            })
+        })
+    }
+}
+
+/// The query of an API route that takes none: any parameter is refused with 422 naming it.
+#[derive(serde::Deserialize)]
+pub struct NoQuery {}
+
+/// The field names of the struct `T` deserializes as, read from what serde's derive passes to
+/// `deserialize_struct` (so a field added to the query type is known at once); empty for other
+/// types.
+fn struct_fields<T: DeserializeOwned>() -> &'static [&'static str] {
+    use serde::de::{self, Visitor};
+    struct Names(&'static [&'static str]);
+    impl<'de> de::Deserializer<'de> for &mut Names {
+        type Error = de::value::Error;
+        fn deserialize_any<V: Visitor<'de>>(self, _: V) -> Result<V::Value, Self::Error> {
+            Err(de::Error::custom("only a struct's field names are read"))
+        }
+        fn deserialize_struct<V: Visitor<'de>>(
+            self,
+            _: &'static str,
+            fields: &'static [&'static str],
+            _: V,
+        ) -> Result<V::Value, Self::Error> {
+            self.0 = fields;
+            Err(de::Error::custom("only a struct's field names are read"))
+        }
+        serde::forward_to_deserialize_any! {
+            bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string bytes byte_buf option unit
+            unit_struct newtype_struct seq tuple tuple_struct map enum identifier ignored_any
+        }
+    }
+    let mut names = Names(&[]);
+    let _ = T::deserialize(&mut names);
+    names.0
+}
+
+/// Answer every error under `/api/` in the JSON error format, including those no handler
+/// wrote: the body limit's 413, the timeout's 408, the overload 503 and the CSRF refusal.
+async fn api_errors_as_json(req: Request, next: axum::middleware::Next) -> axum::response::Response {
+    use axum::response::IntoResponse;
+    if !req.uri().path().starts_with("/api/") {
+        return next.run(req).await;
+    }
+    let res = next.run(req).await;
+    let status = res.status();
+    let is_json = res
+        .headers()
+        .get(header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .is_some_and(|v| v.starts_with("application/json"));
+    if status.as_u16() < 400 || is_json {
+        return res;
+    }
+    let (mut parts, body) = res.into_parts();
+    let text = axum::body::to_bytes(body, 4096).await.ok().and_then(|b| String::from_utf8(b.to_vec()).ok());
+    let reason = status.canonical_reason().unwrap_or("error").to_lowercase();
+    let message = match text.as_deref().map(str::trim) {
+        Some(t) if !t.is_empty() && !t.starts_with('<') => t.to_string(),
+        _ => reason,
+    };
+    parts.headers.remove(header::CONTENT_TYPE);
+    parts.headers.remove(header::CONTENT_LENGTH);
+    parts.headers.remove(header::CONTENT_ENCODING);
+    let json = ApiError(AppError::BadRequest { status, message }).into_response();
+    let (json_parts, json_body) = json.into_parts();
+    parts.headers.extend(json_parts.headers);
+    axum::response::Response::from_parts(parts, json_body)
 }

@@ -21,7 +21,11 @@ pub async fn about(MaybeUser(me): MaybeUser) -> Result<Html<String>, AppError> {
     Ok(Html(AboutPage { nav: me.as_ref().map(Nav::from).unwrap_or_default() }.render()?))
 }
 
-/// Any unknown path.
-pub async fn not_found() -> impl IntoResponse {
-    AppError::NotFound("page")
+/// Any unknown path: the error page, or the JSON error format under `/api/`.
+pub async fn not_found(uri: axum::http::Uri) -> axum::response::Response {
+    if uri.path().starts_with("/api/") {
+        super::ApiError(AppError::NotFound("API route")).into_response()
+    } else {
+        AppError::NotFound("page").into_response()
+    }
 }

@@ -513,7 +513,10 @@ fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
 }
 
 /// GET /api/v1/portfolio?budget=&rank=&basis=&min_readiness=&seed=
-pub async fn api(State(state): State<AppState>, Query(q): Query<PortfolioQuery>) -> Result<Response, ApiError> {
+pub async fn api(
+    State(state): State<AppState>,
+    super::ApiQuery(q): super::ApiQuery<PortfolioQuery>,
+) -> Result<Response, ApiError> {
     let params = PortfolioParams::parse(&q, NumberFormat::Plain).map_err(AppError::from)?;
     let key = format!("api?{}", query_string(&q));
     let body = state.answers.get(&state.pool, key, || api_json(&state, params)).await?;

@@ -6,6 +6,7 @@ mod approval;
 mod browser;
 mod chain;
 mod cli;
+mod contract;
 mod exports;
 mod faults;
 mod finance;
