@@ -18,6 +18,7 @@ mod zones;
 
 pub use crate::domain::ledger_csv::{IMPORT_MAX_BYTES, IMPORT_MAX_ROWS};
 pub use error::{ApiError, AppError};
+pub use metrics::MAX_FLOWS;
 
 use crate::auth::{Clock, Permission, Throttle};
 use crate::domain::FieldErrors;
