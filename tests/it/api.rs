@@ -149,6 +149,11 @@ async fn metrics_refuse_more_than_2400_flows() {
         over.json()["fields"],
         json!([{"field": "flows", "message": "at most 2400 flows per request: 2401 given"}])
     );
+    // 330,000 short flows (1.8 MB) are refused before they are read into a JSON tree.
+    let huge = format!(r#"{{"rate": "0.1", "flows": [{}"1"]}}"#, "\"-1\",".repeat(330_000));
+    let a = t.post_json("/api/v1/metrics", &huge).await;
+    assert_eq!(a.status, StatusCode::PAYLOAD_TOO_LARGE, "{}", a.text);
+    assert_eq!(a.json()["error"], "Failed to buffer the request body: length limit exceeded");
     // Positive control: exactly at the limit, dated and alternating, it answers (a rate of 0,
     // where the flows cancel).
     let at = t.post_json("/api/v1/metrics", &alternating_flows(2400).to_string()).await;
