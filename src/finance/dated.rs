@@ -297,13 +297,10 @@ impl Series for DatedSeries {
         irr::sign_changes(self.terms.iter().map(|t| if t.0 > 0.0 { 1 } else { -1 }))
     }
 
-    fn derivative(&self) -> Option<Self> {
-        if self.terms.len() < 2 {
-            return None;
-        }
-        // d/dx of sum c x^e (e_0 = 0): the constant term drops out, c_i becomes c_i e_i.
-        let terms = self.terms[1..].iter().map(|&(c, e)| (c * e, e)).collect();
-        Some(Self::normalized(terms))
+    fn from_terms(mut terms: Vec<(f64, f64)>) -> Self {
+        // A term below f64's range next to the largest is no term.
+        terms.retain(|t| t.0 != 0.0);
+        Self::normalized(terms)
     }
 
     fn terms(&self) -> impl Iterator<Item = (f64, f64)> {

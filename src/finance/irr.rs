@@ -81,8 +81,9 @@ pub struct IrrOutcome {
 ///   derivative split (0, +inf) into intervals on which the NPV polynomial is monotone, so each
 ///   interval whose ends differ in sign holds exactly one root (solved as above), and a
 ///   derivative root where the value is zero within rounding is a root that touches zero
-///   (even multiplicity). The derivative's roots are found the same way, recursively, down to
-///   a derivative with at most one sign change. This finds every root except pairs closer than
+///   (even multiplicity). The derivative's roots are found the same way, down to a derivative
+///   with at most one sign change (walked without recursion, holding one level at a time:
+///   memory linear in the number of flows). This finds every root except pairs closer than
 ///   the rounding of f64 evaluation can separate.
 ///
 /// # Errors
@@ -217,10 +218,11 @@ pub(crate) trait Series: Sized {
     fn ends(&self) -> (f64, f64);
     /// Sign changes of the coefficients ordered by exponent (Descartes' bound on the roots).
     fn sign_changes(&self) -> usize;
-    /// The next level of the Rolle recursion: the derivative in `x` of `x^(-e_min) * g`, whose
-    /// positive roots separate those of `g`; `None` for a constant.
-    fn derivative(&self) -> Option<Self>;
-    /// `(coefficient, exponent)` of each term, for the starting guess.
+    /// A series of the same kind from `(coefficient, exponent)` terms ascending in exponent,
+    /// the first non-zero (for evenly spaced flows, consecutive whole exponents): a level of
+    /// the Rolle chain (see [`all_roots`]), normalized like the series itself.
+    fn from_terms(terms: Vec<(f64, f64)>) -> Self;
+    /// `(coefficient, exponent)` of each term, ascending in exponent (zeros included).
     fn terms(&self) -> impl Iterator<Item = (f64, f64)>;
 }
 
@@ -315,13 +317,8 @@ impl Series for DensePoly {
         sign_changes(self.coeffs.iter().map(|&c| signum(c)))
     }
 
-    fn derivative(&self) -> Option<Self> {
-        if self.coeffs.len() < 2 {
-            return None;
-        }
-        // The constant term is non-zero (stripped), so this is d/dx of the polynomial itself.
-        let d = self.coeffs.iter().enumerate().skip(1).map(|(t, &a)| a * t as f64).collect();
-        Some(Self::normalized(d))
+    fn from_terms(terms: Vec<(f64, f64)>) -> Self {
+        Self::normalized(terms.into_iter().map(|(c, _)| c).collect())
     }
 
     fn terms(&self) -> impl Iterator<Item = (f64, f64)> {
@@ -357,22 +354,69 @@ pub(crate) struct FoundRoot {
 }
 
 /// Every root of `series` in (0, 2), ascending in `s`, by Rolle isolation (see [`irr`]).
+///
+/// The chain of derivatives is walked without recursion and without keeping a copy of every
+/// level (a series with thousands of sign changes has thousands of levels): one pass up finds
+/// how deep the chain goes and where each level starts, keeping only each term's running
+/// multiplier; the pass down divides the multipliers back out and solves each level between the
+/// roots of the level below it. Memory is a few values per term plus one level at a time.
 pub(crate) fn all_roots<S: Series>(series: &S) -> Result<Vec<FoundRoot>, FinanceError> {
-    let (g0, g2) = series.ends();
-    match series.sign_changes() {
-        0 => return Ok(Vec::new()),
-        1 => {
-            let s = solve_bracket(series, 0.0, 2.0, g0, 1.0)?;
-            return Ok(vec![FoundRoot { s, rising: Some(g2 > 0.0) }]);
-        }
-        _ => {}
+    let mut chain = Chain::new(series);
+    // Pass up: the first term of each level, down to a level with at most one sign change.
+    let mut firsts = vec![0];
+    let mut deepest = None;
+    let mut changes = series.sign_changes();
+    while changes > 1 {
+        let first = firsts.last().copied().unwrap_or(0);
+        chain.step(first, Step::Up);
+        let Some((next, level)) = chain.level::<S>(first + 1) else {
+            // Not reached: the last term never vanishes. Stay on the level reached.
+            chain.step(first, Step::Down);
+            break;
+        };
+        changes = level.sign_changes();
+        firsts.push(next);
+        deepest = Some(level);
     }
-    let Some(derivative) = series.derivative() else {
-        return Ok(Vec::new());
+    // The deepest level has at most one sign change: its root, if any, is found directly.
+    let mut roots = match &deepest {
+        Some(level) => monotone_roots(level)?,
+        None => return monotone_roots(series),
     };
+    // Pass down: each level's roots lie between the roots of the level below it.
+    firsts.pop();
+    while let Some(first) = firsts.pop() {
+        chain.step(first, Step::Down);
+        roots = if firsts.is_empty() {
+            roots_between(series, &roots)?
+        } else {
+            let level = chain.level::<S>(first).map(|(_, level)| level);
+            match level {
+                Some(level) => roots_between(&level, &roots)?,
+                None => Vec::new(),
+            }
+        };
+    }
+    Ok(roots)
+}
+
+/// The roots of a series with at most one sign change (none or exactly one root).
+fn monotone_roots<S: Series>(series: &S) -> Result<Vec<FoundRoot>, FinanceError> {
+    let (g0, g2) = series.ends();
+    if series.sign_changes() != 1 {
+        return Ok(Vec::new());
+    }
+    let s = solve_bracket(series, 0.0, 2.0, g0, 1.0)?;
+    Ok(vec![FoundRoot { s, rising: Some(g2 > 0.0) }])
+}
+
+/// The roots of `series` given the roots of its derivative (its critical points), ascending.
+fn roots_between<S: Series>(series: &S, critical: &[FoundRoot]) -> Result<Vec<FoundRoot>, FinanceError> {
+    let (g0, g2) = series.ends();
     // Ends and critical points, each with its sign (0 = zero within rounding).
-    let mut points: Vec<(f64, f64, i8)> = vec![(0.0, g0, signum(g0))];
-    for c in all_roots(&derivative)? {
+    let mut points: Vec<(f64, f64, i8)> = Vec::with_capacity(critical.len() + 2);
+    points.push((0.0, g0, signum(g0)));
+    for c in critical {
         let (g, _) = series.eval(c.s);
         let zero = g.abs() <= IRR_TOUCH_TOLERANCE * series.magnitude(c.s);
         points.push((c.s, g, if zero { 0 } else { signum(g) }));
@@ -408,6 +452,88 @@ pub(crate) fn all_roots<S: Series>(series: &S) -> Result<Vec<FoundRoot>, Finance
         }
     }
     Ok(roots)
+}
+
+/// Multiply or divide in [`Chain::step`].
+#[derive(Clone, Copy, PartialEq)]
+enum Step {
+    Up,
+    Down,
+}
+
+/// The Rolle chain of a series, one level at a time.
+///
+/// Level `k + 1` is the derivative in `x` of `x^(-E_k)` times level `k`, `E_k` being the
+/// exponent of level `k`'s first term: the first term drops out and term `i` is multiplied by
+/// `e_i - E_k`. So level `k`'s coefficient of term `i` is the base coefficient times a product
+/// of such factors, kept here as a mantissa and a power of 2^[`Chain::BLOCK`] (the product of a
+/// few thousand factors is far outside f64's range). A term whose coefficient falls below f64's
+/// range next to the level's largest is zero in that level, as when the levels were computed
+/// one from the other.
+struct Chain {
+    exponents: Vec<f64>,
+    mantissas: Vec<f64>,
+    blocks: Vec<i32>,
+}
+
+impl Chain {
+    const BLOCK: i32 = 500;
+
+    fn new<S: Series>(series: &S) -> Self {
+        let (mantissas, exponents): (Vec<f64>, Vec<f64>) = series.terms().unzip();
+        let blocks = vec![0; mantissas.len()];
+        Self { exponents, mantissas, blocks }
+    }
+
+    /// From the level whose first term is `first` to the next one (`Up`), or back (`Down`).
+    fn step(&mut self, first: usize, step: Step) {
+        let Some(&e0) = self.exponents.get(first) else {
+            return;
+        };
+        let big = f64::from(Self::BLOCK).exp2();
+        let small = f64::from(-Self::BLOCK).exp2();
+        let terms = self.mantissas.iter_mut().zip(&mut self.blocks).zip(&self.exponents).skip(first + 1);
+        for ((m, b), &e) in terms {
+            if step == Step::Up {
+                *m *= e - e0;
+            } else {
+                *m /= e - e0;
+            }
+            // Powers of two: exact.
+            if m.abs() > big {
+                *m *= small;
+                *b += 1;
+            } else if *m != 0.0 && m.abs() < small {
+                *m *= big;
+                *b -= 1;
+            }
+        }
+    }
+
+    /// The level made of the terms from `from` on, scaled so that its largest coefficient is
+    /// near 1, and the index of its first non-zero term; `None` if every term is zero.
+    fn level<S: Series>(&self, from: usize) -> Option<(usize, S)> {
+        let log2 = |i: usize| f64::from(self.blocks[i] * Self::BLOCK) + self.mantissas[i].abs().log2();
+        let top = (from..self.mantissas.len())
+            .filter(|&i| self.mantissas[i] != 0.0)
+            .map(log2)
+            .fold(f64::NEG_INFINITY, f64::max);
+        if !top.is_finite() {
+            return None;
+        }
+        let shift = top.floor();
+        let coefficient = |i: usize| {
+            // m * 2^(block * BLOCK - shift) in two exact scalings, so that a term below the
+            // range underflows once, like the product it stands for.
+            let k = f64::from(self.blocks[i] * Self::BLOCK) - shift;
+            let half = (0.5 * k).trunc();
+            self.mantissas[i] * half.exp2() * (k - half).exp2()
+        };
+        let coefficients: Vec<f64> = (from..self.mantissas.len()).map(coefficient).collect();
+        let lead = coefficients.iter().take_while(|&&c| c == 0.0).count();
+        let terms = coefficients.into_iter().zip(&self.exponents[from..]).skip(lead).map(|(c, &e)| (c, e)).collect();
+        Some((from + lead, S::from_terms(terms)))
+    }
 }
 
 pub(crate) fn signum(v: f64) -> i8 {
@@ -554,5 +680,93 @@ mod tests {
         // NPV is + just below 10 %, - between 10 and 20, + between 20 and 30, - above 30 %: two
         // investment-like roots (10 % and 30 %): no single defensible IRR.
         assert_eq!(o.chosen, None);
+    }
+
+    /// NPV at `rate` relative to the sum of the absolute discounted flows, computed apart from
+    /// the solver: each term scaled by the largest discount factor, so no power overflows.
+    fn relative_npv(rate: f64, flows: &[f64]) -> f64 {
+        let ln_x = -rate.ln_1p();
+        let top = flows.iter().enumerate().map(|(t, _)| t as f64 * ln_x).fold(f64::NEG_INFINITY, f64::max);
+        let (mut sum, mut size) = (0.0, 0.0);
+        for (t, &c) in flows.iter().enumerate() {
+            let w = (t as f64 * ln_x - top).exp();
+            sum += c * w;
+            size += c.abs() * w;
+        }
+        (sum / size).abs()
+    }
+
+    /// The former search, one recursion level and one copy of the polynomial per derivative:
+    /// the reference the iterative search must agree with.
+    fn recursive_roots(p: &DensePoly) -> Vec<FoundRoot> {
+        if p.sign_changes() <= 1 || p.coeffs.len() < 2 {
+            return monotone_roots(p).unwrap();
+        }
+        let d = DensePoly::normalized(p.coeffs.iter().enumerate().skip(1).map(|(t, &a)| a * t as f64).collect());
+        roots_between(p, &recursive_roots(&d)).unwrap()
+    }
+
+    /// A small linear congruential generator (Knuth's MMIX constants): reproducible flows.
+    fn lcg(state: &mut u64) -> u64 {
+        *state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+        *state >> 33
+    }
+
+    #[test]
+    fn six_thousand_alternating_flows_answer() {
+        // -1 + x - x^2 + ... - x^5999 = -(1 - x^6000) / (1 + x): the one positive root is x = 1,
+        // a rate of 0. The former recursion went 6,000 levels deep and overflowed the stack.
+        let alternating: Vec<i64> = (0..6000).map(|t| if t % 2 == 0 { -1 } else { 1 }).collect();
+        let o = irr(&flows(&alternating)).unwrap();
+        assert!(o.ambiguous);
+        assert_eq!(o.roots.len(), 1);
+        assert!(o.roots[0].abs() < 1e-12, "{:?}", o.roots);
+    }
+
+    #[test]
+    fn roots_of_random_flows_make_npv_zero_and_match_the_recursive_search() {
+        let mut state = 12;
+        for case in 0..300 {
+            let n = 3 + case % 60;
+            let cents: Vec<i64> = (0..n).map(|_| (lcg(&mut state) % 2_000_001) as i64 - 1_000_000).collect();
+            let poly = DensePoly::from_flows(&flows(&cents)).unwrap();
+            let found = all_roots(&poly).unwrap();
+            let reference = recursive_roots(&poly);
+            assert_eq!(found.len(), reference.len(), "{cents:?}");
+            for (f, r) in found.iter().zip(&reference) {
+                assert!((f.s - r.s).abs() <= 1e-12 * r.s.max(1e-3), "{cents:?}: {} vs {}", f.s, r.s);
+                assert_eq!(f.rising, r.rising, "{cents:?}");
+            }
+            let values: Vec<f64> = cents.iter().map(|&c| c as f64).collect();
+            for f in &found {
+                let rate = rate_from_s(f.s);
+                assert!(relative_npv(rate, &values) < 1e-9, "{cents:?}: NPV at {rate}");
+            }
+        }
+    }
+
+    #[test]
+    fn roots_of_2400_random_sign_flows_make_npv_zero() {
+        let mut state = 7;
+        let cents: Vec<i64> = (0..2400).map(|_| (lcg(&mut state) % 2_000_001) as i64 - 1_000_000).collect();
+        let o = irr(&flows(&cents)).unwrap();
+        assert!(!o.roots.is_empty());
+        let values: Vec<f64> = cents.iter().map(|&c| c as f64).collect();
+        for &r in &o.roots {
+            assert!(relative_npv(r, &values) < 1e-9, "NPV at {r}");
+        }
+    }
+
+    #[test]
+    fn six_thousand_alternating_dated_flows_answer() {
+        // The same alternating flows 30 days apart (XIRR shares this search): the one root is
+        // again a rate of 0, where the 6,000 flows cancel.
+        let alternating: Vec<i64> = (0..6000).map(|t| if t % 2 == 0 { -1 } else { 1 }).collect();
+        let start = time::macros::date!(2000 - 01 - 01);
+        let dates: Vec<time::Date> = (0..6000).map(|t| start + time::Duration::days(30 * t)).collect();
+        let o = crate::finance::xirr_outcome(&flows(&alternating), &dates).unwrap();
+        assert!(o.ambiguous);
+        assert_eq!(o.roots.len(), 1);
+        assert!(o.roots[0].abs() < 1e-12, "{:?}", o.roots);
     }
 }

@@ -2,7 +2,7 @@
 //! and the OpenAPI document.
 
 use super::auth::CurrentUser;
-use super::cases::{CommentForm, CopyForm, figures_of};
+use super::cases::{CommentForm, CopyForm, figures_on_pool};
 use super::metrics;
 use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, JsonBody, NoQuery};
 use crate::app::{self, cases::ReviewStep};
@@ -97,8 +97,7 @@ pub async fn get_case(
 /// (`at_approval`) or today's (`today`), and `notes` carries the flags its pages show.
 async fn case_body(state: &AppState, id: i64) -> Result<Value, ApiError> {
     let today = db::get_site(&state.pool).await?;
-    let full: CaseFull = db::case_full(&state.pool, id).await?;
-    let figures = figures_of(&full, &today)?;
+    let (full, figures): (CaseFull, _) = figures_on_pool(db::case_full(&state.pool, id).await?, &today).await?;
     let site = full.case.settings(&today);
     let notes: Vec<Value> =
         full.case.notes(&today).into_iter().map(|(kind, text)| json!({ "kind": kind, "text": text })).collect();

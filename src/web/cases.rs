@@ -118,9 +118,13 @@ pub async fn load_figures(
     id: i64,
     today: &SiteSettings,
 ) -> Result<(CaseFull, CaseFigures), AppError> {
-    let full = db::case_full(&state.pool, id).await?;
-    let figures = figures_of(&full, today)?;
-    Ok((full, figures))
+    figures_on_pool(db::case_full(&state.pool, id).await?, today).await
+}
+
+/// [`figures_of`] on the bounded pool (a schedule of up to 1,200 months and its root search).
+pub(super) async fn figures_on_pool(full: CaseFull, today: &SiteSettings) -> Result<(CaseFull, CaseFigures), AppError> {
+    let today = today.clone();
+    crate::app::cpu::run(move || figures_of(&full, &today).map(|figures| (full, figures))).await?
 }
 
 /// A case's figures at its own settings ([`db::CaseVersion::settings`]): every page and the
@@ -172,14 +176,20 @@ pub async fn view(
     };
     let bases = state.figures.bases(&state.pool, &today, Trials::default()).await?;
     let site = full.case.settings(&today);
-    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
-    let header = &full.case.header;
-    let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
-    let drivers: Vec<&NewBenefitDriver> = full.drivers.iter().map(|d| &d.driver).collect();
-    let trials = Trials { seed, ..Trials::default() };
-    let uncertainty = case_uncertainty(header, &costs, &drivers, &site, &figures.pre_tax.metrics, &calibration, trials)
-        .map(|u| UncertaintyView::new(&u, header.success_probability, &calibration, &site.currency))
-        .map_err(|e| format!("the uncertainty cannot be computed: {e}"));
+    // The Monte Carlo, tornado and break-even are CPU-bound: on the bounded pool.
+    let (full, figures, site, uncertainty) = crate::app::cpu::run(move || {
+        let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
+        let header = &full.case.header;
+        let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
+        let drivers: Vec<&NewBenefitDriver> = full.drivers.iter().map(|d| &d.driver).collect();
+        let trials = Trials { seed, ..Trials::default() };
+        let uncertainty =
+            case_uncertainty(header, &costs, &drivers, &site, &figures.pre_tax.metrics, &calibration, trials)
+                .map(|u| UncertaintyView::new(&u, header.success_probability, &calibration, &site.currency))
+                .map_err(|e| format!("the uncertainty cannot be computed: {e}"));
+        (full, figures, site, uncertainty)
+    })
+    .await?;
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
     let pre = &figures.pre_tax;
     let cumulative: Vec<Decimal> = pre.schedule.rows.iter().map(|r| r.cumulative_discounted).collect();

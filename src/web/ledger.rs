@@ -191,14 +191,18 @@ async fn load(state: &AppState, zone_id: i64) -> Result<Loaded, AppError> {
     let history = db::baseline_history(&state.pool, zone_id).await?;
     let site = current(&history).map_or_else(|| today.clone(), |b| b.case.settings(&today));
     let entries = db::ledger::zone_entries(&state.pool, zone_id).await?;
-    let view = match db::history_of(&history) {
-        Some(h) => Some(
-            realized_view(&h, &entries, &today)
-                .map_err(|e| AppError::Conflict(format!("the realized figures cannot be computed: {e}")))?,
-        ),
-        None => None,
-    };
-    Ok((site, zone, history, entries, view))
+    // The realized figures (an XIRR over every entry): on the bounded pool.
+    crate::app::cpu::run(move || {
+        let view = match db::history_of(&history) {
+            Some(h) => Some(
+                realized_view(&h, &entries, &today)
+                    .map_err(|e| AppError::Conflict(format!("the realized figures cannot be computed: {e}")))?,
+            ),
+            None => None,
+        };
+        Ok((site, zone, history, entries, view))
+    })
+    .await?
 }
 
 /// The current baseline: the history's last version, when it is approved.
@@ -528,14 +532,23 @@ pub async fn export_zone(State(state): State<AppState>, Path(id): Path<i64>) -> 
     let zone = db::get_zone(&state.pool, id).await?;
     let entries = db::ledger::zone_entries(&state.pool, id).await?;
     let codes = std::iter::once((zone.id, zone.code.clone())).collect();
-    Ok(csv_response(&format!("ledger-{}.csv", zone.code), csv_of(&entries, &codes, NumberFormat::current())?))
+    Ok(csv_response(&format!("ledger-{}.csv", zone.code), csv_on_pool(entries, codes).await?))
 }
 
 /// GET /ledger.csv: every zone's entries.
 pub async fn export_all(State(state): State<AppState>) -> Result<Response, AppError> {
     let codes = db::list_zones(&state.pool).await?.into_iter().map(|z| (z.id, z.code)).collect();
     let entries = db::ledger::all_entries(&state.pool).await?;
-    Ok(csv_response("ledger.csv", csv_of(&entries, &codes, NumberFormat::current())?))
+    Ok(csv_response("ledger.csv", csv_on_pool(entries, codes).await?))
+}
+
+/// [`csv_of`] on the bounded pool, in the request's number format: a ledger has millions of
+/// rows at a plant group's scale.
+async fn csv_on_pool(
+    entries: Vec<LedgerEntry>,
+    codes: std::collections::HashMap<i64, String>,
+) -> Result<String, AppError> {
+    crate::app::cpu::run(move || csv_of(&entries, &codes, NumberFormat::current())).await?
 }
 
 /// GET /api/v1/zones/{id}/ledger: entries and realized figures.

@@ -18,6 +18,7 @@ mod zones;
 
 pub use crate::domain::ledger_csv::{IMPORT_MAX_BYTES, IMPORT_MAX_ROWS};
 pub use error::{ApiError, AppError};
+pub use metrics::MAX_FLOWS;
 
 use crate::auth::{Clock, Permission, Throttle};
 use crate::domain::FieldErrors;
@@ -227,7 +228,7 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/admin/readiness", Admin, post(admin::update_weights)),
         route(g.clone(), "/admin/audit", Admin, get(admin::audit)),
         route(g.clone(), "/api/v1/openapi.json", Public, get(api::openapi)),
-        route(p.clone(), "/api/v1/metrics", Read, post(metrics::metrics)),
+        route(p.clone(), "/api/v1/metrics", Read, post(metrics::metrics)).body_limit(metrics::METRICS_MAX_BYTES),
         route(g.clone(), "/api/v1/zones", Read, get(api::list_zones)),
         route(p.clone(), "/api/v1/zones", EditCases, post(api::create_zone)),
         route(g.clone(), "/api/v1/zones/{id}", Read, get(api::get_zone)),

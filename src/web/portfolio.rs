@@ -24,8 +24,13 @@ async fn compute(state: &AppState, params: PortfolioParams) -> Result<(SiteSetti
     let site = db::get_site(&state.pool).await?;
     let criteria = db::readiness::criteria(&state.pool).await?;
     let bases = state.figures.bases(&state.pool, &site, params.trials).await?;
-    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
-    Ok((site, build_portfolio(bases, &criteria, &calibration, params)))
+    // Ranking and the budget choice over every zone are CPU-bound: on the bounded pool.
+    let portfolio = crate::app::cpu::run(move || {
+        let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
+        build_portfolio(bases, &criteria, &calibration, params)
+    })
+    .await?;
+    Ok((site, portfolio))
 }
 
 fn standing_class(s: Standing) -> &'static str {
@@ -330,14 +335,18 @@ pub async fn page(
         .get(&state.pool, format!("page:{}?{query}", numbers.as_str()), || async {
             let basis = params.basis;
             let (site, portfolio) = compute(&state, params).await?;
-            let figures = PortfolioFigures {
-                basis,
-                charts: charts(&portfolio, &site.currency),
-                choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
-                rows: portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
-                query,
-            };
-            Ok(figures.render()?)
+            // Formatting every zone's row and chart: on the bounded pool.
+            crate::app::cpu::run(move || {
+                let figures = PortfolioFigures {
+                    basis,
+                    charts: charts(&portfolio, &site.currency),
+                    choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
+                    rows: portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
+                    query,
+                };
+                Ok(figures.render()?)
+            })
+            .await?
         })
         .await?;
     page.figures = Some(figures);
@@ -358,6 +367,11 @@ pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
 /// spreadsheet of that locale reads them.
 async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberFormat) -> Result<String, AppError> {
     let (site, portfolio) = compute(state, params).await?;
+    // Writing every zone's row: on the bounded pool.
+    crate::app::cpu::run(move || csv_of(&site, &portfolio, numbers)).await?
+}
+
+fn csv_of(site: &SiteSettings, portfolio: &Portfolio, numbers: NumberFormat) -> Result<String, AppError> {
     let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let cur = &site.currency;
     let header = [
@@ -538,6 +552,11 @@ struct ApiAnswer<'a> {
 
 async fn api_json(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
     let (site, p) = compute(state, params).await?;
+    // Serializing every zone's row: on the bounded pool.
+    crate::app::cpu::run(move || json_of(&site, &p)).await?
+}
+
+fn json_of(site: &SiteSettings, p: &Portfolio) -> Result<String, AppError> {
     let choice = p.choice.as_ref().map(|c| {
         let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
             p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()

@@ -132,6 +132,37 @@ async fn metrics_bad_input_names_the_field() {
     assert!(syntax.json()["error"].is_string());
 }
 
+/// `n` flows alternating in sign (the deepest root search there is), one a month from 2000.
+fn alternating_flows(n: usize) -> Value {
+    let flows: Vec<String> = (0..n).map(|t| if t % 2 == 0 { "-1000" } else { "1000" }.to_string()).collect();
+    let start = time::macros::date!(2000 - 01 - 01);
+    let dates: Vec<String> = (0..n).map(|t| (start + time::Duration::days(30 * t as i64)).to_string()).collect();
+    json!({"rate": "0.01", "flows": flows, "dates": dates})
+}
+
+#[tokio::test]
+async fn metrics_refuse_more_than_2400_flows() {
+    let t = test_app(false).await;
+    let over = t.post_json("/api/v1/metrics", &alternating_flows(2401).to_string()).await;
+    assert_eq!(over.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", over.text);
+    assert_eq!(
+        over.json()["fields"],
+        json!([{"field": "flows", "message": "at most 2400 flows per request: 2401 given"}])
+    );
+    // 330,000 short flows (1.8 MB) are refused before they are read into a JSON tree.
+    let huge = format!(r#"{{"rate": "0.1", "flows": [{}"1"]}}"#, "\"-1\",".repeat(330_000));
+    let a = t.post_json("/api/v1/metrics", &huge).await;
+    assert_eq!(a.status, StatusCode::PAYLOAD_TOO_LARGE, "{}", a.text);
+    assert_eq!(a.json()["error"], "Failed to buffer the request body: length limit exceeded");
+    // Positive control: exactly at the limit, dated and alternating, it answers (a rate of 0,
+    // where the flows cancel).
+    let at = t.post_json("/api/v1/metrics", &alternating_flows(2400).to_string()).await;
+    assert_eq!(at.status, StatusCode::OK, "{}", at.text);
+    let v = at.json();
+    assert_eq!(v["irr_roots"], json!(["0"]));
+    assert_eq!(v["xirr"], "0");
+}
+
 #[tokio::test]
 async fn rejected_writes_change_nothing() {
     let t = test_app(false).await;

@@ -15,6 +15,7 @@ mod helpers;
 mod history;
 mod hostile;
 mod ledger;
+mod load;
 mod numbers;
 mod pages;
 mod portfolio;
