@@ -82,7 +82,7 @@ fn peak_kb(pid: u32) -> u64 {
 }
 
 #[test]
-#[ignore = "a latency bound: run alone on an otherwise idle machine, `cargo test --test it load:: -- --ignored`"]
+#[ignore = "a latency bound: run alone, as .ci/run does: `cargo test --test it load:: -- --ignored`"]
 fn ten_concurrent_requests_at_each_limit_leave_sign_in_fast_and_memory_bounded() {
     if !std::path::Path::new("/proc/self/status").exists() {
         eprintln!("skipped: no /proc to read the server's resident memory from");
