@@ -253,7 +253,11 @@ pub fn app(state: AppState) -> Router {
     let mut router = Router::new();
     for r in routes() {
         // axum's extractors (form, JSON, multipart) stop reading at the route's limit with a 413.
-        router = router.route(r.path, r.handler.layer(DefaultBodyLimit::max(r.body_limit)));
+        let limit = r.body_limit;
+        let handler = r.handler.layer(DefaultBodyLimit::max(limit)).layer(axum::middleware::from_fn(
+            move |req: Request, next: axum::middleware::Next| name_the_limit(limit, req, next),
+        ));
+        router = router.route(r.path, handler);
     }
     let router = router
         .method_not_allowed_fallback(method_not_allowed)
@@ -302,6 +306,24 @@ async fn method_not_allowed(uri: axum::http::Uri) -> axum::response::Response {
         message: "this path does not take this method; the Allow header lists those it takes".into(),
     };
     if uri.path().starts_with("/api/") { ApiError(error).into_response() } else { error.into_response() }
+}
+
+/// Answer a body refused by the route's size limit with a message that names the limit (the
+/// extractors' own message, "length limit exceeded", does not say what the limit is).
+async fn name_the_limit(limit: usize, req: Request, next: axum::middleware::Next) -> axum::response::Response {
+    use axum::response::IntoResponse;
+    let api = req.uri().path().starts_with("/api/");
+    let res = next.run(req).await;
+    if res.status() != StatusCode::PAYLOAD_TOO_LARGE {
+        return res;
+    }
+    // An import's limit carries room for the multipart framing: name the file's whole MiB.
+    let size = if limit >= 1 << 20 { format!("{} MiB", limit >> 20) } else { format!("{} KiB", limit >> 10) };
+    let error = AppError::BadRequest {
+        status: StatusCode::PAYLOAD_TOO_LARGE,
+        message: format!("the body is larger than the {size} this request accepts; nothing was changed"),
+    };
+    if api { ApiError(error).into_response() } else { error.into_response() }
 }
 
 /// Marks the answer to a request whose handler panicked.
