@@ -18,4 +18,5 @@ mod numbers;
 mod pages;
 mod portfolio;
 mod realized;
+mod scale;
 mod security;
