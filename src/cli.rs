@@ -236,8 +236,8 @@ pub async fn serve(listener: TcpListener, pool: SqlitePool, secure_cookies: bool
     // Bound already: requests are answered meanwhile, with what is ready (web::figures).
     tokio::spawn(warm_up(state.clone()));
     axum::serve(listener, app(state).into_make_service_with_connect_info::<SocketAddr>())
-    .with_graceful_shutdown(stop)
-    .await?;
+        .with_graceful_shutdown(stop)
+        .await?;
     db::close(&pool).await.context("checkpointing the database at shutdown failed")?;
     tracing::info!("stopped; the database file is checkpointed");
     Ok(())

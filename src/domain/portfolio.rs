@@ -581,14 +581,16 @@ pub fn build_portfolio(
         })
         .collect();
     let choice = params.budget.map(|budget| choose(&mut rows, budget, params.basis));
+    // Each key computed once (decimal to float conversions): a plant group ranks 10,000 rows.
     let rank = params.rank;
-    rows.sort_by(|a, b| match (a.key(rank), b.key(rank)) {
-        (Some(x), Some(y)) => y.total_cmp(&x).then_with(|| a.zone().code.cmp(&b.zone().code)),
+    let mut keyed: Vec<(Option<f64>, PortfolioRow)> = rows.into_iter().map(|r| (r.key(rank), r)).collect();
+    keyed.sort_by(|(ka, a), (kb, b)| match (ka, kb) {
+        (Some(x), Some(y)) => y.total_cmp(x).then_with(|| a.zone().code.cmp(&b.zone().code)),
         (Some(_), None) => Ordering::Less,
         (None, Some(_)) => Ordering::Greater,
         (None, None) => a.zone().code.cmp(&b.zone().code),
     });
-    Portfolio { rows, choice, params }
+    Portfolio { rows: keyed.into_iter().map(|(_, r)| r).collect(), choice, params }
 }
 
 /// Run the knapsack and the greedy order over the candidate rows; mark each row's standing.

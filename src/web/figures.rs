@@ -146,7 +146,12 @@ impl FigureCache {
 
     /// [`Self::warm_up`] in chunks of `chunk` zones, awaiting `before_chunk(done, total)`
     /// before each (tests hold the warm-up there). Returns the number of zones computed.
-    pub async fn warm_up_with<F, Fut>(&self, pool: &SqlitePool, chunk: usize, before_chunk: F) -> Result<usize, AppError>
+    pub async fn warm_up_with<F, Fut>(
+        &self,
+        pool: &SqlitePool,
+        chunk: usize,
+        before_chunk: F,
+    ) -> Result<usize, AppError>
     where
         F: FnMut(usize, usize) -> Fut,
         Fut: Future<Output = ()>,

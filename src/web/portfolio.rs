@@ -3,8 +3,8 @@
 
 use super::auth::{CurrentUser, Nav};
 use super::chart::{Axis, RangeBars, RangeInput, Scatter, ScatterPoint};
-use super::metrics::{money_text, rate_text};
 use super::figures::READY_WAIT;
+use super::metrics::{money_text, rate_text};
 use super::{ApiError, AppError, AppState};
 use crate::db;
 use crate::domain::{
@@ -394,7 +394,11 @@ pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
 /// The CSV: the API's decimal strings with the site's decimal separator, ungrouped, so that a
 /// spreadsheet of that locale reads them.
 /// A file is complete or not sent: it waits for a running warm-up of the figures to end.
-async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberFormat) -> Result<(String, bool), AppError> {
+async fn csv_text(
+    state: &AppState,
+    params: PortfolioParams,
+    numbers: NumberFormat,
+) -> Result<(String, bool), AppError> {
     let Computed { site, portfolio, .. } = compute(state, params, None).await?;
     let mut w = csv::WriterBuilder::new().delimiter(numbers.csv_delimiter()).from_writer(Vec::new());
     let cur = &site.currency;
@@ -658,7 +662,8 @@ fn row_pieces(r: &PortfolioRow) -> Vec<Box<str>> {
     CUTS.iter()
         .map(|(from, to)| {
             let start = text[at..].find(from).map_or(text.len(), |i| at + i);
-            let end = if *to == "}" { text.len() - 1 } else { text[start..].find(to).map_or(text.len(), |i| start + i) };
+            let end =
+                if *to == "}" { text.len() - 1 } else { text[start..].find(to).map_or(text.len(), |i| start + i) };
             at = end;
             text[start..end].into()
         })

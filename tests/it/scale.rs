@@ -143,10 +143,31 @@ async fn after_a_booking_the_stitched_answer_is_what_a_cold_server_computes() {
     // The stitched row keeps the field order of a serialized row.
     let first_row = &after.text[after.text.find(r#""zones":[{"#).unwrap()..];
     let keys = [
-        "rank", "zone_id", "code", "name", "status", "standing", "in_pi_order_set", "case", "investment", "npv",
-        "risk_adjusted_npv", "calibrated_npv", "irr", "payback_months", "profitability_index",
-        "probability_npv_below_zero", "mean_npv", "p10_npv", "p50_npv", "p90_npv", "realization_to_date",
-        "readiness", "problem", "hurdle_rate", "hurdle_rate_basis",
+        "rank",
+        "zone_id",
+        "code",
+        "name",
+        "status",
+        "standing",
+        "in_pi_order_set",
+        "case",
+        "investment",
+        "npv",
+        "risk_adjusted_npv",
+        "calibrated_npv",
+        "irr",
+        "payback_months",
+        "profitability_index",
+        "probability_npv_below_zero",
+        "mean_npv",
+        "p10_npv",
+        "p50_npv",
+        "p90_npv",
+        "realization_to_date",
+        "readiness",
+        "problem",
+        "hurdle_rate",
+        "hurdle_rate_basis",
     ];
     let mut at = 0;
     for key in keys {
