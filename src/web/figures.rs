@@ -27,7 +27,7 @@ use crate::db;
 use crate::domain::{SiteSettings, Trials, ZoneBase, ZoneData, zone_base};
 use rayon::prelude::*;
 use sqlx::SqlitePool;
-use std::collections::HashMap;
+use std::collections::{HashMap, HashSet};
 use std::future::Future;
 use std::sync::{Arc, Mutex, PoisonError};
 use std::time::Duration;
@@ -37,8 +37,8 @@ use tokio::sync::watch;
 type Entry = (i64, i64, Arc<ZoneBase>);
 
 /// How long a portfolio request waits for a running warm-up before answering with what is
-/// ready.
-pub const READY_WAIT: Duration = Duration::from_secs(1);
+/// ready: with the answer's own work it stays under a second.
+pub const READY_WAIT: Duration = Duration::from_millis(800);
 
 /// Zones the warm-up computes per step: small enough that requests see steady progress and
 /// get the CPU pool between steps (about 0.1 s per step on two cores).
@@ -145,7 +145,7 @@ impl FigureCache {
     }
 
     /// [`Self::warm_up`] in chunks of `chunk` zones, awaiting `before_chunk(done, total)`
-    /// before each (tests hold the warm-up there). Returns the number of zones computed.
+    /// before each (tests hold the warm-up there). Returns the number of zones gone through.
     pub async fn warm_up_with<F, Fut>(
         &self,
         pool: &SqlitePool,
@@ -169,18 +169,25 @@ impl FigureCache {
         Fut: Future<Output = ()>,
     {
         let site = db::get_site(pool).await?;
-        let known: HashMap<i64, (i64, i64)> = self.lock().iter().map(|(id, (n, s, _))| (*id, (*n, *s))).collect();
-        let snapshot = db::snapshot(pool, move |id, n, s| known.get(&id) == Some(&(n, s))).await?;
-        let total = snapshot.stale.len();
-        let mut stale = snapshot.stale;
+        // The zones as they are now; each step reads only its own zones' data, so that the
+        // first are ready quickly and no step holds the whole plant group in memory.
+        let zones = db::snapshot(pool, |_, _, _| true).await?.counters;
+        let total = zones.len();
         let mut done = 0;
-        while !stale.is_empty() {
+        for step in zones.chunks(chunk) {
             before_chunk(done, total).await;
-            let rest = stale.split_off(chunk.min(stale.len()));
-            let step: Vec<_> = std::mem::replace(&mut stale, rest).into_iter().map(|(n, d)| (n, d, None)).collect();
-            done += step.len();
-            let computed = compute(step, &site, Trials::default()).await?;
+            let wanted: HashSet<i64> = step.iter().map(|(id, _)| *id).collect();
+            let known: HashMap<i64, (i64, i64)> = {
+                let map = self.lock();
+                wanted.iter().filter_map(|id| map.get(id).map(|(n, s, _)| (*id, (*n, *s)))).collect()
+            };
+            // A zone a request has computed meanwhile is not computed again.
+            let snapshot =
+                db::snapshot(pool, move |id, n, s| !wanted.contains(&id) || known.get(&id) == Some(&(n, s))).await?;
+            let stale = snapshot.stale.into_iter().map(|(n, data)| (n, data, None)).collect();
+            let computed = compute(stale, &site, Trials::default()).await?;
             self.store(&computed, snapshot.site);
+            done += step.len();
         }
         Ok(done)
     }
