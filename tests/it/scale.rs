@@ -176,3 +176,39 @@ async fn after_a_booking_the_stitched_answer_is_what_a_cold_server_computes() {
     }
     assert!(first_row[at..].find('}').unwrap() < first_row[at..].find(r#""rank":"#).unwrap(), "one row");
 }
+
+#[tokio::test]
+async fn the_page_shows_the_head_of_a_long_ranking_and_says_so() {
+    let t = test_app(false).await;
+    let zones: Vec<Value> = (1..=251)
+        .map(|z| {
+            serde_json::json!({"code": format!("MANY-{z:03}"), "name": format!("Zone {z}"), "status": "candidate",
+             "cases": [{"label": "Base", "horizon_months": 24, "start_month": "2026-01", "go_live_offset": 0,
+                        "ramp_up_months": 0, "success_probability": "0.8",
+                        "costs": [{"label": "Kit", "category": "hardware", "kind": "one_off", "amount": "10000", "month_offset": 0, "capex": true}],
+                        "drivers": [{"label": "Energy", "kind": "energy", "unit": "kWh", "qty_low": "1000",
+                                     "qty_likely": (5000 + z * 10).to_string(), "qty_high": "60000", "unit_value": "2"}]}]})
+        })
+        .collect();
+    let scenario = serde_json::json!({"format": "pilot-ledger-scenario", "version": 1, "zones": zones});
+    pilot_ledger::cli::load_text(&t.pool, &scenario.to_string()).await.unwrap();
+    let page = t.get("/portfolio?budget=50000").await;
+    assert_eq!(page.status, StatusCode::OK);
+    assert!(page.text.contains("The charts and the table show the first 250 of 251 zones in ranking\norder"));
+    assert_eq!(page.text.matches("<tr class=\"standing-").count(), 250);
+    // Ranked by NPV: the largest likely quantity first, the smallest is the one left off the page.
+    assert!(page.text.contains(r#"data-code="MANY-251""#));
+    assert!(!page.text.contains(r#"data-code="MANY-001""#));
+    // The budget choice counts every zone; the CSV lists them all.
+    let api = t.get("/api/v1/portfolio?budget=50000").await.json();
+    assert_eq!(api["zones"].as_array().unwrap().len(), 251);
+    assert_eq!(api["choice"]["recommended"].as_array().unwrap().len(), 5);
+    let csv = t.get("/portfolio.csv?budget=50000").await;
+    assert_eq!(csv.text.lines().count(), 1 + 251);
+
+    // Positive control: a plant of 8 zones shows them all, without the note.
+    let demo = test_app(true).await;
+    let page = demo.get("/portfolio?budget=50000").await;
+    assert_eq!(page.text.matches("<tr class=\"standing-").count(), 8);
+    assert!(!page.text.contains("The charts and the table show the first"));
+}
