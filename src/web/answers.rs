@@ -14,32 +14,33 @@
 use super::AppError;
 use crate::db;
 use crate::domain::ZoneBase;
+use axum::body::Bytes;
 use rayon::prelude::*;
 use sqlx::SqlitePool;
 use std::collections::HashMap;
 use std::future::Future;
 use std::sync::{Arc, Mutex, PoisonError};
 
-/// A stored answer: shared text, sent as a response body without copying.
+/// A stored answer: shared text, sent as a response body without copying (and taken from
+/// its `String` without copying: the API's answer is 6.5 MB at 10,000 zones).
 #[derive(Clone)]
-pub struct Answer(Arc<str>);
+pub struct Answer(Bytes);
 
 impl Answer {
+    fn new(text: String) -> Self {
+        Self(Bytes::from(text))
+    }
+
     /// The text as a response body.
     pub fn body(&self) -> axum::body::Body {
-        axum::body::Body::from(axum::body::Bytes::from_owner(self.clone()))
-    }
-}
-
-impl AsRef<[u8]> for Answer {
-    fn as_ref(&self) -> &[u8] {
-        self.0.as_bytes()
+        axum::body::Body::from(self.0.clone())
     }
 }
 
 impl std::fmt::Display for Answer {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.0)
+        // Made from a `String` only, so always UTF-8.
+        f.write_str(std::str::from_utf8(&self.0).unwrap_or_default())
     }
 }
 
@@ -132,7 +133,7 @@ impl AnswerCache {
         // Read again: whatever committed while this request waited is in the new answer.
         let generation = db::generation(pool).await?;
         let (text, complete) = render().await?;
-        let text = Answer(text.into());
+        let text = Answer::new(text);
         *answer = complete.then(|| (generation, text.clone()));
         Ok(text)
     }
