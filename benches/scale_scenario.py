@@ -1,7 +1,7 @@
 """Writes a group-scale scenario file: 1,000 zones with 4 drivers each and 60 months of ledger
 entries per measuring zone's driver (240,000 bookings), all invented, for `pilot-ledger load`.
 
-    python3 benches/scale_scenario.py target/scale.json
+    python3 benches/scale_scenario.py target/scale.json [zones]
     cargo run --release -- --database-url sqlite://target/scale.db load target/scale.json
 
 The file carries site settings (they replace a database's own). Every zone is "measuring" against an approved baseline that started 60 months ago, so the
@@ -11,7 +11,7 @@ import json
 import random
 import sys
 
-ZONES, DRIVERS, MONTHS = 1000, 4, 60
+ZONES, DRIVERS, MONTHS = 1000, 4, 60  # ZONES: the default; a second argument overrides it
 KINDS = ["scrap", "energy", "downtime", "expert_time"]
 UNITS = {"scrap": "pcs", "energy": "kWh", "downtime": "min", "expert_time": "h"}
 VALUES = {"scrap": (8, 40), "energy": (0.08, 0.25), "downtime": (10, 40), "expert_time": (50, 110)}
@@ -23,10 +23,10 @@ def month(start_year, start_month, k):
     return f"{i // 12:04d}-{i % 12 + 1:02d}"
 
 
-def main(path):
+def main(path, zones_count=ZONES):
     rng = random.Random(6)
     zones = []
-    for z in range(ZONES):
+    for z in range(zones_count):
         drivers = []
         for d in range(DRIVERS):
             kind = KINDS[d]
@@ -43,7 +43,7 @@ def main(path):
                 ledger.append({"kind": "saving", "driver": d["label"], "method": "direct",
                                "period": month(2021, 11, k), "quantity": f"{q:.1f}", "evidence": "meter export"})
         zones.append({
-            "code": f"SCALE-{z + 1:04d}", "name": f"Generated zone {z + 1}", "status": "measuring",
+            "code": f"SCALE-{z + 1:05d}" if zones_count > 9999 else f"SCALE-{z + 1:04d}", "name": f"Generated zone {z + 1}", "status": "measuring",
             "readiness": {"data_reach": rng.randint(1, 5), "fit_with_systems": rng.randint(1, 5),
                           "expert_time": rng.randint(1, 5), "safe_while_running": rng.randint(1, 5)},
             "cases": [{"label": "Base", "horizon_months": 72, "start_month": "2021-11", "go_live_offset": 0,
@@ -58,8 +58,8 @@ def main(path):
     with open(path, "w") as f:
         site = {"plant_name": "Generated group (fictional)", "currency": "EUR", "hurdle_rate": "0.09"}
         json.dump({"format": "pilot-ledger-scenario", "version": 1, "site": site, "zones": zones}, f)
-    print(f"{path}: {ZONES} zones, {ZONES * DRIVERS} drivers, {ZONES * DRIVERS * MONTHS} ledger entries")
+    print(f"{path}: {zones_count} zones, {zones_count * DRIVERS} drivers, {zones_count * DRIVERS * MONTHS} ledger entries")
 
 
 if __name__ == "__main__":
-    main(sys.argv[1] if len(sys.argv) > 1 else "target/scale.json")
+    main(sys.argv[1] if len(sys.argv) > 1 else "target/scale.json", int(sys.argv[2]) if len(sys.argv) > 2 else ZONES)

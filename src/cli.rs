@@ -234,17 +234,25 @@ pub async fn serve(listener: TcpListener, pool: SqlitePool, args: &ServeArgs) ->
     let addr = listener.local_addr()?;
     let stop = stop_signal();
     tracing::info!(%addr, "listening on http://{addr}");
-    axum::serve(
-        listener,
-        app(AppState::new(pool.clone(), Arc::new(SystemClock), args.secure_cookies)
-            .with_allowed_hosts(args.allowed_hosts.clone()))
-        .into_make_service_with_connect_info::<SocketAddr>(),
-    )
-    .with_graceful_shutdown(stop)
-    .await?;
+    let state = AppState::new(pool.clone(), Arc::new(SystemClock), args.secure_cookies)
+        .with_allowed_hosts(args.allowed_hosts.clone());
+    // Bound already: requests are answered meanwhile, with what is ready (web::figures).
+    tokio::spawn(warm_up(state.clone()));
+    axum::serve(listener, app(state).into_make_service_with_connect_info::<SocketAddr>())
+        .with_graceful_shutdown(stop)
+        .await?;
     db::close(&pool).await.context("checkpointing the database at shutdown failed")?;
     tracing::info!("stopped; the database file is checkpointed");
     Ok(())
+}
+
+/// Compute every zone's figures in the background, logging how long it took.
+pub async fn warm_up(state: AppState) {
+    let started = std::time::Instant::now();
+    match state.figures.warm_up(&state.pool).await {
+        Ok(zones) => tracing::info!(zones, seconds = started.elapsed().as_secs_f64(), "figures warmed up"),
+        Err(e) => tracing::warn!(%e, "warming up the figures failed; they are computed on demand"),
+    }
 }
 
 /// Ctrl-C (SIGINT) or, on Unix, SIGTERM (what service managers and `kill` send). On Unix the

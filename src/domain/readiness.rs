@@ -40,16 +40,17 @@ impl Readiness {
     /// `sum(w_i * s_i) / sum(w_i)` over the criteria with a weight and a score; `None` when none
     /// of the weighted criteria is scored.
     pub fn weighted(criteria: &[Criterion], scores: &HashMap<i64, u8>) -> Option<Self> {
-        let weighted: Vec<&Criterion> = criteria.iter().filter(|c| c.weight > 0).collect();
-        let (mut sum, mut weights, mut rated) = (0.0, 0.0, 0);
-        for c in &weighted {
+        // No allocation: the portfolio weighs every zone on each recomputation.
+        let (mut sum, mut weights, mut rated, mut of) = (0.0, 0.0, 0, 0);
+        for c in criteria.iter().filter(|c| c.weight > 0) {
+            of += 1;
             if let Some(&s) = scores.get(&c.id) {
                 sum += f64::from(c.weight) * f64::from(s);
                 weights += f64::from(c.weight);
                 rated += 1;
             }
         }
-        (rated > 0).then(|| Self { score: sum / weights, rated, of: weighted.len() })
+        (rated > 0).then(|| Self { score: sum / weights, rated, of })
     }
 
     /// Whether every weighted criterion is scored.

@@ -8,35 +8,39 @@
 //! One computation per answer runs at a time: readers arriving meanwhile wait for it and then
 //! either take its result or, if something committed after it started, compute the next one
 //! for everyone queued behind them. Under a stream of bookings each computation thus serves
-//! all the reads that arrived while the previous one ran.
+//! all the reads that arrived while the previous one ran. An answer computed while the
+//! figures' warm-up runs leaves zones out ([`super::figures`]): it is sent but not stored.
 
 use super::AppError;
 use crate::db;
+use crate::domain::ZoneBase;
+use axum::body::Bytes;
+use rayon::prelude::*;
 use sqlx::SqlitePool;
 use std::collections::HashMap;
 use std::future::Future;
 use std::sync::{Arc, Mutex, PoisonError};
 
-/// A stored answer: shared text, sent as a response body without copying.
+/// A stored answer: shared text, sent as a response body without copying (and taken from
+/// its `String` without copying: the API's answer is 6.5 MB at 10,000 zones).
 #[derive(Clone)]
-pub struct Answer(Arc<str>);
+pub struct Answer(Bytes);
 
 impl Answer {
+    fn new(text: String) -> Self {
+        Self(Bytes::from(text))
+    }
+
     /// The text as a response body.
     pub fn body(&self) -> axum::body::Body {
-        axum::body::Body::from(axum::body::Bytes::from_owner(self.clone()))
-    }
-}
-
-impl AsRef<[u8]> for Answer {
-    fn as_ref(&self) -> &[u8] {
-        self.0.as_bytes()
+        axum::body::Body::from(self.0.clone())
     }
 }
 
 impl std::fmt::Display for Answer {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.0)
+        // Made from a `String` only, so always UTF-8.
+        f.write_str(std::str::from_utf8(&self.0).unwrap_or_default())
     }
 }
 
@@ -46,19 +50,77 @@ type Slot = Arc<tokio::sync::Mutex<Option<(i64, Answer)>>>;
 /// More distinct queries than this and an idle answer is dropped for each new one.
 const MAX_ANSWERS: usize = 64;
 
-/// Query text -> its latest answer.
+/// Query text -> its latest answer; and the rendered row pieces.
 #[derive(Default)]
 pub struct AnswerCache {
     slots: Mutex<HashMap<String, Slot>>,
+    /// Pieces of the API's rows.
+    pub api_rows: RowPieces,
+}
+
+/// A zone's rendered pieces: the figures they were rendered from, and the text.
+type Pieces = (Arc<ZoneBase>, Arc<[Box<str>]>);
+
+/// Zone id -> the pieces of its row that depend on its figures only (see the module docs).
+#[derive(Default)]
+pub struct RowPieces {
+    zones: Mutex<HashMap<i64, Pieces>>,
+}
+
+impl RowPieces {
+    /// The pieces of each of `bases`, in order: kept ones where they were rendered from
+    /// exactly these figures, the others rendered by `render` (in parallel) and kept. CPU
+    /// work: call it on the CPU pool.
+    pub fn get<T: Sync>(
+        &self,
+        bases: &[(&Arc<ZoneBase>, T)],
+        render: impl Fn(&T) -> Vec<Box<str>> + Sync,
+    ) -> Vec<Arc<[Box<str>]>> {
+        let mut out: Vec<Option<Arc<[Box<str>]>>> = {
+            let zones = self.lock();
+            bases
+                .iter()
+                .map(|(base, _)| {
+                    zones.get(&base.zone.id).filter(|(from, _)| Arc::ptr_eq(from, base)).map(|(_, p)| p.clone())
+                })
+                .collect()
+        };
+        let missing: Vec<(usize, Arc<[Box<str>]>)> = out
+            .iter()
+            .enumerate()
+            .filter(|(_, p)| p.is_none())
+            .map(|(i, _)| i)
+            .collect::<Vec<_>>()
+            .into_par_iter()
+            .map(|i| (i, render(&bases[i].1).into()))
+            .collect();
+        if !missing.is_empty() {
+            let mut zones = self.lock();
+            for (i, pieces) in &missing {
+                let base = bases[*i].0;
+                zones.insert(base.zone.id, (base.clone(), pieces.clone()));
+            }
+        }
+        for (i, pieces) in missing {
+            out[i] = Some(pieces);
+        }
+        out.into_iter().flatten().collect()
+    }
+
+    fn lock(&self) -> std::sync::MutexGuard<'_, HashMap<i64, Pieces>> {
+        // A panic while holding the lock leaves a usable map: pieces name their figures.
+        self.zones.lock().unwrap_or_else(PoisonError::into_inner)
+    }
 }
 
 impl AnswerCache {
     /// The answer for `key`, computed by `render` unless one at least as new as the database
-    /// is stored.
+    /// is stored. `render` also says whether its answer is complete; one that is not is
+    /// never stored.
     pub async fn get<F, Fut>(&self, pool: &SqlitePool, key: String, render: F) -> Result<Answer, AppError>
     where
         F: FnOnce() -> Fut,
-        Fut: Future<Output = Result<String, AppError>>,
+        Fut: Future<Output = Result<(String, bool), AppError>>,
     {
         let asked_at = db::generation(pool).await?;
         let slot = self.slot(key);
@@ -70,8 +132,9 @@ impl AnswerCache {
         }
         // Read again: whatever committed while this request waited is in the new answer.
         let generation = db::generation(pool).await?;
-        let text = Answer(render().await?.into());
-        *answer = Some((generation, text.clone()));
+        let (text, complete) = render().await?;
+        let text = Answer::new(text);
+        *answer = complete.then(|| (generation, text.clone()));
         Ok(text)
     }
 

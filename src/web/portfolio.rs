@@ -3,12 +3,13 @@
 
 use super::auth::{CurrentUser, Nav};
 use super::chart::{Axis, RangeBars, RangeInput, Scatter, ScatterPoint};
+use super::figures::READY_WAIT;
 use super::metrics::{money_text, rate_text};
 use super::{ApiError, AppError, AppState};
 use crate::db;
 use crate::domain::{
     BudgetChoice, FieldErrors, Money, NumberFormat, Percent, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,
-    RankBy, SiteSettings, Standing, ValueBasis, build_portfolio, calibration_of, csv_safe,
+    RankBy, SiteSettings, Standing, ValueBasis, ZoneBase, build_portfolio, calibration_of, csv_safe,
 };
 use askama::Template;
 use axum::extract::{Query, State};
@@ -18,19 +19,40 @@ use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
 use serde::Serialize;
 use serde_json::json;
+use std::sync::Arc;
+use std::time::Duration;
 
-/// Compute the portfolio for a valid query.
-async fn compute(state: &AppState, params: PortfolioParams) -> Result<(SiteSettings, Portfolio), AppError> {
+/// Rows the page's table and charts show: the head of the ranking. The budget choice above
+/// them counts every zone, and the CSV has them all.
+pub const PAGE_ROWS: usize = 250;
+
+/// A computed portfolio, and how many zones' figures were not ready for it.
+struct Computed {
+    site: SiteSettings,
+    portfolio: Portfolio,
+    /// Zones the figures' warm-up has not reached yet, left out of `portfolio`.
+    pending: usize,
+}
+
+impl Computed {
+    /// Whether every zone is in: only then may the answer be stored.
+    fn complete(&self) -> bool {
+        self.pending == 0
+    }
+}
+
+/// Compute the portfolio for a valid query, waiting for a running warm-up of the figures at
+/// most `wait` (`None`: until it ends).
+async fn compute(state: &AppState, params: PortfolioParams, wait: Option<Duration>) -> Result<Computed, AppError> {
     let site = db::get_site(&state.pool).await?;
     let criteria = db::readiness::criteria(&state.pool).await?;
-    let bases = state.figures.bases(&state.pool, &site, params.trials).await?;
-    // Ranking and the budget choice over every zone are CPU-bound: on the bounded pool.
+    let bases = state.figures.bases_within(&state.pool, &site, params.trials, wait).await?;
     let portfolio = crate::app::cpu::run(move || {
-        let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
-        build_portfolio(bases, &criteria, &calibration, params)
+        let calibration = calibration_of(bases.zones.iter().map(|b| b.as_ref()));
+        build_portfolio(bases.zones, &criteria, &calibration, params)
     })
     .await?;
-    Ok((site, portfolio))
+    Ok(Computed { site, portfolio, pending: bases.pending })
 }
 
 fn standing_class(s: Standing) -> &'static str {
@@ -143,8 +165,9 @@ struct Charts {
     readiness: Scatter,
 }
 
-fn charts(p: &Portfolio, currency: &str) -> Charts {
-    let ok: Vec<&PortfolioRow> = p.rows.iter().filter(|r| r.figures().is_some()).collect();
+/// The charts of `rows` (the head of the ranking the page shows).
+fn charts(rows: &[PortfolioRow], currency: &str) -> Charts {
+    let ok: Vec<&PortfolioRow> = rows.iter().filter(|r| r.figures().is_some()).collect();
     let npv = |r: &PortfolioRow| r.npv().map_or(0.0, f64_of);
     let bars = ok
         .iter()
@@ -275,7 +298,12 @@ struct PortfolioPage {
 #[template(path = "portfolio/_figures.html")]
 struct PortfolioFigures {
     basis: ValueBasis,
+    /// The head of the ranking ([`PAGE_ROWS`]).
     rows: Vec<RowView>,
+    /// How many zones the ranking has.
+    ranked: usize,
+    /// Zones whose figures are still being computed (left out of everything below).
+    pending: usize,
     charts: Charts,
     choice: Option<ChoiceView>,
     query: String,
@@ -334,19 +362,24 @@ pub async fn page(
         .answers
         .get(&state.pool, format!("page:{}?{query}", numbers.as_str()), || async {
             let basis = params.basis;
-            let (site, portfolio) = compute(&state, params).await?;
-            // Formatting every zone's row and chart: on the bounded pool.
-            crate::app::cpu::run(move || {
+            let computed = compute(&state, params, Some(READY_WAIT)).await?;
+            let complete = computed.complete();
+            let Computed { site, portfolio, pending } = computed;
+            // Formatting the rows and charts: on the bounded pool.
+            let html = crate::app::cpu::run(move || {
                 let figures = PortfolioFigures {
                     basis,
-                    charts: charts(&portfolio, &site.currency),
+                    charts: charts(&portfolio.rows[..portfolio.rows.len().min(PAGE_ROWS)], &site.currency),
                     choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
-                    rows: portfolio.rows.iter().enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
+                    rows: portfolio.rows.iter().take(PAGE_ROWS).enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
+                    ranked: portfolio.rows.len(),
+                    pending,
                     query,
                 };
-                Ok(figures.render()?)
+                figures.render()
             })
-            .await?
+            .await??;
+            Ok((html, complete))
         })
         .await?;
     page.figures = Some(figures);
@@ -364,11 +397,16 @@ pub async fn csv(State(state): State<AppState>, Query(q): Query<PortfolioQuery>)
 }
 
 /// The CSV: the API's decimal strings with the site's decimal separator, ungrouped, so that a
-/// spreadsheet of that locale reads them.
-async fn csv_text(state: &AppState, params: PortfolioParams, numbers: NumberFormat) -> Result<String, AppError> {
-    let (site, portfolio) = compute(state, params).await?;
+/// spreadsheet of that locale reads them. A file is complete or not sent: it waits for a
+/// running warm-up of the figures to end.
+async fn csv_text(
+    state: &AppState,
+    params: PortfolioParams,
+    numbers: NumberFormat,
+) -> Result<(String, bool), AppError> {
+    let Computed { site, portfolio, .. } = compute(state, params, None).await?;
     // Writing every zone's row: on the bounded pool.
-    crate::app::cpu::run(move || csv_of(&site, &portfolio, numbers)).await?
+    Ok((crate::app::cpu::run(move || csv_of(&site, &portfolio, numbers)).await??, true))
 }
 
 fn csv_of(site: &SiteSettings, portfolio: &Portfolio, numbers: NumberFormat) -> Result<String, AppError> {
@@ -537,7 +575,7 @@ pub async fn api(
     Ok(([(header::CONTENT_TYPE, "application/json")], body.body()).into_response())
 }
 
-/// The API's answer, serialized straight from the rows (no intermediate JSON tree).
+/// The API's answer around its rows (`zones` last, so the rows are stitched in after it).
 #[derive(Serialize)]
 struct ApiAnswer<'a> {
     currency: &'a str,
@@ -546,17 +584,45 @@ struct ApiAnswer<'a> {
     min_readiness: Option<String>,
     seed: String,
     trials: usize,
+    /// Zones whose figures are still being computed after a start, left out of `zones` and
+    /// `choice` (0 once every zone is in).
+    zones_pending: usize,
     choice: Option<serde_json::Value>,
     zones: Vec<RowJson<'a>>,
 }
 
-async fn api_json(state: &AppState, params: PortfolioParams) -> Result<String, AppError> {
-    let (site, p) = compute(state, params).await?;
-    // Serializing every zone's row: on the bounded pool.
-    crate::app::cpu::run(move || json_of(&site, &p)).await?
+async fn api_json(state: &AppState, params: PortfolioParams) -> Result<(String, bool), AppError> {
+    let computed = compute(state, params, Some(READY_WAIT)).await?;
+    let complete = computed.complete();
+    let answers = state.answers.clone();
+    let text = crate::app::cpu::run(move || api_text(&computed, &answers.api_rows)).await??;
+    Ok((text, complete))
 }
 
-fn json_of(site: &SiteSettings, p: &Portfolio) -> Result<String, AppError> {
+/// The API's JSON: the head serialized, then each row stitched from its kept pieces (see
+/// [`super::answers`]); the same text as serializing [`ApiAnswer`] with every row.
+fn api_text(computed: &Computed, pieces: &super::answers::RowPieces) -> Result<String, AppError> {
+    let internal = |e: serde_json::Error| AppError::Internal(e.into());
+    let mut head = serde_json::to_string(&api_head(computed)).map_err(internal)?;
+    let p = &computed.portfolio;
+    let rows: Vec<(&Arc<ZoneBase>, &PortfolioRow)> = p.rows.iter().map(|r| (&r.base, r)).collect();
+    let pieces = pieces.get(&rows, |r| row_pieces(r));
+    // The head ends with `"zones":[]}`: the rows go between the brackets.
+    head.truncate(head.len() - "]}".len());
+    let mut out = head;
+    out.reserve(pieces.iter().map(|p| p.iter().map(|s| s.len()).sum::<usize>() + 160).sum());
+    for (i, (r, pieces)) in p.rows.iter().zip(&pieces).enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        stitch_row(&mut out, i + 1, r, pieces)?;
+    }
+    out.push_str("]}");
+    Ok(out)
+}
+
+fn api_head(computed: &Computed) -> ApiAnswer<'_> {
+    let p = &computed.portfolio;
     let choice = p.choice.as_ref().map(|c| {
         let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
             p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()
@@ -577,15 +643,69 @@ fn json_of(site: &SiteSettings, p: &Portfolio) -> Result<String, AppError> {
             "proven_optimal": c.proven,
         })
     });
-    let answer = ApiAnswer {
-        currency: &site.currency,
+    ApiAnswer {
+        currency: &computed.site.currency,
         rank: p.params.rank.as_str(),
         basis: p.params.basis.as_str(),
         min_readiness: p.params.min_readiness.map(money_text),
         seed: p.params.trials.seed.to_string(),
         trials: p.params.trials.count,
+        zones_pending: computed.pending,
         choice,
-        zones: p.rows.iter().enumerate().map(|(i, r)| row_json(i + 1, r)).collect(),
+        zones: Vec::new(),
+    }
+}
+
+/// Where a row's JSON (as [`RowJson`] serializes it) is cut: each pair is the key that starts
+/// a piece of the zone's own figures and the key that ends it, where a field that depends on
+/// the whole portfolio begins. A key with its quotes and the comma before it cannot occur
+/// inside a JSON string, where every quote is escaped.
+const CUTS: [(&str, &str); 4] = [
+    (",\"zone_id\":", ",\"standing\":"),
+    (",\"case\":", ",\"calibrated_npv\":"),
+    (",\"irr\":", ",\"readiness\":"),
+    (",\"problem\":", "}"),
+];
+
+/// The pieces of a row that depend on the zone's figures only: [`RowJson`] cut at [`CUTS`].
+fn row_pieces(r: &PortfolioRow) -> Vec<Box<str>> {
+    // Strings, numbers and options only: serialization cannot fail.
+    let text = serde_json::to_string(&row_json(0, r)).unwrap_or_default();
+    let mut at = 0;
+    CUTS.iter()
+        .map(|(from, to)| {
+            let start = text[at..].find(from).map_or(text.len(), |i| at + i);
+            let end =
+                if *to == "}" { text.len() - 1 } else { text[start..].find(to).map_or(text.len(), |i| start + i) };
+            at = end;
+            text[start..end].into()
+        })
+        .collect()
+}
+
+/// One row of the API: the portfolio's parts of `r` around its kept `pieces`.
+fn stitch_row(out: &mut String, rank: usize, r: &PortfolioRow, pieces: &[Box<str>]) -> Result<(), AppError> {
+    let [figures, money, metrics, rest] = pieces else {
+        return Err(AppError::Internal(anyhow::anyhow!("a portfolio row has {} pieces, not 4", pieces.len())));
     };
-    serde_json::to_string(&answer).map_err(|e| AppError::Internal(e.into()))
+    fn json<T: Serialize + ?Sized>(v: &T) -> Result<String, AppError> {
+        serde_json::to_string(v).map_err(|e| AppError::Internal(e.into()))
+    }
+    let readiness = r.readiness.map(|x| ReadinessJson { score: x.score, scored: x.rated, of: x.of });
+    out.push_str("{\"rank\":");
+    out.push_str(&rank.to_string());
+    out.push_str(figures);
+    out.push_str(",\"standing\":");
+    out.push_str(&json(&r.standing.label())?);
+    out.push_str(",\"in_pi_order_set\":");
+    out.push_str(if r.in_greedy { "true" } else { "false" });
+    out.push_str(money);
+    out.push_str(",\"calibrated_npv\":");
+    out.push_str(&json(&r.calibrated.map(money_text))?);
+    out.push_str(metrics);
+    out.push_str(",\"readiness\":");
+    out.push_str(&json(&readiness)?);
+    out.push_str(rest);
+    out.push('}');
+    Ok(())
 }

@@ -20,6 +20,7 @@ mod numbers;
 mod pages;
 mod portfolio;
 mod realized;
+mod scale;
 mod security;
 mod signin;
 mod tokens;
