@@ -303,6 +303,8 @@ struct EditPage {
     categories: [CostCategory; 6],
     kinds: [DriverKind; 5],
     editable: bool,
+    /// Past draft: no one can change this version any more (a reader of a draft merely may not).
+    frozen: bool,
     notice: Option<String>,
     value_unit: String,
 }
@@ -331,7 +333,8 @@ async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Resul
     let site = db::get_site(&state.pool).await?;
     let full = db::case_full(&state.pool, id).await?;
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
-    let editable = nav.can_edit && full.case.state == crate::domain::CaseState::Draft;
+    let frozen = full.case.state != crate::domain::CaseState::Draft;
+    let editable = nav.can_edit && !frozen;
     let mut page = EditPage {
         nav,
         notes: full.case.notes(&site),
@@ -344,6 +347,7 @@ async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Resul
         categories: CostCategory::ALL,
         kinds: DriverKind::ALL,
         editable,
+        frozen,
         notice: None,
         value_unit: format!("{} / unit", site.currency),
         site,

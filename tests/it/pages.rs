@@ -111,3 +111,27 @@ async fn unknown_pages_and_ids_are_404() {
     assert_eq!(t.get("/cases/424242").await.status, StatusCode::NOT_FOUND);
     assert_eq!(t.get("/zones/not-a-number").await.status.as_u16() / 100, 4);
 }
+
+#[tokio::test]
+async fn a_reader_of_a_draft_is_told_who_changes_it_not_that_it_is_frozen() {
+    use pilot_ledger::auth::Role;
+    let t = test_app(false).await;
+    let lead = t.as_role(Some(Role::Lead));
+    let zone = lead.post_json("/api/v1/zones", r#"{"code":"weld-9","name":"Weld cell 9","status":"candidate"}"#).await;
+    let zone_id = zone.json()["zone"]["id"].as_i64().unwrap();
+    let case = lead.post_json(&format!("/api/v1/zones/{zone_id}/cases"), &crate::api::simple_case().to_string()).await;
+    let case_id = case.json()["case"]["id"].as_i64().unwrap();
+    let draft = t.as_role(Some(Role::Viewer)).get(&format!("/cases/{case_id}/edit")).await;
+    assert_eq!(draft.status, StatusCode::OK);
+    assert!(
+        draft.text.contains("This draft can be read here; a programme lead or an admin changes it."),
+        "{}",
+        draft.text
+    );
+    assert!(!draft.text.contains("frozen"), "a draft is not frozen");
+    // Positive control: once submitted, every role reads it as frozen.
+    let submitted = lead.post_json(&format!("/api/v1/cases/{case_id}/submit"), "{}").await;
+    assert_eq!(submitted.status, StatusCode::OK, "{}", submitted.text);
+    let page = lead.get(&format!("/cases/{case_id}/edit")).await;
+    assert!(page.text.contains("and frozen. Save a new scenario version to change it."), "{}", page.text);
+}
