@@ -146,12 +146,8 @@ async fn token_principal(state: &AppState, token: &str) -> Result<Option<Princip
 /// Route middleware: resolve the principal, then allow or refuse by the route's permission.
 /// Anonymous: 401 on the API, a redirect to sign-in on pages. Wrong role: 403.
 pub async fn authorize(State(state): State<AppState>, req: Request, next: Next) -> Response {
-    let api = req.uri().path().starts_with("/api/");
-    match authorize_inner(&state, req, next).await {
-        Ok(res) => res,
-        Err(e) if api => super::ApiError(e).into_response(),
-        Err(e) => e.into_response(),
-    }
+    let path = req.uri().path().to_string();
+    authorize_inner(&state, req, next).await.unwrap_or_else(|e| e.answer_for(&path))
 }
 
 async fn authorize_inner(state: &AppState, mut req: Request, next: Next) -> Result<Response, AppError> {

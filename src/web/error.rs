@@ -169,6 +169,14 @@ impl<E: Into<AppError>> From<E> for ApiError {
     }
 }
 
+impl AppError {
+    /// This error answered in the format of `path`: the JSON error format under `/api/`, the
+    /// error page elsewhere (for answers written outside a handler: middleware, fallbacks).
+    pub fn answer_for(self, path: &str) -> Response {
+        if path.starts_with("/api/") { ApiError(self).into_response() } else { self.into_response() }
+    }
+}
+
 impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
         self.0.log();

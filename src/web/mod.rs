@@ -129,7 +129,6 @@ async fn check_host(
     req: Request,
     next: axum::middleware::Next,
 ) -> axum::response::Response {
-    use axum::response::IntoResponse;
     if state.allowed_hosts.is_empty() {
         return next.run(req).await;
     }
@@ -148,7 +147,7 @@ async fn check_host(
         status: StatusCode::BAD_REQUEST,
         message: format!("this server does not answer for host \"{shown}\"; use the address it is published under"),
     };
-    if req.uri().path().starts_with("/api/") { ApiError(e).into_response() } else { e.into_response() }
+    e.answer_for(req.uri().path())
 }
 
 /// One route: method, path, the permission it needs, and its handler.
@@ -300,19 +299,17 @@ pub fn app(state: AppState) -> Router {
 /// A known path asked with a method it does not have: 405 (axum adds the `Allow` header), in
 /// the JSON error format under `/api/`.
 async fn method_not_allowed(uri: axum::http::Uri) -> axum::response::Response {
-    use axum::response::IntoResponse;
     let error = AppError::BadRequest {
         status: StatusCode::METHOD_NOT_ALLOWED,
         message: "this path does not take this method; the Allow header lists those it takes".into(),
     };
-    if uri.path().starts_with("/api/") { ApiError(error).into_response() } else { error.into_response() }
+    error.answer_for(uri.path())
 }
 
 /// Answer a body refused by the route's size limit with a message that names the limit (the
 /// extractors' own message, "length limit exceeded", does not say what the limit is).
 async fn name_the_limit(limit: usize, req: Request, next: axum::middleware::Next) -> axum::response::Response {
-    use axum::response::IntoResponse;
-    let api = req.uri().path().starts_with("/api/");
+    let path = req.uri().path().to_string();
     let res = next.run(req).await;
     if res.status() != StatusCode::PAYLOAD_TOO_LARGE {
         return res;
@@ -323,7 +320,7 @@ async fn name_the_limit(limit: usize, req: Request, next: axum::middleware::Next
         status: StatusCode::PAYLOAD_TOO_LARGE,
         message: format!("the body is larger than the {size} this request accepts; nothing was changed"),
     };
-    if api { ApiError(error).into_response() } else { error.into_response() }
+    error.answer_for(&path)
 }
 
 /// Marks the answer to a request whose handler panicked.

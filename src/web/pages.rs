@@ -3,7 +3,7 @@
 use super::AppError;
 use super::auth::{MaybeUser, Nav};
 use askama::Template;
-use axum::response::{Html, IntoResponse, Redirect};
+use axum::response::{Html, Redirect};
 
 /// `/` goes to the zone list.
 pub async fn home() -> Redirect {
@@ -23,9 +23,6 @@ pub async fn about(MaybeUser(me): MaybeUser) -> Result<Html<String>, AppError> {
 
 /// Any unknown path: the error page, or the JSON error format under `/api/`.
 pub async fn not_found(uri: axum::http::Uri) -> axum::response::Response {
-    if uri.path().starts_with("/api/") {
-        super::ApiError(AppError::NotFound("API route")).into_response()
-    } else {
-        AppError::NotFound("page").into_response()
-    }
+    let what = if uri.path().starts_with("/api/") { "API route" } else { "page" };
+    AppError::NotFound(what).answer_for(uri.path())
 }
