@@ -117,7 +117,7 @@ async fn case_body(state: &AppState, id: i64) -> Result<Value, ApiError> {
 /// What the case page shows about uncertainty, at full precision: per driver the break-even
 /// quantity, the tornado's NPV at the low and high quantity and the calibration factor with its
 /// evidence; the Monte Carlo figures with their seed and trial count; the risk-adjusted and
-/// calibrated NPV. `null` (with the reason in `uncertainty_error`) when it cannot be computed.
+/// calibrated NPV. Only `error` (the reason) when it cannot be computed.
 async fn uncertainty_json(
     state: &AppState,
     full: &CaseFull,
@@ -125,18 +125,11 @@ async fn uncertainty_json(
     metrics: &CaseMetrics,
     today: &SiteSettings,
 ) -> Result<Value, ApiError> {
-    use crate::domain::{Trials, calibration_of, case_uncertainty};
+    use crate::domain::Trials;
     use crate::finance::linear::BreakEven;
-    let bases = state.figures.bases(&state.pool, today, Trials::default()).await?;
-    let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
-    let (header, costs, drivers) = (full.case.header.clone(), full.costs.clone(), full.drivers.clone());
-    let (site, metrics, evidence) = (site.clone(), metrics.clone(), calibration.zones.clone());
-    let computed = app::cpu::run(move || {
-        let costs: Vec<_> = costs.iter().map(|c| &c.item).collect();
-        let drivers: Vec<_> = drivers.iter().map(|d| &d.driver).collect();
-        case_uncertainty(&header, &costs, &drivers, &site, &metrics, &calibration, Trials::default())
-    })
-    .await?;
+    let (computed, calibration) =
+        super::cases::uncertainty_of(state, full, site, metrics, today, Trials::default()).await?;
+    let evidence = calibration.zones;
     let u = match computed {
         Ok(u) => u,
         Err(e) => return Ok(json!({ "error": format!("the uncertainty cannot be computed: {e}") })),

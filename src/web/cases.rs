@@ -9,9 +9,9 @@ use crate::app::{self, cases::ReviewStep};
 use crate::db::{self, CaseFull};
 use crate::domain::CaseId;
 use crate::domain::{
-    CaseFigures, CaseHeader, CaseHeaderInput, CostCategory, CostInput, DEFAULT_SEED, DriverInput, DriverKind,
-    FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle, SiteSettings, Trials, Zone,
-    calibration_of, case_figures, case_uncertainty, parse_seed,
+    Calibration, CaseFigures, CaseHeader, CaseHeaderInput, CaseUncertainty, CostCategory, CostInput, DEFAULT_SEED,
+    DriverInput, DriverKind, FieldErrors, Money, NewBenefitDriver, NewCostItem, NumberFormat, Percent, RateStyle,
+    SiteSettings, Trials, Zone, calibration_of, case_figures, case_uncertainty, parse_seed,
 };
 use crate::finance::schedule::CaseMetrics;
 use crate::finance::{FinanceError, Payback};
@@ -127,6 +127,30 @@ pub(super) async fn figures_on_pool(full: CaseFull, today: &SiteSettings) -> Res
     crate::app::cpu::run(move || figures_of(&full, &today).map(|figures| (full, figures))).await?
 }
 
+/// A case's uncertainty figures (pre-tax: Monte Carlo, tornado, break-even) at `site`, with
+/// the calibration they apply, computed on the bounded pool: the case page and the case API
+/// show the same figures.
+pub(super) async fn uncertainty_of(
+    state: &AppState,
+    full: &CaseFull,
+    site: &SiteSettings,
+    metrics: &CaseMetrics,
+    today: &SiteSettings,
+    trials: Trials,
+) -> Result<(Result<CaseUncertainty, FinanceError>, Calibration), AppError> {
+    let bases = state.figures.bases(&state.pool, today, Trials::default()).await?;
+    let (header, costs, drivers) = (full.case.header.clone(), full.costs.clone(), full.drivers.clone());
+    let (site, metrics) = (site.clone(), metrics.clone());
+    let computed = crate::app::cpu::run(move || {
+        let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
+        let costs: Vec<&NewCostItem> = costs.iter().map(|c| &c.item).collect();
+        let drivers: Vec<&NewBenefitDriver> = drivers.iter().map(|d| &d.driver).collect();
+        (case_uncertainty(&header, &costs, &drivers, &site, &metrics, &calibration, trials), calibration)
+    })
+    .await?;
+    Ok(computed)
+}
+
 /// A case's figures at its own settings ([`db::CaseVersion::settings`]): every page and the
 /// API compute them here.
 pub(super) fn figures_of(full: &CaseFull, today: &SiteSettings) -> Result<CaseFigures, AppError> {
@@ -174,22 +198,13 @@ pub async fn view(
         Ok(v) => (v, None),
         Err(why) => (DEFAULT_SEED, Some(format!("{:?} is not a seed: use {why}", q.seed.trim()))),
     };
-    let bases = state.figures.bases(&state.pool, &today, Trials::default()).await?;
     let site = full.case.settings(&today);
-    // The Monte Carlo, tornado and break-even are CPU-bound: on the bounded pool.
-    let (full, figures, site, uncertainty) = crate::app::cpu::run(move || {
-        let calibration = calibration_of(bases.iter().map(|b| b.as_ref()));
-        let header = &full.case.header;
-        let costs: Vec<&NewCostItem> = full.costs.iter().map(|c| &c.item).collect();
-        let drivers: Vec<&NewBenefitDriver> = full.drivers.iter().map(|d| &d.driver).collect();
-        let trials = Trials { seed, ..Trials::default() };
-        let uncertainty =
-            case_uncertainty(header, &costs, &drivers, &site, &figures.pre_tax.metrics, &calibration, trials)
-                .map(|u| UncertaintyView::new(&u, header.success_probability, &calibration, &site.currency))
-                .map_err(|e| format!("the uncertainty cannot be computed: {e}"));
-        (full, figures, site, uncertainty)
-    })
-    .await?;
+    let trials = Trials { seed, ..Trials::default() };
+    let (computed, calibration) =
+        uncertainty_of(&state, &full, &site, &figures.pre_tax.metrics, &today, trials).await?;
+    let uncertainty = computed
+        .map(|u| UncertaintyView::new(&u, full.case.header.success_probability, &calibration, &site.currency))
+        .map_err(|e| format!("the uncertainty cannot be computed: {e}"));
     let zone = db::get_zone(&state.pool, full.case.zone_id).await?;
     let pre = &figures.pre_tax;
     let cumulative: Vec<Decimal> = pre.schedule.rows.iter().map(|r| r.cumulative_discounted).collect();
