@@ -67,7 +67,7 @@ def ledger(code, case):
                 # Normalized (IPMVP-style): baseline intensity x volume - metered consumption.
                 volume = round(random.uniform(26000, 31000))
                 intensity = 3.4
-                e |= {"method": "normalized", "baseline_intensity": f"{intensity}",
+                e |= {"method": "volume_adjusted", "baseline_intensity": f"{intensity}",
                       "reporting_volume": str(volume), "measured_consumption": f"{intensity * volume - q:.0f}",
                       "evidence": "Sub-meter reading against the baseline kWh per part"}
             else:

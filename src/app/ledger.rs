@@ -60,7 +60,7 @@ pub async fn book(
     }
     let booked = db::ledger::book(&mut tx, zone_id, booking, today, (who.name, who.on_behalf), key).await?;
     if let Booked::New(e) = &booked {
-        let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method, e.amount);
+        let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method.as_str(), e.amount);
         if let Some(paid) = e.paid_on {
             detail.push_str(&format!(" paid on {paid}"));
         }

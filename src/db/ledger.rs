@@ -4,7 +4,7 @@ use super::chain::{self, Problem, insert_chained};
 use super::{DbError, DbResult, count, decimal, now, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{
-    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryId, EntryKind, LedgerEntry, LedgerItem, Month,
+    BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryId, EntryKind, LedgerEntry, LedgerItem, Method, Month,
     NewEntry, ZoneStatus,
 };
 use rust_decimal::Decimal;
@@ -34,7 +34,8 @@ fn entry_from(r: &SqliteRow) -> DbResult<LedgerEntry> {
         case_id: r.try_get("case_id")?,
         item: item_from(r)?,
         period: parsed("period", r.try_get("period")?, Month::parse)?,
-        method: r.try_get("method")?,
+        // Stored as its code ('normalized' for volume_adjusted: the CHECK and the hash chain keep it).
+        method: parsed("method", r.try_get("method")?, |c| Method::from_stored(c).ok_or_else(String::new))?,
         quantity: opt_decimal("quantity", r.try_get("quantity")?)?,
         unit_value: opt_decimal("unit_value", r.try_get("unit_value")?)?,
         amount: decimal("amount", r.try_get("amount")?)?,

@@ -120,7 +120,8 @@ pub fn ledger_entry_row(e: &NewEntry, s: &EntryStamp<'_>) -> Row {
         ("driver_id", Value::opt_int(e.item.driver().map(|d| d.0))),
         ("cost_id", Value::opt_int(e.item.cost().map(|c| c.0))),
         ("period", Value::text(e.period.to_string())),
-        ("method", Value::text(e.method.as_str())),
+        // The stored code ('normalized' for volume_adjusted): hashed as written before the rename.
+        ("method", Value::text(e.method.stored())),
         ("quantity", Value::opt_money(e.quantity)),
         ("unit_value", Value::opt_money(e.unit_value)),
         ("amount", Value::money(e.amount)),
@@ -275,6 +276,46 @@ mod tests {
         let mut reversed = row();
         reversed.reverse();
         assert_eq!(row_hash(AUDIT_LOG, None, &row()), row_hash(AUDIT_LOG, None, &reversed));
+    }
+
+    /// The method is hashed as stored: a saving adjusted to the period's volume is written
+    /// and hashed as `normalized`, as before the rename, so older chains still verify.
+    #[test]
+    fn a_volume_adjusted_entry_is_hashed_with_its_stored_code() -> Result<(), String> {
+        let entry = NewEntry {
+            case_id: 1,
+            item: super::super::LedgerItem::Driver(super::super::DriverId(1)),
+            period: super::super::Month::parse("2025-01")?,
+            method: super::super::Method::VolumeAdjusted,
+            quantity: Some(Decimal::from(5)),
+            unit_value: Some(Decimal::ONE),
+            amount: Decimal::from(5),
+            inputs: [Some(Decimal::from(2)), Some(Decimal::from(3)), Some(Decimal::ONE)],
+            evidence: "meter".into(),
+            paid_on: None,
+            implausible_confirmed: false,
+        };
+        let stamp = EntryStamp {
+            id: 1,
+            zone_id: 1,
+            reverses_id: None,
+            idempotency_key: None,
+            import_id: None,
+            booked_at: "2025-02-01T00:00:00Z",
+            booked_by: "t-controller",
+            on_behalf_by: None,
+        };
+        let row = ledger_entry_row(&entry, &stamp);
+        let method = row.iter().find(|(n, _)| *n == "method").map(|(_, v)| v.clone());
+        assert_eq!(method, Some(Value::text("normalized")));
+        // Known answer computed outside this code: hashlib.sha256 over the layout of the module
+        // docs with method "normalized" (a Python script of a dozen lines, the columns above
+        // without their NULLs), i.e. the hash such a row had before the rename.
+        assert_eq!(
+            row_hash(LEDGER_ENTRIES, None, &row),
+            "875eb908c588c3718de3cff8d3d0a1499f9c2749923ebb1dea2f221385f22623"
+        );
+        Ok(())
     }
 
     #[test]

@@ -1,4 +1,5 @@
-//! Ledger bookings: measured savings (direct or normalized) and actual spending, as raw input
+//! Ledger bookings: measured savings (direct, or adjusted to the period's volume) and actual
+//! spending, as raw input
 //! and as validated bookings. Context checks (the item belongs to the zone's baseline, the
 //! month lies inside its horizon and not in the future) need the stored case: see `db::ledger`.
 
@@ -109,19 +110,92 @@ impl Serialize for LedgerItem {
     }
 }
 
+/// How an entry was measured: the method of the glossary (DEVELOPERS.md).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// The avoided quantity itself.
+    Direct,
+    /// Baseline intensity x the reporting period's volume - measured consumption.
+    VolumeAdjusted,
+    /// Money spent.
+    Spend,
+}
+
+impl Method {
+    /// The spelling of the API, the CSV files and scenario files.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Direct => "direct",
+            Self::VolumeAdjusted => "volume_adjusted",
+            Self::Spend => "spend",
+        }
+    }
+
+    /// The code stored in `ledger_entries.method` (under its CHECK and inside the hash
+    /// chain, so it never changes): `volume_adjusted` is stored as `normalized`.
+    pub fn stored(self) -> &'static str {
+        match self {
+            Self::Direct => "direct",
+            Self::VolumeAdjusted => "normalized",
+            Self::Spend => "spend",
+        }
+    }
+
+    /// The API's spelling before 0.2.0 (`method` of an entry, deprecated; removed in 0.3.0).
+    pub fn deprecated_name(self) -> &'static str {
+        self.stored()
+    }
+
+    /// The page's words.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Direct => "direct",
+            Self::VolumeAdjusted => "adjusted to the period's volume",
+            Self::Spend => "spend",
+        }
+    }
+
+    /// Read a stored code.
+    pub fn from_stored(code: &str) -> Option<Self> {
+        match code {
+            "direct" => Some(Self::Direct),
+            "normalized" => Some(Self::VolumeAdjusted),
+            "spend" => Some(Self::Spend),
+            _ => None,
+        }
+    }
+
+    /// Read the input spelling (form, JSON, CSV, scenario file): `volume_adjusted`, or the old
+    /// `normalized`, still accepted until 0.3.0.
+    pub fn from_input(value: &str) -> Option<Self> {
+        match value.trim() {
+            "direct" => Some(Self::Direct),
+            "volume_adjusted" | "normalized" => Some(Self::VolumeAdjusted),
+            "spend" => Some(Self::Spend),
+            _ => None,
+        }
+    }
+}
+
+impl Serialize for Method {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.as_str())
+    }
+}
+
 /// How a saving was measured, with its inputs.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-#[serde(tag = "method", rename_all = "snake_case")]
+#[derive(Debug, Clone, PartialEq)]
 pub enum Measurement {
     /// The avoided quantity itself (e.g. 1,240 kWh): always more than zero.
     Direct {
         /// Avoided quantity in the driver's unit, more than zero (a period that did worse than
-        /// its baseline is measured with [`Measurement::Normalized`], which may be negative).
+        /// its baseline is measured with [`Measurement::VolumeAdjusted`], which may be negative).
         quantity: Decimal,
     },
-    /// IPMVP-style avoided quantity: baseline intensity x reporting volume - measured consumption;
-    /// negative when the zone did worse than its baseline.
-    Normalized {
+    /// Adjusted to the period's volume: baseline intensity x reporting volume - measured
+    /// consumption (IPMVP's avoided quantity on the reporting-period basis); negative when the
+    /// zone did worse than its baseline.
+    VolumeAdjusted {
         /// Baseline consumption per unit of volume (e.g. kWh per unit produced).
         baseline_intensity: Decimal,
         /// The reporting period's volume (e.g. units produced).
@@ -137,12 +211,12 @@ pub enum Measurement {
 }
 
 impl Measurement {
-    /// Stored method name.
-    pub fn method(&self) -> &'static str {
+    /// Its method.
+    pub fn method(&self) -> Method {
         match self {
-            Self::Direct { .. } => "direct",
-            Self::Normalized { .. } => "normalized",
-            Self::Spend { .. } => "spend",
+            Self::Direct { .. } => Method::Direct,
+            Self::VolumeAdjusted { .. } => Method::VolumeAdjusted,
+            Self::Spend { .. } => Method::Spend,
         }
     }
 }
@@ -153,7 +227,8 @@ impl Measurement {
 pub struct BookingInput {
     /// `saving` or `spending`.
     pub kind: String,
-    /// `direct`, `normalized` or (spending) empty / `spend`.
+    /// `direct`, `volume_adjusted` (or the deprecated `normalized`) or (spending) empty /
+    /// `spend`.
     pub method: String,
     /// Driver id (saving) or cost item id (spending) of the baseline case.
     #[serde(deserialize_with = "string_or_number")]
@@ -163,13 +238,13 @@ pub struct BookingInput {
     /// Direct: avoided quantity.
     #[serde(deserialize_with = "string_or_number")]
     pub quantity: String,
-    /// Normalized: baseline intensity.
+    /// Adjusted to the period's volume: baseline intensity.
     #[serde(deserialize_with = "string_or_number")]
     pub baseline_intensity: String,
-    /// Normalized: reporting-period volume.
+    /// Adjusted to the period's volume: reporting-period volume.
     #[serde(deserialize_with = "string_or_number")]
     pub reporting_volume: String,
-    /// Normalized: measured consumption.
+    /// Adjusted to the period's volume: measured consumption.
     #[serde(deserialize_with = "string_or_number")]
     pub measured_consumption: String,
     /// Spending: amount spent.
@@ -208,7 +283,7 @@ impl Booking {
         let n = |d: &Decimal| d.normalize().to_string();
         let numbers = match &self.measurement {
             Measurement::Direct { quantity } => n(quantity),
-            Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+            Measurement::VolumeAdjusted { baseline_intensity, reporting_volume, measured_consumption } => {
                 format!("{} {} {}", n(baseline_intensity), n(reporting_volume), n(measured_consumption))
             }
             Measurement::Spend { amount } => n(amount),
@@ -218,7 +293,8 @@ impl Booking {
             self.item.kind().as_str(),
             self.item.id(),
             self.period,
-            self.measurement.method(),
+            // The stored code, so that a retry across the rename keeps its fingerprint.
+            self.measurement.method().stored(),
             self.evidence,
             self.paid_on.map(|d| d.to_string()).unwrap_or_default(),
             self.confirm_implausible
@@ -273,17 +349,20 @@ impl Booking {
                 "required: say how it was measured (meter, report, sample), at most 500 characters".to_string()
             }),
         );
-        let measurement = match (kind, input.method.trim()) {
-            (Some(EntryKind::Saving), "direct") => e
+        // Empty is spending's default; `None` for anything else unknown.
+        let method = if input.method.trim().is_empty() { Some(Method::Spend) } else { Method::from_input(&input.method) };
+        let measurement = match (kind, method) {
+            (Some(EntryKind::Saving), Some(Method::Direct)) => e
                 .take(
                     "quantity",
                     f.read(&input.quantity).and_then(bounded(f)).and_then(positive(
                         "an avoided quantity, more than zero: a period that did worse than its baseline is booked \
-                         with the normalized method; a wrong entry is corrected by reversal",
+                         with the method volume_adjusted (adjusted to the period's volume); a wrong entry is \
+                         corrected by reversal",
                     )),
                 )
                 .map(|quantity| Measurement::Direct { quantity }),
-            (Some(EntryKind::Saving), "normalized") => {
+            (Some(EntryKind::Saving), Some(Method::VolumeAdjusted)) => {
                 let i = e.take(
                     "baseline_intensity",
                     f.read(&input.baseline_intensity).and_then(bounded(f)).and_then(non_negative("baseline intensity")),
@@ -298,16 +377,16 @@ impl Booking {
                 );
                 match (i, v, c) {
                     (Some(baseline_intensity), Some(reporting_volume), Some(measured_consumption)) => {
-                        Some(Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption })
+                        Some(Measurement::VolumeAdjusted { baseline_intensity, reporting_volume, measured_consumption })
                     }
                     _ => None,
                 }
             }
             (Some(EntryKind::Saving), _) => {
-                e.push("method", "direct or normalized");
+                e.push("method", "direct or volume_adjusted");
                 None
             }
-            (Some(EntryKind::Spending), "" | "spend") => e
+            (Some(EntryKind::Spending), Some(Method::Spend)) => e
                 .take(
                     "amount",
                     f.read(&input.amount)
@@ -354,19 +433,22 @@ pub struct LedgerEntry {
     /// Month booked.
     #[serde(serialize_with = "super::case::ser_display")]
     pub period: Month,
-    /// `direct`, `normalized` or `spend`.
-    pub method: String,
+    /// How it was measured (stored as its code, [`Method::stored`]). The API writes it twice:
+    /// `booking_method` (`volume_adjusted`) and the deprecated `method` (`normalized`, the
+    /// spelling before 0.2.0; removed in 0.3.0).
+    #[serde(flatten, serialize_with = "ser_methods")]
+    pub method: Method,
     /// Avoided quantity (savings).
     pub quantity: Option<Decimal>,
     /// Unit value frozen at booking (savings).
     pub unit_value: Option<Decimal>,
     /// Signed money flow: savings positive, spending negative.
     pub amount: Decimal,
-    /// Normalized inputs.
+    /// Adjusted to the period's volume: input.
     pub baseline_intensity: Option<Decimal>,
-    /// Normalized inputs.
+    /// Adjusted to the period's volume: input.
     pub reporting_volume: Option<Decimal>,
-    /// Normalized inputs.
+    /// Adjusted to the period's volume: input.
     pub measured_consumption: Option<Decimal>,
     /// Evidence note.
     pub evidence: String,
@@ -408,6 +490,14 @@ impl LedgerEntry {
     pub fn is_live(&self) -> bool {
         self.reverses_id.is_none() && self.reversed_by.is_none()
     }
+}
+
+fn ser_methods<S: serde::Serializer>(m: &Method, s: S) -> Result<S::Ok, S::Error> {
+    use serde::ser::SerializeStruct;
+    let mut st = s.serialize_struct("Method", 2)?;
+    st.serialize_field("booking_method", m.as_str())?;
+    st.serialize_field("method", m.deprecated_name())?;
+    st.end()
 }
 
 fn ser_date<S: serde::Serializer>(d: &Option<time::Date>, s: S) -> Result<S::Ok, S::Error> {
@@ -510,15 +600,16 @@ pub struct NewEntry {
     pub item: LedgerItem,
     /// Month booked.
     pub period: Month,
-    /// `direct`, `normalized` or `spend`.
-    pub method: String,
+    /// How it was measured.
+    pub method: Method,
     /// Avoided quantity (savings).
     pub quantity: Option<Decimal>,
     /// Unit value frozen at booking (savings).
     pub unit_value: Option<Decimal>,
     /// Signed money flow.
     pub amount: Decimal,
-    /// Normalized inputs: baseline intensity, reporting volume, measured consumption.
+    /// Inputs adjusted to the period's volume: baseline intensity, reporting volume, measured
+    /// consumption.
     pub inputs: [Option<Decimal>; 3],
     /// Evidence note.
     pub evidence: String,
@@ -585,7 +676,7 @@ impl BookingBaseline {
         };
         let (quantity, amount, inputs) = match &b.measurement {
             Measurement::Direct { quantity } => (Some(*quantity), priced("quantity", *quantity)?, [None, None, None]),
-            Measurement::Normalized { baseline_intensity, reporting_volume, measured_consumption } => {
+            Measurement::VolumeAdjusted { baseline_intensity, reporting_volume, measured_consumption } => {
                 let too_large = || {
                     let f = NumberFormat::current();
                     FieldErrors::one(
@@ -598,7 +689,7 @@ impl BookingBaseline {
                     )
                 };
                 let q =
-                    crate::finance::normalized_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
+                    crate::finance::volume_adjusted_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
                         .map_err(|_| too_large())?;
                 if q.abs() > MAX_MAGNITUDE {
                     return Err(too_large());
@@ -613,7 +704,7 @@ impl BookingBaseline {
                 Plausibility::check(*quantity, d.qty_high, 12, "the driver's monthly high quantity", &d.unit)
                     .map(|m| ("quantity", m))
             }
-            (Measurement::Normalized { .. }, Some(d), _) => Plausibility::check(
+            (Measurement::VolumeAdjusted { .. }, Some(d), _) => Plausibility::check(
                 quantity.unwrap_or_default(),
                 d.qty_high,
                 12,
@@ -640,7 +731,7 @@ impl BookingBaseline {
             case_id: self.case_id,
             item: b.item,
             period: b.period,
-            method: b.measurement.method().to_string(),
+            method: b.measurement.method(),
             quantity,
             unit_value,
             amount,

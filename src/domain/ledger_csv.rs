@@ -1,7 +1,7 @@
 //! The ledger's CSV files: the columns export writes and import reads, and the reading of an
 //! import, row by row against the baseline.
 
-use super::{Booking, BookingBaseline, BookingInput, FieldErrors, NewEntry, NumberFormat};
+use super::{Booking, BookingBaseline, BookingInput, FieldErrors, Method, NewEntry, NumberFormat};
 
 /// Largest CSV accepted by the import form: about 200,000 rows.
 pub const IMPORT_MAX_BYTES: usize = 16 * 1024 * 1024;
@@ -31,7 +31,8 @@ pub const IMPORT_MAX_ROWS: usize = 100_000;
 ///
 /// The hash covers the header names sorted and, per record, the cells (trimmed, as booked) in
 /// that column order: line ends (CRLF or LF), spaces around cells, the final newline and the
-/// column order do not change it.
+/// column order do not change it, nor the spelling of a method (`volume_adjusted` or the older
+/// `normalized`: the stored code is hashed).
 pub fn checked_rows(
     bytes: &[u8],
     baseline: &BookingBaseline,
@@ -59,10 +60,18 @@ pub fn checked_rows(
     let mut order: Vec<usize> = (0..headers.len()).collect();
     order.sort_by(|&a, &b| headers[a].cmp(&headers[b]));
     let mut hasher = sha2::Sha256::new();
+    let method_col = headers.iter().position(|h| h == "method");
     // Unit and record separators cannot occur in a trimmed cell's meaning here: they delimit.
     let mut hash_record = |cells: &csv::StringRecord| {
         for &i in &order {
-            hasher.update(cells.get(i).unwrap_or_default().as_bytes());
+            let cell = cells.get(i).unwrap_or_default();
+            // A method hashes as its stored code, so a file written with `volume_adjusted`
+            // repeats the same rows written with the older `normalized`.
+            let cell = match Method::from_input(cell) {
+                Some(m) if Some(i) == method_col => m.stored(),
+                _ => cell,
+            };
+            hasher.update(cell.as_bytes());
             hasher.update([0x1f]);
         }
         hasher.update([0x1e]);

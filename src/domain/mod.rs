@@ -35,7 +35,7 @@ pub use history::{BaselineHistory, Expected, ExpectedDriver, InForce, settings_o
 pub use ids::{CaseId, CostItemId, DriverId, EntryId, UserId, ZoneId};
 pub use ledger::{
     BaselineCost, BaselineDriver, Booking, BookingBaseline, BookingInput, EntryKind, IDEMPOTENCY_KEY_MAX, LedgerEntry,
-    LedgerItem, Measurement, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key,
+    LedgerItem, Measurement, Method, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key,
 };
 pub use money::{Money, Percent, money, pct, quantity};
 pub use numbers::{NumberFormat, read, read_count, read_percent, read_whole};

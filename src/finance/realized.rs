@@ -1,5 +1,5 @@
 //! Realized figures of a zone in operation: realization against the business case, forecast at
-//! completion, normalized (weather- or volume-adjusted) avoided quantities, and the realized
+//! completion, avoided quantities adjusted to the period's volume, and the realized
 //! XNPV / XIRR of the dated ledger flows.
 //!
 //! # Conventions
@@ -144,8 +144,8 @@ pub fn forecast_at_completion(
     m.saturating_add(remaining_forecast)
 }
 
-/// Normalized (IPMVP-style) avoided quantity: the baseline adjusted to the reporting period's
-/// volume, minus what was measured.
+/// Avoided quantity adjusted to the period's volume: the baseline adjusted to the reporting
+/// period's volume, minus what was measured.
 ///
 /// Formula: `avoided = baseline_intensity * reporting_volume - measured_consumption`, e.g. kWh per
 /// unit produced in the baseline period, times the units produced in the reporting period, minus
@@ -162,22 +162,25 @@ pub fn forecast_at_completion(
 ///
 /// # Example
 /// ```
-/// use pilot_ledger::finance::normalized_avoided;
+/// use pilot_ledger::finance::volume_adjusted_avoided;
 /// use rust_decimal::Decimal;
 ///
 /// // 41.5 kWh per unit in the baseline, 3,100 units this period, 124,000 kWh metered:
 /// // 41.5 * 3,100 = 128,650 kWh expected, so 4,650 kWh avoided.
-/// let avoided = normalized_avoided("41.5".parse().unwrap(), Decimal::from(3100), Decimal::from(124_000))?;
+/// let avoided = volume_adjusted_avoided("41.5".parse().unwrap(), Decimal::from(3100), Decimal::from(124_000))?;
 /// assert_eq!(avoided, Decimal::from(4650));
 /// # Ok::<(), pilot_ledger::finance::FinanceError>(())
 /// ```
 ///
 /// # Reference
 /// EVO, *International Performance Measurement and Verification Protocol* (IPMVP), Core
-/// Concepts: "avoided energy" = adjusted baseline energy minus reporting-period energy, the
-/// baseline adjusted to reporting-period conditions (here a single production-volume
-/// adjustment, intensity x volume).
-pub fn normalized_avoided(
+/// Concepts (and Vol. I, 2012), from memory (the edition's text was not checked here): this is
+/// "avoided energy use", savings on the reporting-period basis = baseline energy adjusted to
+/// reporting-period conditions minus reporting-period energy (here a single production-volume
+/// adjustment, intensity x volume). IPMVP's "normalized savings" are a different quantity,
+/// computed under a fixed set of conditions chosen as normal, so this function is not called
+/// that.
+pub fn volume_adjusted_avoided(
     baseline_intensity: Decimal,
     reporting_volume: Decimal,
     measured_consumption: Decimal,
@@ -369,8 +372,8 @@ mod tests {
     }
 
     #[test]
-    fn normalized_avoided_overflow() {
-        assert_eq!(normalized_avoided(Decimal::MAX, d(2), d(0)), Err(FinanceError::NotRepresentable));
+    fn volume_adjusted_avoided_overflow() {
+        assert_eq!(volume_adjusted_avoided(Decimal::MAX, d(2), d(0)), Err(FinanceError::NotRepresentable));
     }
 
     #[test]

@@ -1,5 +1,6 @@
-//! The controller's ledger: booking forms and API (direct, normalized, spending), reversals,
-//! CSV import and export, and the realized view against the baseline history.
+//! The controller's ledger: booking forms and API (direct, adjusted to the period's volume,
+//! spending), reversals, CSV import and export, and the realized view against the baseline
+//! history.
 
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::PairChart;
@@ -7,7 +8,7 @@ use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, FormBody, JsonBody,
 use crate::app;
 use crate::db::{self, CaseFull, ledger::Booked};
 use crate::domain::{
-    Booking, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Money, Month, NumberFormat, Percent,
+    Booking, BookingInput, CaseState, EntryKind, FieldErrors, LedgerEntry, Method, Money, Month, NumberFormat, Percent,
     Plausibility, RealizedView, SiteSettings, UserId, Zone, csv_safe, ledger_csv, quantity, realized_view,
 };
 use crate::domain::{EntryId, ZoneId};
@@ -493,7 +494,7 @@ fn csv_of(
             e.period.to_string(),
             e.kind().as_str().to_string(),
             id(Some(e.item.id())),
-            if e.method == "spend" { String::new() } else { e.method.clone() },
+            if e.method == Method::Spend { String::new() } else { e.method.as_str().to_string() },
             text(e.quantity),
             text(e.baseline_intensity),
             text(e.reporting_volume),

@@ -277,7 +277,7 @@ async fn controller_books_imports_and_reverses() {
         &file,
         "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
          2025-09,saving,Split and wrinkled blanks,direct,120,,,,,quality report\n\
-         2025-09,saving,Idle hydraulic running,normalized,,2.5,4000,4200,,main meter and press counter\n\
+         2025-09,saving,Idle hydraulic running,volume_adjusted,,2.5,4000,4200,,main meter and press counter\n\
          2025-09,spending,Analytics software subscription,,,,,,800,invoice 2025-09\n",
     )
     .unwrap();

@@ -362,7 +362,7 @@ async fn every_column_is_chained() {
         case_id: 1,
         item: pilot_ledger::domain::LedgerItem::Driver(pilot_ledger::domain::DriverId(1)),
         period: pilot_ledger::domain::Month::parse("2025-01").unwrap(),
-        method: "direct".into(),
+        method: pilot_ledger::domain::Method::Direct,
         quantity: None,
         unit_value: None,
         amount: rust_decimal::Decimal::ONE,

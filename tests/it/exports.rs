@@ -22,7 +22,7 @@ fn rows(text: &str) -> (csv::StringRecord, Vec<csv::StringRecord>) {
 }
 
 /// A zone coded `-INJ` whose entries were booked by `-ctl` (a user name may start with a dash): four savings with the notes above
-/// and a normalized saving of -3,650 kWh.
+/// and a saving adjusted to the period's volume of -3,650 kWh.
 async fn booked() -> (crate::helpers::TestApp, i64) {
     let t = test_app(false).await;
     let z = zone_with_baseline(&t, "-INJ").await;
@@ -35,7 +35,7 @@ async fn booked() -> (crate::helpers::TestApp, i64) {
     }
     // A period worse than its baseline (hand arithmetic): 41.5 kWh per unit x 2,900 units =
     // 120,350 kWh adjusted baseline; 124,000 kWh metered: -3,650 kWh x 0.20 EUR/kWh.
-    let worse = json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-06",
+    let worse = json!({"kind": "saving", "method": "volume_adjusted", "item": z.energy, "period": "2025-06",
                        "baseline_intensity": "41.5", "reporting_volume": "2900", "measured_consumption": "124000",
                        "evidence": "sub-meter M3"});
     let a = ctl.post_json(&format!("/api/v1/zones/{}/ledger", z.id), &worse.to_string()).await;

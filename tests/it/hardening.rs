@@ -45,20 +45,20 @@ async fn entries(t: &TestApp) -> i64 {
     sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap()
 }
 
-fn normalized(item: i64, intensity: &str, volume: &str, consumption: &str) -> Value {
-    json!({"kind": "saving", "method": "normalized", "item": item, "period": "2025-04", "baseline_intensity": intensity,
+fn volume_adjusted(item: i64, intensity: &str, volume: &str, consumption: &str) -> Value {
+    json!({"kind": "saving", "method": "volume_adjusted", "item": item, "period": "2025-04", "baseline_intensity": intensity,
            "reporting_volume": volume, "measured_consumption": consumption, "evidence": "main meter",
            "confirm_implausible": true})
 }
 
 #[tokio::test]
-async fn a_huge_normalized_saving_is_a_field_error_not_a_panic() {
+async fn a_huge_volume_adjusted_saving_is_a_field_error_not_a_panic() {
     let t = test_app(false).await;
     let z = zone_priced(&t, "OVF-1", "100000").await;
     let t = t.as_role(Some(Role::Controller));
     let url = format!("/api/v1/zones/{}/ledger", z.id);
     // 1e12 x 1e12 = 1e24 units avoided, x 100,000 per unit = 1e29: beyond Decimal's 7.9e28.
-    let a = t.post_json(&url, &normalized(z.driver, "1000000000000", "1000000000000", "0").to_string()).await;
+    let a = t.post_json(&url, &volume_adjusted(z.driver, "1000000000000", "1000000000000", "0").to_string()).await;
     assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
     assert_eq!(a.json()["fields"][0]["field"], "reporting_volume");
     assert_eq!(
@@ -67,7 +67,7 @@ async fn a_huge_normalized_saving_is_a_field_error_not_a_panic() {
     );
     assert_eq!(entries(&t).await, 0);
     // Positive control (hand arithmetic): 2 h per unit x 3 units - 1 h = 5 h, x 100,000 = 500,000.
-    let ok = t.post_json(&url, &normalized(z.driver, "2", "3", "1").to_string()).await;
+    let ok = t.post_json(&url, &volume_adjusted(z.driver, "2", "3", "1").to_string()).await;
     assert_eq!(ok.status, StatusCode::CREATED, "{}", ok.text);
     assert_eq!(ok.json()["entry"]["amount"], "500000");
     assert_eq!(entries(&t).await, 1);

@@ -53,6 +53,7 @@ const NASTY: &[&str] = &[
     "spending",
     "direct",
     "normalized",
+    "volume_adjusted",
     "1",
     "-1",
     "12.5",

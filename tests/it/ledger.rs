@@ -165,20 +165,51 @@ async fn a_reversal_nets_to_exactly_zero_and_happens_once() {
 }
 
 #[tokio::test]
-async fn normalized_measurement_keeps_its_inputs() {
+async fn volume_adjusted_measurement_keeps_its_inputs() {
     let t = test_app(false).await.as_role(Some(Role::Controller));
     let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "NRM-1").await;
-    // Avoided quantity adjusted to reporting conditions (the IPMVP idea; common practice, hand
-    // arithmetic): 41.5 kWh per unit x 3,100 units - 124,000 kWh metered = 4,650 kWh avoided,
-    // x 0.20 EUR/kWh = 930.00 EUR.
-    let body = json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-04",
+    // Avoided quantity adjusted to the period's volume (IPMVP's reporting-period basis; common
+    // practice, hand arithmetic): 41.5 kWh per unit x 3,100 units - 124,000 kWh metered = 4,650
+    // kWh avoided, x 0.20 EUR/kWh = 930.00 EUR.
+    let body = json!({"kind": "saving", "method": "volume_adjusted", "item": z.energy, "period": "2025-04",
         "baseline_intensity": "41.5", "reporting_volume": 3100, "measured_consumption": "124000", "evidence": "main meter, MES volume"});
     let e = book(&t, z.id, body).await.json()["entry"].clone();
     assert_eq!(dec(&e["quantity"]), Decimal::from(4650));
     assert_eq!(dec(&e["amount"]), Decimal::from(930));
+    // The new field, and the old one kept for one release (deprecated in openapi.json).
+    assert_eq!(e["booking_method"], "volume_adjusted");
     assert_eq!(e["method"], "normalized");
     assert_eq!(dec(&e["baseline_intensity"]), Decimal::from_str("41.5").unwrap());
     assert_eq!(dec(&e["reporting_volume"]), Decimal::from(3100));
+    // Stored under its old code: the CHECK of migration 0003 and the hash chain keep it.
+    let stored: String = sqlx::query_scalar("SELECT method FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(stored, "normalized");
+    // The page writes the glossary's words.
+    let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
+    assert!(page.text.contains("<td>adjusted to the period&#39;s volume (41.5 × 3,100 − 124,000)</td>"), "{}", page.text);
+    // The CSV export writes the new value.
+    let csv = t.get(&format!("/zones/{}/ledger.csv", z.id)).await;
+    assert!(csv.text.lines().nth(1).unwrap().contains(",saving,") && csv.text.contains(",volume_adjusted,"), "{}", csv.text);
+    assert!(!csv.text.contains("normalized"), "{}", csv.text);
+}
+
+#[tokio::test]
+async fn the_old_method_name_is_still_accepted_for_one_release() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "NRM-2").await;
+    // Same numbers as above, sent with the deprecated spelling: the same entry.
+    let body = json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-04",
+        "baseline_intensity": "41.5", "reporting_volume": 3100, "measured_consumption": "124000", "evidence": "main meter"});
+    let a = book(&t, z.id, body).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+    assert_eq!(a.json()["entry"]["booking_method"], "volume_adjusted");
+    assert_eq!(dec(&a.json()["entry"]["quantity"]), Decimal::from(4650));
+    // Refusal beside it: a method neither spelling names.
+    let body = json!({"kind": "saving", "method": "normalised", "item": z.energy, "period": "2025-05",
+        "baseline_intensity": "41.5", "reporting_volume": 3100, "measured_consumption": "124000", "evidence": "main meter"});
+    let a = book(&t, z.id, body).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+    assert_eq!(a.json()["fields"], json!([{"field": "method", "message": "direct or volume_adjusted"}]));
 }
 
 #[tokio::test]
@@ -193,7 +224,7 @@ async fn bad_bookings_name_their_field_and_write_nothing() {
         (direct(z.energy, "2025-13", "10"), "period"),
         (direct(z.energy, "2025-03", "ten"), "quantity"),
         (
-            json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-03", "baseline_intensity": "2",
+            json!({"kind": "saving", "method": "volume_adjusted", "item": z.energy, "period": "2025-03", "baseline_intensity": "2",
                 "reporting_volume": "-5", "measured_consumption": "1", "evidence": "x"}),
             "reporting_volume",
         ),
@@ -520,11 +551,11 @@ async fn a_reversed_later_booking_does_not_stretch_the_elapsed_months() {
 }
 
 #[tokio::test]
-async fn direct_savings_are_more_than_zero_and_normalized_ones_may_be_negative() {
+async fn direct_savings_are_more_than_zero_and_volume_adjusted_ones_may_be_negative() {
     let t = test_app(false).await.as_role(Some(Role::Controller));
     let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "SGN-1").await;
     let refusal = "an avoided quantity, more than zero: a period that did worse than its baseline is booked with \
-                   the normalized method; a wrong entry is corrected by reversal";
+                   the method volume_adjusted (adjusted to the period's volume); a wrong entry is corrected by reversal";
     for q in ["0", "-5", "-0.01"] {
         let a = book(&t, z.id, direct(z.energy, "2025-03", q)).await;
         assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{q}: {}", a.text);
@@ -534,9 +565,10 @@ async fn direct_savings_are_more_than_zero_and_normalized_ones_may_be_negative()
     assert_eq!(n, 0);
     // Positive control: the smallest positive quantity is a saving.
     assert_eq!(book(&t, z.id, direct(z.energy, "2025-03", "0.01")).await.status, StatusCode::CREATED);
-    // A normalized saving may be negative (hand arithmetic): 41.5 kWh per unit x 2,900 units =
-    // 120,350 kWh adjusted baseline; 124,000 kWh metered: -3,650 kWh x 0.20 EUR/kWh = -730.00 EUR.
-    let body = json!({"kind": "saving", "method": "normalized", "item": z.energy, "period": "2025-04",
+    // A saving adjusted to the period's volume may be negative (hand arithmetic): 41.5 kWh per
+    // unit x 2,900 units = 120,350 kWh adjusted baseline; 124,000 kWh metered: -3,650 kWh x 0.20
+    // EUR/kWh = -730.00 EUR.
+    let body = json!({"kind": "saving", "method": "volume_adjusted", "item": z.energy, "period": "2025-04",
         "baseline_intensity": "41.5", "reporting_volume": "2900", "measured_consumption": "124000", "evidence": "main meter"});
     let a = book(&t, z.id, body).await;
     assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
@@ -772,6 +804,29 @@ async fn import_with(t: &TestApp, zone: i64, token: &str, csv: &str, again: bool
         .body(Body::from(body))
         .unwrap();
     t.send(req).await
+}
+
+#[tokio::test]
+async fn a_csv_file_with_the_old_method_name_is_the_same_file_as_with_the_new() {
+    let t = test_app(false).await.as_role(Some(Role::Controller));
+    let z = zone_with_baseline(&t.as_role(Some(Role::Lead)), "SAM-2").await;
+    let old = "period,kind,item,method,quantity,baseline_intensity,reporting_volume,measured_consumption,amount,evidence\n\
+               2025-03,saving,Energy,normalized,,41.5,3100,124000,,main meter\n";
+    let a = import_with(&t, z.id, &crate::helpers::form_token(), old, false).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    // Hand arithmetic: 41.5 x 3,100 - 124,000 = 4,650 kWh.
+    let q: String = sqlx::query_scalar("SELECT quantity FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(q, "4650");
+    let new = old.replace(",normalized,", ",volume_adjusted,");
+    let a = import_with(&t, z.id, &crate::helpers::form_token(), &new, false).await;
+    assert_eq!(a.status, StatusCode::CONFLICT, "{}", a.text);
+    assert!(a.text.contains("this file has the same rows as import 1, imported at "), "{}", a.text);
+    // Positive control: another volume is another file.
+    let other = new.replace(",3100,", ",3000,");
+    let a = import_with(&t, z.id, &crate::helpers::form_token(), &other, false).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+    let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
+    assert_eq!(n, 2);
 }
 
 #[tokio::test]

@@ -3,7 +3,7 @@
 //! forecast examples, and a scipy fixture of dated zone histories (tests/fixtures/scipy_xirr.py).
 
 use pilot_ledger::finance::{
-    FinanceError, Realization, forecast_at_completion, normalized_avoided, realization, realized_return, xirr_outcome,
+    FinanceError, Realization, forecast_at_completion, volume_adjusted_avoided, realization, realized_return, xirr_outcome,
 };
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;
@@ -24,35 +24,35 @@ fn ints(v: &[i64]) -> Vec<Decimal> {
 // ---------------------------------------------------------------------------------------------
 
 #[test]
-fn normalized_avoided_worked_example() {
+fn volume_adjusted_avoided_worked_example() {
     // Common practice, hand arithmetic (the IPMVP "avoided energy" idea: adjusted baseline minus
     // reporting-period consumption): a baseline of 41.5 kWh per unit, 3,100 units produced in the
     // reporting period: adjusted baseline 41.5 x 3,100 = 128,650 kWh; 124,000 kWh metered;
     // 128,650 - 124,000 = 4,650 kWh avoided.
-    assert_eq!(normalized_avoided(d("41.5"), d("3100"), d("124000")).unwrap(), d("4650"));
+    assert_eq!(volume_adjusted_avoided(d("41.5"), d("3100"), d("124000")).unwrap(), d("4650"));
     // Same intensity, fewer units (2,900): 41.5 x 2,900 = 120,350 kWh adjusted baseline; 124,000
     // metered: 120,350 - 124,000 = -3,650 kWh, a loss, returned negative (not clamped).
-    assert_eq!(normalized_avoided(d("41.5"), d("2900"), d("124000")).unwrap(), d("-3650"));
+    assert_eq!(volume_adjusted_avoided(d("41.5"), d("2900"), d("124000")).unwrap(), d("-3650"));
     // Exact Decimal arithmetic with fractions: 0.37 x 12,345.6 - 4,500.25 = 4,567.872 - 4,500.25
     // = 67.622.
-    assert_eq!(normalized_avoided(d("0.37"), d("12345.6"), d("4500.25")).unwrap(), d("67.622"));
+    assert_eq!(volume_adjusted_avoided(d("0.37"), d("12345.6"), d("4500.25")).unwrap(), d("67.622"));
     // Zeros are accepted: nothing produced, nothing metered.
-    assert_eq!(normalized_avoided(d("41.5"), Decimal::ZERO, Decimal::ZERO).unwrap(), Decimal::ZERO);
+    assert_eq!(volume_adjusted_avoided(d("41.5"), Decimal::ZERO, Decimal::ZERO).unwrap(), Decimal::ZERO);
     // No production but consumption: all of it is a loss.
-    assert_eq!(normalized_avoided(d("41.5"), Decimal::ZERO, d("500")).unwrap(), d("-500"));
+    assert_eq!(volume_adjusted_avoided(d("41.5"), Decimal::ZERO, d("500")).unwrap(), d("-500"));
 }
 
 #[test]
-fn normalized_avoided_rejects_negative_inputs() {
+fn volume_adjusted_avoided_rejects_negative_inputs() {
     let invalid = |field: &str| FinanceError::InvalidInput { field: field.into(), reason: "must be zero or more" };
-    assert_eq!(normalized_avoided(d("-41.5"), d("3100"), d("124000")), Err(invalid("baseline intensity")));
-    assert_eq!(normalized_avoided(d("41.5"), d("-1"), d("124000")), Err(invalid("reporting-period volume")));
-    assert_eq!(normalized_avoided(d("41.5"), d("3100"), d("-0.01")), Err(invalid("measured consumption")));
+    assert_eq!(volume_adjusted_avoided(d("-41.5"), d("3100"), d("124000")), Err(invalid("baseline intensity")));
+    assert_eq!(volume_adjusted_avoided(d("41.5"), d("-1"), d("124000")), Err(invalid("reporting-period volume")));
+    assert_eq!(volume_adjusted_avoided(d("41.5"), d("3100"), d("-0.01")), Err(invalid("measured consumption")));
     // The message names the input for the user.
-    let msg = normalized_avoided(d("41.5"), d("3100"), d("-1")).unwrap_err().to_string();
+    let msg = volume_adjusted_avoided(d("41.5"), d("3100"), d("-1")).unwrap_err().to_string();
     assert_eq!(msg, "measured consumption: must be zero or more");
     // Negative zero is zero, not negative.
-    assert_eq!(normalized_avoided(d("-0"), d("3100"), d("0")).unwrap(), Decimal::ZERO);
+    assert_eq!(volume_adjusted_avoided(d("-0"), d("3100"), d("0")).unwrap(), Decimal::ZERO);
 }
 
 // ---------------------------------------------------------------------------------------------

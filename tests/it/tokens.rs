@@ -331,7 +331,7 @@ async fn entries_chained_before_the_column_still_verify() {
             case_id: 1,
             item: pilot_ledger::domain::LedgerItem::Driver(pilot_ledger::domain::DriverId(1)),
             period: pilot_ledger::domain::Month::parse("2025-02").unwrap(),
-            method: "direct".into(),
+            method: pilot_ledger::domain::Method::Direct,
             quantity: Some(rust_decimal::Decimal::from(100 * id)),
             unit_value: Some(rust_decimal::Decimal::new(2, 1)),
             amount: rust_decimal::Decimal::from(20 * id),
