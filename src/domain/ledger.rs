@@ -350,7 +350,8 @@ impl Booking {
             }),
         );
         // Empty is spending's default; `None` for anything else unknown.
-        let method = if input.method.trim().is_empty() { Some(Method::Spend) } else { Method::from_input(&input.method) };
+        let method =
+            if input.method.trim().is_empty() { Some(Method::Spend) } else { Method::from_input(&input.method) };
         let measurement = match (kind, method) {
             (Some(EntryKind::Saving), Some(Method::Direct)) => e
                 .take(
@@ -688,9 +689,12 @@ impl BookingBaseline {
                         ),
                     )
                 };
-                let q =
-                    crate::finance::volume_adjusted_avoided(*baseline_intensity, *reporting_volume, *measured_consumption)
-                        .map_err(|_| too_large())?;
+                let q = crate::finance::volume_adjusted_avoided(
+                    *baseline_intensity,
+                    *reporting_volume,
+                    *measured_consumption,
+                )
+                .map_err(|_| too_large())?;
                 if q.abs() > MAX_MAGNITUDE {
                     return Err(too_large());
                 }

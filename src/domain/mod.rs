@@ -48,8 +48,8 @@ pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{SiteSettings, SiteSettingsInput};
 pub use uncertainty::{
-    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, parse_seed, quantity_ranges,
-    risk_adjusted_npv,
+    Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, chance_weighted_npv,
+    parse_seed, quantity_ranges,
 };
 pub use user::{
     TOKEN_DAYS_DEFAULT, TOKEN_DAYS_MAX, USER_NAME_MAX, check_token_days, issued_on_behalf, parse_token_days,

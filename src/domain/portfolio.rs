@@ -4,15 +4,15 @@
 //! Zones already approved, piloting or measuring are **committed**: their one-off investment is
 //! taken from the budget first. Shelved and closed zones are out of the choice. Candidates
 //! compete for what is left: the exact 0/1 knapsack ([`crate::finance::selection::knapsack`])
-//! picks the set with the largest total value (NPV, risk-adjusted or calibrated NPV, as chosen)
+//! picks the set with the largest total value (NPV, chance-weighted or calibrated NPV, as chosen)
 //! whose investment fits; a candidate whose value is not positive is never picked. Beside it,
-//! the greedy set taken in order of profitability index, for comparison. An optional minimum
+//! the set taken by profitability index (greedy, in that order), for comparison. An optional minimum
 //! readiness keeps candidates below it (or not yet scored) out of both sets; readiness never
 //! changes the money figures.
 
 use super::history::BaselineHistory;
 use super::realized::month_index;
-use super::uncertainty::{Calibration, Trials, calibrated_npv, parse_seed, quantity_ranges, risk_adjusted_npv};
+use super::uncertainty::{Calibration, Trials, calibrated_npv, chance_weighted_npv, parse_seed, quantity_ranges};
 use super::{
     ApprovalSettings, CaseHeader, Criterion, DriverKind, FieldErrors, Month, NewBenefitDriver, NewCostItem,
     NumberFormat, Readiness, SiteSettings, Zone, ZoneStatus, finance_input,
@@ -35,8 +35,8 @@ use std::sync::Arc;
 pub enum RankBy {
     /// NPV, largest first.
     Npv,
-    /// Risk-adjusted NPV, largest first.
-    RiskAdjusted,
+    /// Chance-weighted NPV, largest first.
+    ChanceWeighted,
     /// Calibrated NPV, largest first.
     Calibrated,
     /// IRR, largest first.
@@ -50,13 +50,13 @@ pub enum RankBy {
 impl RankBy {
     /// Every choice, for the select box.
     pub const ALL: [RankBy; 6] =
-        [Self::Npv, Self::RiskAdjusted, Self::Calibrated, Self::Irr, Self::Payback, Self::ProfitabilityIndex];
+        [Self::Npv, Self::ChanceWeighted, Self::Calibrated, Self::Irr, Self::Payback, Self::ProfitabilityIndex];
 
     /// Query-string spelling.
     pub fn as_str(self) -> &'static str {
         match self {
             Self::Npv => "npv",
-            Self::RiskAdjusted => "risk_adjusted_npv",
+            Self::ChanceWeighted => "chance_weighted_npv",
             Self::Calibrated => "calibrated_npv",
             Self::Irr => "irr",
             Self::Payback => "payback",
@@ -68,7 +68,7 @@ impl RankBy {
     pub fn label(self) -> &'static str {
         match self {
             Self::Npv => "NPV",
-            Self::RiskAdjusted => "Risk-adjusted NPV",
+            Self::ChanceWeighted => "Chance-weighted NPV",
             Self::Calibrated => "Calibrated NPV",
             Self::Irr => "IRR",
             Self::Payback => "Payback (shortest first)",
@@ -81,9 +81,16 @@ impl RankBy {
     }
 }
 
+/// The spelling of `chance_weighted_npv` before 0.2.0, still read until 0.3.0 (deprecated).
+pub const DEPRECATED_CHANCE_WEIGHTED: &str = "risk_adjusted_npv";
+
 /// One of `all` by its query spelling, `default` when empty; the error lists the spellings.
+/// The deprecated [`DEPRECATED_CHANCE_WEIGHTED`] reads as `chance_weighted_npv`.
 fn choice<T: Copy>(value: &str, all: &[T], name: fn(T) -> &'static str, default: T) -> Result<T, String> {
-    let v = value.trim();
+    let v = match value.trim() {
+        DEPRECATED_CHANCE_WEIGHTED => "chance_weighted_npv",
+        v => v,
+    };
     if v.is_empty() {
         return Ok(default);
     }
@@ -98,21 +105,21 @@ fn choice<T: Copy>(value: &str, all: &[T], name: fn(T) -> &'static str, default:
 pub enum ValueBasis {
     /// NPV as entered.
     Npv,
-    /// Risk-adjusted NPV.
-    RiskAdjusted,
+    /// Chance-weighted NPV.
+    ChanceWeighted,
     /// Calibrated NPV.
     Calibrated,
 }
 
 impl ValueBasis {
     /// Every choice.
-    pub const ALL: [ValueBasis; 3] = [Self::Npv, Self::RiskAdjusted, Self::Calibrated];
+    pub const ALL: [ValueBasis; 3] = [Self::Npv, Self::ChanceWeighted, Self::Calibrated];
 
     /// Query-string spelling.
     pub fn as_str(self) -> &'static str {
         match self {
             Self::Npv => "npv",
-            Self::RiskAdjusted => "risk_adjusted_npv",
+            Self::ChanceWeighted => "chance_weighted_npv",
             Self::Calibrated => "calibrated_npv",
         }
     }
@@ -121,7 +128,7 @@ impl ValueBasis {
     pub fn label(self) -> &'static str {
         match self {
             Self::Npv => "NPV",
-            Self::RiskAdjusted => "risk-adjusted NPV",
+            Self::ChanceWeighted => "chance-weighted NPV",
             Self::Calibrated => "calibrated NPV",
         }
     }
@@ -275,7 +282,7 @@ pub struct BaseFigures {
     pub kinds: Vec<DriverKind>,
     /// Monte Carlo of NPV.
     pub simulation: Simulation,
-    /// Probability of technical success.
+    /// Chance the pilot works (`success_probability`).
     pub success_probability: Decimal,
 }
 
@@ -426,8 +433,8 @@ impl Standing {
 pub struct PortfolioRow {
     /// The zone's cached figures.
     pub base: Arc<ZoneBase>,
-    /// Risk-adjusted NPV.
-    pub risk_adjusted: Option<Decimal>,
+    /// Chance-weighted NPV.
+    pub chance_weighted: Option<Decimal>,
     /// Calibrated NPV.
     pub calibrated: Option<Decimal>,
     /// Weighted readiness.
@@ -435,7 +442,7 @@ pub struct PortfolioRow {
     /// Budget standing (without a budget: committed, candidate rows as left out).
     pub standing: Standing,
     /// Whether the profitability-index order would take it.
-    pub in_greedy: bool,
+    pub taken_by_profitability_index: bool,
 }
 
 impl PortfolioRow {
@@ -468,7 +475,7 @@ impl PortfolioRow {
     pub fn value(&self, basis: ValueBasis) -> Option<Decimal> {
         match basis {
             ValueBasis::Npv => self.npv(),
-            ValueBasis::RiskAdjusted => self.risk_adjusted,
+            ValueBasis::ChanceWeighted => self.chance_weighted,
             ValueBasis::Calibrated => self.calibrated,
         }
     }
@@ -478,7 +485,7 @@ impl PortfolioRow {
         let m = &self.figures()?.metrics;
         match rank {
             RankBy::Npv => m.npv.to_f64(),
-            RankBy::RiskAdjusted => self.risk_adjusted.and_then(|v| v.to_f64()),
+            RankBy::ChanceWeighted => self.chance_weighted.and_then(|v| v.to_f64()),
             RankBy::Calibrated => self.calibrated.and_then(|v| v.to_f64()),
             RankBy::Irr => m.irr_annual,
             RankBy::Payback => m.payback_months.as_ref().and_then(|p| p.periods.to_f64()).map(|p| -p),
@@ -500,14 +507,14 @@ pub struct BudgetChoice {
     pub recommended_cost: Decimal,
     /// Recommended candidates' total value.
     pub recommended_value: Decimal,
-    /// Greedy (profitability-index order) investment.
-    pub greedy_cost: Decimal,
-    /// Greedy total value.
-    pub greedy_value: Decimal,
-    /// Codes in the recommended set but not the greedy one.
+    /// Investment of the set taken by profitability index.
+    pub taken_by_profitability_index_cost: Decimal,
+    /// Total value of the set taken by profitability index.
+    pub taken_by_profitability_index_value: Decimal,
+    /// Codes in the recommended set but not the one taken by profitability index.
     pub only_recommended: Vec<String>,
-    /// Codes in the greedy set but not the recommended one.
-    pub only_greedy: Vec<String>,
+    /// Codes in the set taken by profitability index but not the recommended one.
+    pub only_taken_by_profitability_index: Vec<String>,
     /// The best left-out candidate by profitability index, and the budget it lacks beyond what
     /// the recommended set leaves unspent.
     pub next_in_line: Option<(String, Decimal)>,
@@ -565,7 +572,7 @@ pub fn build_portfolio(
         .into_par_iter()
         .map(|base| {
             let f = base.figures.as_ref().ok();
-            let risk_adjusted = f.map(|f| risk_adjusted_npv(&f.metrics, f.success_probability));
+            let chance_weighted = f.map(|f| chance_weighted_npv(&f.metrics, f.success_probability));
             let calibrated = f.map(|f| calibrated_npv(f.metrics.npv, &f.model, f.kinds.iter().copied(), calibration));
             let readiness = Readiness::weighted(criteria, &base.scores);
             let standing = match base.zone.status {
@@ -579,7 +586,7 @@ pub fn build_portfolio(
                 },
                 ZoneStatus::Closed | ZoneStatus::Shelved => Standing::NotInChoice,
             };
-            PortfolioRow { base, risk_adjusted, calibrated, readiness, standing, in_greedy: false }
+            PortfolioRow { base, chance_weighted, calibrated, readiness, standing, taken_by_profitability_index: false }
         })
         .collect();
     let choice = params.budget.map(|budget| choose(&mut rows, budget, params.basis));
@@ -595,7 +602,7 @@ pub fn build_portfolio(
     Portfolio { rows: keyed.into_iter().map(|(_, r)| r).collect(), choice, params }
 }
 
-/// Run the knapsack and the greedy order over the candidate rows; mark each row's standing.
+/// Run the knapsack and the profitability-index order over the candidate rows; mark each row's standing.
 fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> BudgetChoice {
     let committed: Decimal =
         rows.iter().filter(|r| r.standing == Standing::Committed).filter_map(PortfolioRow::investment).sum();
@@ -624,11 +631,12 @@ fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> Budg
         rows[candidates[k]].standing = Standing::Recommended;
     }
     for &k in &greedy.chosen {
-        rows[candidates[k]].in_greedy = true;
+        rows[candidates[k]].taken_by_profitability_index = true;
     }
     let code = |k: usize| rows[candidates[k]].zone().code.clone();
     let only_recommended = best.chosen.iter().filter(|k| !greedy.chosen.contains(k)).map(|&k| code(k)).collect();
-    let only_greedy = greedy.chosen.iter().filter(|k| !best.chosen.contains(k)).map(|&k| code(k)).collect();
+    let only_taken_by_profitability_index =
+        greedy.chosen.iter().filter(|k| !best.chosen.contains(k)).map(|&k| code(k)).collect();
     let unspent = cents(available) - best.cost;
     let next_in_line = order
         .iter()
@@ -641,10 +649,10 @@ fn choose(rows: &mut [PortfolioRow], budget: Decimal, basis: ValueBasis) -> Budg
         available,
         recommended_cost: from_cents(best.cost),
         recommended_value: from_cents(best.value),
-        greedy_cost: from_cents(greedy.cost),
-        greedy_value: from_cents(greedy.value),
+        taken_by_profitability_index_cost: from_cents(greedy.cost),
+        taken_by_profitability_index_value: from_cents(greedy.value),
         only_recommended,
-        only_greedy,
+        only_taken_by_profitability_index,
         next_in_line,
         proven: best.proven,
     }

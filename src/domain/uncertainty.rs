@@ -1,4 +1,4 @@
-//! A case's uncertainty: tornado, break-even, Monte Carlo, risk-adjusted and calibrated NPV, all
+//! A case's uncertainty: tornado, break-even, Monte Carlo, chance-weighted and calibrated NPV, all
 //! from the straight-line NPV of [`crate::finance::linear`] (pre-tax, the headline view).
 
 use super::{CaseHeader, DriverKind, NewBenefitDriver, NewCostItem, SiteSettings, finance_input};
@@ -89,7 +89,7 @@ pub struct CaseUncertainty {
     /// NPV at the likely quantities (the schedule's).
     pub npv: Decimal,
     /// `p * PV(benefits) - PV(costs)`.
-    pub risk_adjusted: Decimal,
+    pub chance_weighted: Decimal,
     /// NPV with each driver's quantity times its kind's calibration factor.
     pub calibrated: Decimal,
     /// Per driver, in case order.
@@ -100,11 +100,11 @@ pub struct CaseUncertainty {
     pub simulation: Simulation,
 }
 
-/// Risk-adjusted NPV: costs are spent whatever happens, benefits arrive only if the pilot works,
-/// with probability `p` (the case's probability of technical success):
+/// Chance-weighted NPV: costs are spent whatever happens, benefits arrive only if the pilot works,
+/// with probability `p` (the case's chance the pilot works, `success_probability`):
 /// `p * PV(benefits) - PV(costs)`. The expected value of the two outcomes (common practice in
 /// staged R&D appraisal).
-pub fn risk_adjusted_npv(metrics: &CaseMetrics, success_probability: Decimal) -> Decimal {
+pub fn chance_weighted_npv(metrics: &CaseMetrics, success_probability: Decimal) -> Decimal {
     success_probability.saturating_mul(metrics.pv_benefits).saturating_sub(metrics.pv_costs)
 }
 
@@ -172,7 +172,7 @@ pub fn case_uncertainty(
         .collect();
     Ok(CaseUncertainty {
         npv,
-        risk_adjusted: risk_adjusted_npv(metrics, header.success_probability),
+        chance_weighted: chance_weighted_npv(metrics, header.success_probability),
         calibrated: calibrated_npv(npv, &model, drivers.iter().map(|d| d.kind), calibration),
         drivers: out_drivers,
         tornado: swings.iter().map(|s| s.driver).collect(),

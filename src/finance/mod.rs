@@ -59,7 +59,7 @@ pub use npv::{npv, profitability_index};
 pub use payback::{Payback, discounted_payback, payback};
 pub use rate::{annual_from_periodic, monthly_from_annual};
 pub use realized::{
-    Realization, RealizedReturn, forecast_at_completion, volume_adjusted_avoided, realization, realized_return,
+    Realization, RealizedReturn, forecast_at_completion, realization, realized_return, volume_adjusted_avoided,
 };
 pub use schedule::{
     CaseInput, CaseMetrics, CostInput, CostTiming, DriverInput, MonthFlow, Schedule, TaxInput, build_schedule,

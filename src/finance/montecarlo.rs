@@ -118,7 +118,7 @@ pub struct Simulation {
     /// 90th percentile.
     pub p90: f64,
     /// Share of trials with NPV below zero.
-    pub prob_negative: f64,
+    pub chance_npv_below_zero: f64,
     /// [`HISTOGRAM_BINS`] equal bars from the smallest to the largest NPV.
     pub histogram: Vec<Bin>,
 }
@@ -149,7 +149,7 @@ fn percentile(sorted: &[f64], p: f64) -> f64 {
 /// let model = LinearNpv { base: -100.0, unit_pv: vec![2.0], quantities: vec![50.0] };
 /// let s = simulate(&model, &[Triangular::new(0.0, 50.0, 100.0)?], 20_000, 7)?;
 /// assert!(s.mean.abs() < 3.0 * s.std_dev / (20_000f64).sqrt());
-/// assert!((s.prob_negative - 0.5).abs() < 0.02);
+/// assert!((s.chance_npv_below_zero - 0.5).abs() < 0.02);
 /// # Ok::<(), pilot_ledger::finance::FinanceError>(())
 /// ```
 ///
@@ -212,7 +212,7 @@ pub fn simulate(
         p10: percentile(&npvs, 10.0),
         p50: percentile(&npvs, 50.0),
         p90: percentile(&npvs, 90.0),
-        prob_negative: negative as f64 / n,
+        chance_npv_below_zero: negative as f64 / n,
         histogram,
     })
 }
@@ -260,7 +260,7 @@ mod tests {
         assert!((exact - 0.375).abs() < 1e-12); // (30 - 15)^2 / ((45 - 15)(35 - 15))
         let s = simulate(&m, &[t], DEFAULT_TRIALS, 99).unwrap();
         let se = (exact * (1.0 - exact) / DEFAULT_TRIALS as f64).sqrt();
-        assert!((s.prob_negative - exact).abs() < 3.0 * se, "{} vs {exact}", s.prob_negative);
+        assert!((s.chance_npv_below_zero - exact).abs() < 3.0 * se, "{} vs {exact}", s.chance_npv_below_zero);
     }
 
     #[test]

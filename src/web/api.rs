@@ -116,7 +116,7 @@ async fn case_body(state: &AppState, id: i64) -> Result<Value, ApiError> {
 
 /// What the case page shows about uncertainty, at full precision: per driver the break-even
 /// quantity, the tornado's NPV at the low and high quantity and the calibration factor with its
-/// evidence; the Monte Carlo figures with their seed and trial count; the risk-adjusted and
+/// evidence; the Monte Carlo figures with their seed and trial count; the chance-weighted and
 /// calibrated NPV. Only `error` (the reason) when it cannot be computed.
 async fn uncertainty_json(
     state: &AppState,
@@ -168,7 +168,9 @@ async fn uncertainty_json(
     let sim = &u.simulation;
     Ok(json!({
         "npv": metrics::money_text(u.npv),
-        "risk_adjusted_npv": metrics::money_text(u.risk_adjusted),
+        "chance_weighted_npv": metrics::money_text(u.chance_weighted),
+        // Deprecated in 0.2.0 (the same figure's old name), removed in 0.3.0.
+        "risk_adjusted_npv": metrics::money_text(u.chance_weighted),
         "calibrated_npv": metrics::money_text(u.calibrated),
         "drivers": drivers,
         "tornado_order": u.tornado.iter().filter_map(|&i| u.drivers.get(i).map(|d| d.label.clone())).collect::<Vec<_>>(),
@@ -181,7 +183,9 @@ async fn uncertainty_json(
             "p10": float(sim.p10),
             "p50": float(sim.p50),
             "p90": float(sim.p90),
-            "probability_npv_below_zero": float(sim.prob_negative),
+            "chance_npv_below_zero": float(sim.chance_npv_below_zero),
+            // Deprecated in 0.2.0 (the same figure's old name), removed in 0.3.0.
+            "probability_npv_below_zero": float(sim.chance_npv_below_zero),
         },
     }))
 }

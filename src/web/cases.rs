@@ -37,7 +37,7 @@ pub struct MetricsView {
     /// Discounted payback in months, or "not reached".
     pub discounted_payback: String,
     /// Profitability index, or a dash.
-    pub pi: String,
+    pub profitability_index: String,
     /// PV of benefits.
     pub pv_benefits: Money,
     /// PV of costs (negative).
@@ -100,7 +100,7 @@ impl From<&CaseMetrics> for MetricsView {
             mirr: m.mirr_annual.map_or_else(|| "–".into(), |r| Percent(r).to_string()),
             payback,
             discounted_payback,
-            pi: m
+            profitability_index: m
                 .profitability_index
                 .map_or_else(|| "–".into(), |p| NumberFormat::current().write_quantity(p.round_dp(2))),
             pv_benefits: Money(m.pv_benefits),
@@ -578,7 +578,7 @@ pub async fn compare(
             CompareRow { name: "MIRR (annual)", a: ma.mirr, b: mb.mirr },
             CompareRow { name: "Payback", a: ma.payback, b: mb.payback },
             CompareRow { name: "Discounted payback", a: ma.discounted_payback, b: mb.discounted_payback },
-            CompareRow { name: "Profitability index", a: ma.pi, b: mb.pi },
+            CompareRow { name: "Profitability index", a: ma.profitability_index, b: mb.profitability_index },
             CompareRow { name: "One-off outlays", a: ma.total_one_off.to_string(), b: mb.total_one_off.to_string() },
             CompareRow { name: "PV of benefits", a: ma.pv_benefits.to_string(), b: mb.pv_benefits.to_string() },
             CompareRow { name: "PV of costs", a: ma.pv_costs.to_string(), b: mb.pv_costs.to_string() },

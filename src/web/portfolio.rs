@@ -89,18 +89,18 @@ pub struct RowView {
     investment: String,
     npv: String,
     npv_negative: bool,
-    risk_adjusted: String,
+    chance_weighted: String,
     calibrated: String,
     irr: String,
     payback: String,
-    pi: String,
-    prob_negative: String,
+    profitability_index: String,
+    chance_npv_below_zero: String,
     p10: String,
     p50: String,
     p90: String,
     realization: String,
     readiness: String,
-    in_greedy: bool,
+    taken_by_profitability_index: bool,
     problem: Option<String>,
     /// "at approval: 9 %" for a baseline whose figures keep the rate of its approval.
     frozen: Option<String>,
@@ -127,17 +127,17 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
         npv: money(r.npv()),
         npv_negative: r.npv().is_some_and(|v| v < Decimal::ZERO),
         frozen: r.base.hurdle.1.then(|| format!("at approval: {}", crate::domain::pct(&r.base.hurdle.0))),
-        risk_adjusted: money(r.risk_adjusted),
+        chance_weighted: money(r.chance_weighted),
         calibrated: money(r.calibrated),
         irr: m.and_then(|m| m.irr_annual).map_or_else(|| DASH.into(), |i| Percent(i).to_string()),
         payback: m.and_then(|m| m.payback_months.as_ref()).map_or_else(
             || "not reached".into(),
             |p| format!("{} mo", NumberFormat::current().write_quantity(p.periods.round_dp(1))),
         ),
-        pi: m
+        profitability_index: m
             .and_then(|m| m.profitability_index)
             .map_or_else(|| DASH.into(), |p| NumberFormat::current().write_quantity(p.round_dp(2))),
-        prob_negative: u.map_or_else(|| DASH.into(), |u| Percent(u.prob_negative).to_string()),
+        chance_npv_below_zero: u.map_or_else(|| DASH.into(), |u| Percent(u.chance_npv_below_zero).to_string()),
         p10: sim_money(u.map(|u| u.p10)),
         p50: sim_money(u.map(|u| u.p50)),
         p90: sim_money(u.map(|u| u.p90)),
@@ -149,7 +149,7 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
                 if x.complete() { score } else { format!("{score} ({} of {} scored)", x.rated, x.of) }
             },
         ),
-        in_greedy: r.in_greedy,
+        taken_by_profitability_index: r.taken_by_profitability_index,
         problem: r.problem().map(str::to_string),
     }
 }
@@ -194,7 +194,7 @@ fn charts(rows: &[PortfolioRow], currency: &str) -> Charts {
         0.0,
         "0",
         format!(
-            "NPV of each zone in {currency}, in ranking order (first: {best}); the thin line spans P10 to P90 of the Monte Carlo."
+            "NPV of each zone in {currency}, in ranking order (first: {best}); the thin line spans the 10th to the 90th percentile of the Monte Carlo."
         ),
     );
     let investment = Scatter::new(
@@ -242,11 +242,11 @@ struct ChoiceView {
     recommended: Vec<String>,
     recommended_cost: Money,
     recommended_value: Money,
-    greedy: Vec<String>,
-    greedy_cost: Money,
-    greedy_value: Money,
+    taken_by_profitability_index: Vec<String>,
+    taken_by_profitability_index_cost: Money,
+    taken_by_profitability_index_value: Money,
     only_recommended: Vec<String>,
-    only_greedy: Vec<String>,
+    only_taken_by_profitability_index: Vec<String>,
     gain: Money,
     next_in_line: Option<(String, Money)>,
     proven: bool,
@@ -263,12 +263,12 @@ fn choice_view(c: &BudgetChoice, rows: &[PortfolioRow]) -> ChoiceView {
         recommended: codes(&|r| r.standing == Standing::Recommended),
         recommended_cost: Money(c.recommended_cost),
         recommended_value: Money(c.recommended_value),
-        greedy: codes(&|r| r.in_greedy),
-        greedy_cost: Money(c.greedy_cost),
-        greedy_value: Money(c.greedy_value),
+        taken_by_profitability_index: codes(&|r| r.taken_by_profitability_index),
+        taken_by_profitability_index_cost: Money(c.taken_by_profitability_index_cost),
+        taken_by_profitability_index_value: Money(c.taken_by_profitability_index_value),
         only_recommended: c.only_recommended.clone(),
-        only_greedy: c.only_greedy.clone(),
-        gain: Money(c.recommended_value - c.greedy_value),
+        only_taken_by_profitability_index: c.only_taken_by_profitability_index.clone(),
+        gain: Money(c.recommended_value - c.taken_by_profitability_index_value),
         next_in_line: c.next_in_line.as_ref().map(|(code, lack)| (code.clone(), Money(*lack))),
         proven: c.proven,
         over_committed: c.committed > c.budget,
@@ -418,16 +418,16 @@ fn csv_of(site: &SiteSettings, portfolio: &Portfolio, numbers: NumberFormat) -> 
         "name".into(),
         "status".into(),
         "standing".into(),
-        "in_pi_order_set".into(),
+        "taken_by_profitability_index".into(),
         "case".into(),
         format!("investment_{cur}"),
         format!("npv_{cur}"),
-        format!("risk_adjusted_npv_{cur}"),
+        format!("chance_weighted_npv_{cur}"),
         format!("calibrated_npv_{cur}"),
         "irr".into(),
         "payback_months".into(),
         "profitability_index".into(),
-        "probability_npv_below_zero".into(),
+        "chance_npv_below_zero".into(),
         format!("p10_npv_{cur}"),
         format!("p50_npv_{cur}"),
         format!("p90_npv_{cur}"),
@@ -449,16 +449,16 @@ fn csv_of(site: &SiteSettings, portfolio: &Portfolio, numbers: NumberFormat) -> 
             csv_safe(j.name),
             j.status.to_string(),
             j.standing.to_string(),
-            j.in_pi_order_set.to_string(),
+            j.taken_by_profitability_index.to_string(),
             j.case.map(|c| csv_safe(&c.label)).unwrap_or_default(),
             text(j.investment),
             text(j.npv),
-            text(j.risk_adjusted_npv),
+            text(j.chance_weighted_npv),
             text(j.calibrated_npv),
             text(j.irr),
             text(j.payback_months),
             text(j.profitability_index),
-            text(j.probability_npv_below_zero),
+            text(j.chance_npv_below_zero),
             text(j.p10_npv),
             text(j.p50_npv),
             text(j.p90_npv),
@@ -500,15 +500,21 @@ struct RowJson<'a> {
     name: &'a str,
     status: &'static str,
     standing: &'static str,
+    taken_by_profitability_index: bool,
+    /// Deprecated in 0.2.0 (`taken_by_profitability_index`), removed in 0.3.0.
     in_pi_order_set: bool,
     case: Option<CaseJson>,
     investment: Option<String>,
     npv: Option<String>,
+    chance_weighted_npv: Option<String>,
+    /// Deprecated in 0.2.0 (`chance_weighted_npv`), removed in 0.3.0.
     risk_adjusted_npv: Option<String>,
     calibrated_npv: Option<String>,
     irr: Option<String>,
     payback_months: Option<String>,
     profitability_index: Option<String>,
+    chance_npv_below_zero: Option<String>,
+    /// Deprecated in 0.2.0 (`chance_npv_below_zero`), removed in 0.3.0.
     probability_npv_below_zero: Option<String>,
     mean_npv: Option<String>,
     p10_npv: Option<String>,
@@ -537,7 +543,8 @@ fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
         name: &r.zone().name,
         status: r.zone().status.as_str(),
         standing: r.standing.label(),
-        in_pi_order_set: r.in_greedy,
+        taken_by_profitability_index: r.taken_by_profitability_index,
+        in_pi_order_set: r.taken_by_profitability_index,
         case: r.base.case.as_ref().map(|(id, v, label, baseline)| CaseJson {
             id: *id,
             version: *v,
@@ -546,12 +553,14 @@ fn row_json(rank: usize, r: &PortfolioRow) -> RowJson<'_> {
         }),
         investment: r.investment().map(money_text),
         npv: r.npv().map(money_text),
-        risk_adjusted_npv: r.risk_adjusted.map(money_text),
+        chance_weighted_npv: r.chance_weighted.map(money_text),
+        risk_adjusted_npv: r.chance_weighted.map(money_text),
         calibrated_npv: r.calibrated.map(money_text),
         irr: m.and_then(|m| m.irr_annual).map(rate_text),
         payback_months: m.and_then(|m| m.payback_months.as_ref()).map(|p| money_text(p.periods)),
         profitability_index: m.and_then(|m| m.profitability_index).map(money_text),
-        probability_npv_below_zero: u.map(|u| rate_text(u.prob_negative)),
+        chance_npv_below_zero: u.map(|u| rate_text(u.chance_npv_below_zero)),
+        probability_npv_below_zero: u.map(|u| rate_text(u.chance_npv_below_zero)),
         mean_npv: sim(|s| s.mean),
         p10_npv: sim(|s| s.p10),
         p50_npv: sim(|s| s.p50),
@@ -634,11 +643,16 @@ fn api_head(computed: &Computed) -> ApiAnswer<'_> {
             "recommended": codes(&|r| r.standing == Standing::Recommended),
             "recommended_investment": money_text(c.recommended_cost),
             "recommended_value": money_text(c.recommended_value),
-            "pi_order": codes(&|r| r.in_greedy),
-            "pi_order_investment": money_text(c.greedy_cost),
-            "pi_order_value": money_text(c.greedy_value),
+            "taken_by_profitability_index": codes(&|r| r.taken_by_profitability_index),
+            "taken_by_profitability_index_investment": money_text(c.taken_by_profitability_index_cost),
+            "taken_by_profitability_index_value": money_text(c.taken_by_profitability_index_value),
             "only_recommended": c.only_recommended,
-            "only_pi_order": c.only_greedy,
+            "only_taken_by_profitability_index": c.only_taken_by_profitability_index,
+            // Deprecated in 0.2.0 (the four fields above under their old names), removed in 0.3.0.
+            "pi_order": codes(&|r| r.taken_by_profitability_index),
+            "pi_order_investment": money_text(c.taken_by_profitability_index_cost),
+            "pi_order_value": money_text(c.taken_by_profitability_index_value),
+            "only_pi_order": c.only_taken_by_profitability_index,
             "next_in_line": c.next_in_line.as_ref().map(|(code, lack)| json!({ "code": code, "budget_lacking": money_text(*lack) })),
             "proven_optimal": c.proven,
         })
@@ -697,8 +711,11 @@ fn stitch_row(out: &mut String, rank: usize, r: &PortfolioRow, pieces: &[Box<str
     out.push_str(figures);
     out.push_str(",\"standing\":");
     out.push_str(&json(&r.standing.label())?);
+    let taken = if r.taken_by_profitability_index { "true" } else { "false" };
+    out.push_str(",\"taken_by_profitability_index\":");
+    out.push_str(taken);
     out.push_str(",\"in_pi_order_set\":");
-    out.push_str(if r.in_greedy { "true" } else { "false" });
+    out.push_str(taken);
     out.push_str(money);
     out.push_str(",\"calibrated_npv\":");
     out.push_str(&json(&r.calibrated.map(money_text))?);

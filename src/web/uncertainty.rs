@@ -1,5 +1,5 @@
 //! The uncertainty section of a case page: tornado, break-even, Monte Carlo histogram,
-//! risk-adjusted and calibrated NPV with the factors and their sources.
+//! chance-weighted and calibrated NPV with the factors and their sources.
 
 use super::chart::{Columns, RangeBars, RangeInput};
 use crate::domain::{Calibration, CaseUncertainty, DriverKind, Money, NumberFormat, Percent, quantity};
@@ -26,7 +26,7 @@ pub struct DriverLine {
 /// Everything the section shows, formatted.
 pub struct UncertaintyView {
     pub(super) npv: Money,
-    pub(super) risk_adjusted: Money,
+    pub(super) chance_weighted: Money,
     pub(super) success_probability: String,
     pub(super) calibrated: Money,
     pub(super) calibration_sources: String,
@@ -35,7 +35,7 @@ pub struct UncertaintyView {
     pub(super) p10: Money,
     pub(super) p50: Money,
     pub(super) p90: Money,
-    pub(super) prob_negative: String,
+    pub(super) chance_npv_below_zero: String,
     pub(super) seed: u64,
     pub(super) trials: usize,
     pub(super) drivers: Vec<DriverLine>,
@@ -123,12 +123,12 @@ impl UncertaintyView {
         let histogram = Columns::histogram(
             &s.histogram.iter().map(|b| (b.from, b.to, b.count)).collect::<Vec<_>>(),
             format!(
-                "{} trials of NPV in {currency}: P10 {}, P50 {}, P90 {}; {} of trials below zero (shaded differently).",
+                "{} trials of NPV in {currency}: 10th percentile {}, median {}, 90th percentile {}; {} of trials below zero (shaded differently).",
                 s.trials,
                 m(s.p10.round()),
                 m(s.p50.round()),
                 m(s.p90.round()),
-                Percent(s.prob_negative)
+                Percent(s.chance_npv_below_zero)
             ),
         );
         let used: Vec<&str> = {
@@ -147,7 +147,7 @@ impl UncertaintyView {
         };
         Self {
             npv: Money(u.npv),
-            risk_adjusted: Money(u.risk_adjusted),
+            chance_weighted: Money(u.chance_weighted),
             success_probability: crate::domain::pct(&success_probability),
             calibrated: Money(u.calibrated),
             calibration_sources,
@@ -156,7 +156,7 @@ impl UncertaintyView {
             p10: m(s.p10),
             p50: m(s.p50),
             p90: m(s.p90),
-            prob_negative: Percent(s.prob_negative).to_string(),
+            chance_npv_below_zero: Percent(s.chance_npv_below_zero).to_string(),
             seed: s.seed,
             trials: s.trials,
             drivers,

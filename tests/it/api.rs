@@ -349,8 +349,10 @@ async fn the_case_answer_carries_what_the_case_page_shows() {
     close(num(&d["break_even_quantity"]), 12_000.0 * 12.0 / (10.0 * a), 1e-9);
     close(num(&d["npv_at_low"]), npv_at(800.0), 1e-9);
     close(num(&d["npv_at_high"]), npv_at(1500.0), 1e-9);
-    // Risk-adjusted: 0.9 x PV(benefits) - PV(costs) = 0.9 x 1000 A - 12000.
-    close(num(&u["risk_adjusted_npv"]), 0.9 * 1000.0 * a - 12_000.0, 1e-9);
+    // Chance-weighted: 0.9 x PV(benefits) - PV(costs) = 0.9 x 1000 A - 12000.
+    close(num(&u["chance_weighted_npv"]), 0.9 * 1000.0 * a - 12_000.0, 1e-9);
+    // The deprecated name (kept one release) carries the same figure.
+    assert_eq!(u["risk_adjusted_npv"], u["chance_weighted_npv"]);
     // No measured zones: no calibration evidence, the factor is 1.
     assert_eq!(d["calibration"]["factor"], "1");
     assert_eq!(d["calibration"]["measured_over_expected"], Value::Null);
@@ -365,7 +367,8 @@ async fn the_case_answer_carries_what_the_case_page_shows() {
         assert!(npv_at(800.0) <= v && v <= npv_at(1500.0), "{key} = {v}");
     }
     assert!(num(&mc["p10"]) <= num(&mc["p50"]) && num(&mc["p50"]) <= num(&mc["p90"]), "{mc}");
-    assert_eq!(mc["probability_npv_below_zero"], "0");
+    assert_eq!(mc["chance_npv_below_zero"], "0");
+    assert_eq!(mc["probability_npv_below_zero"], "0", "the deprecated name, kept one release");
     // The page shows the same break-even to one decimal (458.1).
     let page = t.get(&format!("/cases/{case_id}")).await.text;
     assert!(page.contains("458.1"), "the page's break-even");

@@ -186,10 +186,18 @@ async fn volume_adjusted_measurement_keeps_its_inputs() {
     assert_eq!(stored, "normalized");
     // The page writes the glossary's words.
     let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
-    assert!(page.text.contains("<td>adjusted to the period&#39;s volume (41.5 × 3,100 − 124,000)</td>"), "{}", page.text);
+    assert!(
+        page.text.contains("<td>adjusted to the period&#39;s volume (41.5 × 3,100 − 124,000)</td>"),
+        "{}",
+        page.text
+    );
     // The CSV export writes the new value.
     let csv = t.get(&format!("/zones/{}/ledger.csv", z.id)).await;
-    assert!(csv.text.lines().nth(1).unwrap().contains(",saving,") && csv.text.contains(",volume_adjusted,"), "{}", csv.text);
+    assert!(
+        csv.text.lines().nth(1).unwrap().contains(",saving,") && csv.text.contains(",volume_adjusted,"),
+        "{}",
+        csv.text
+    );
     assert!(!csv.text.contains("normalized"), "{}", csv.text);
 }
 

@@ -169,11 +169,23 @@ async fn budget_choice_on_the_demo_plant_equals_brute_force() {
         assert!((dec(&choice["recommended_value"]) - value).abs() <= tolerance, "budget {budget}");
         assert_eq!(choice["proven_optimal"], true);
     }
-    // At 300,000 the profitability-index order takes EOL-1 first, which leaves no room for
+    // At 300,000 taking zones by profitability index takes EOL-1 first, which leaves no room for
     // CNC-5, the larger NPV: the two sets differ, and EOL-1 just misses out.
     let p = t.get("/api/v1/portfolio?budget=300000").await.json();
     assert_eq!(p["choice"]["recommended"], json!(["CNC-5"]));
-    assert_eq!(p["choice"]["pi_order"], json!(["EOL-1"]));
+    assert_eq!(p["choice"]["taken_by_profitability_index"], json!(["EOL-1"]));
+    // The deprecated names (kept one release) carry the same values.
+    for (new, old) in [
+        ("taken_by_profitability_index", "pi_order"),
+        ("taken_by_profitability_index_investment", "pi_order_investment"),
+        ("taken_by_profitability_index_value", "pi_order_value"),
+        ("only_taken_by_profitability_index", "only_pi_order"),
+    ] {
+        assert_eq!(p["choice"][new], p["choice"][old], "{new}");
+    }
+    assert_eq!(zone(&p, "EOL-1")["taken_by_profitability_index"], true);
+    assert_eq!(zone(&p, "EOL-1")["in_pi_order_set"], true);
+    assert_eq!(zone(&p, "CNC-5")["taken_by_profitability_index"], false);
     assert_eq!(p["choice"]["next_in_line"]["code"], "EOL-1");
     // EOL-1 costs 31,000; the recommended set leaves 300,000 - 218,200 - 55,500 = 26,300.
     assert_eq!(dec(&p["choice"]["next_in_line"]["budget_lacking"]), Decimal::from(4_700));
@@ -212,8 +224,15 @@ async fn ranking_monte_carlo_csv_and_json_agree() {
     let paint = zone(&a, "PAINT-1");
     let (p10, p50, p90) = (dec(&paint["p10_npv"]), dec(&paint["p50_npv"]), dec(&paint["p90_npv"]));
     assert!(p10 < p50 && p50 < p90);
-    // Risk-adjusted NPV = p x PV(benefits) - PV(costs) is below the NPV when p < 1.
-    assert!(dec(&paint["risk_adjusted_npv"]) < dec(&paint["npv"]));
+    // Chance-weighted NPV = p x PV(benefits) - PV(costs) is below the NPV when p < 1.
+    assert!(dec(&paint["chance_weighted_npv"]) < dec(&paint["npv"]));
+    assert_eq!(paint["risk_adjusted_npv"], paint["chance_weighted_npv"], "the deprecated name, kept one release");
+    assert_eq!(paint["probability_npv_below_zero"], paint["chance_npv_below_zero"]);
+    // The old query spelling still ranks, answered under the new one.
+    let old = t.get("/api/v1/portfolio?rank=risk_adjusted_npv&basis=risk_adjusted_npv&seed=7").await.json();
+    let new = t.get("/api/v1/portfolio?rank=chance_weighted_npv&basis=chance_weighted_npv&seed=7").await.json();
+    assert_eq!(old, new);
+    assert_eq!(new["rank"], "chance_weighted_npv");
 
     // The CSV carries the same figures as the API, in the same order.
     let csv = t.get("/portfolio.csv?budget=300000&seed=7").await;
@@ -229,6 +248,9 @@ async fn ranking_monte_carlo_csv_and_json_agree() {
         assert_eq!(row[col("code")], *z["code"].as_str().unwrap());
         assert_eq!(row[col("npv_EUR")], *z["npv"].as_str().unwrap());
         assert_eq!(row[col("p90_npv_EUR")], *z["p90_npv"].as_str().unwrap());
+        assert_eq!(row[col("chance_weighted_npv_EUR")], *z["chance_weighted_npv"].as_str().unwrap());
+        assert_eq!(row[col("chance_npv_below_zero")], *z["chance_npv_below_zero"].as_str().unwrap());
+        assert_eq!(row[col("taken_by_profitability_index")], z["taken_by_profitability_index"].to_string());
         assert_eq!(row[col("standing")], *z["standing"].as_str().unwrap());
     }
 
@@ -337,8 +359,9 @@ async fn the_case_page_explains_the_uncertainty() {
     // Another seed reruns the simulation; the seed is shown back.
     let other = t.get(&format!("/cases/{id}?seed=99")).await;
     assert!(other.text.contains("value=\"99\""));
-    let prob =
-        |text: &str| text.split("id=\"prob-negative\">").nth(1).and_then(|s| s.split('<').next()).map(str::to_string);
+    let prob = |text: &str| {
+        text.split("id=\"chance-npv-below-zero\">").nth(1).and_then(|s| s.split('<').next()).map(str::to_string)
+    };
     assert!(prob(&page.text).is_some());
     // Energy came in low in the demo's measured zones: PAINT-1's energy-heavy case calibrates down.
     let api = t.get("/api/v1/portfolio").await.json();
@@ -391,7 +414,7 @@ async fn cached_figures_follow_every_booking_and_totals_can_be_rebuilt() {
     // Calibration moved for every zone with a scrap driver, PAINT-1 included.
     assert_ne!(zone(&after, "PAINT-1")["calibrated_npv"], zone(&before, "PAINT-1")["calibrated_npv"]);
     // The booking left PRESS-2's case alone: its case figures (reused, not recomputed) are the same.
-    for field in ["npv", "irr", "p10_npv", "p90_npv", "probability_npv_below_zero"] {
+    for field in ["npv", "irr", "p10_npv", "p90_npv", "chance_npv_below_zero"] {
         assert_eq!(zone(&after, "PRESS-2")[field], press[field], "{field}");
     }
     // A new case version of a zone without a baseline is picked up at once.

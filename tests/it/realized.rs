@@ -3,7 +3,8 @@
 //! forecast examples, and a scipy fixture of dated zone histories (tests/fixtures/scipy_xirr.py).
 
 use pilot_ledger::finance::{
-    FinanceError, Realization, forecast_at_completion, volume_adjusted_avoided, realization, realized_return, xirr_outcome,
+    FinanceError, Realization, forecast_at_completion, realization, realized_return, volume_adjusted_avoided,
+    xirr_outcome,
 };
 use rust_decimal::Decimal;
 use rust_decimal::prelude::ToPrimitive;

@@ -24,8 +24,8 @@ fn fresh(t: &TestApp) -> (TestApp, AppState) {
 
 /// The fields of a row that come from the zone's own figures (not from the portfolio around it).
 fn own_figures(row: &Value) -> Value {
-    let keys = ["zone_id", "code", "name", "status", "case", "investment", "npv", "risk_adjusted_npv", "irr"];
-    let more = ["payback_months", "profitability_index", "probability_npv_below_zero", "mean_npv", "p10_npv"];
+    let keys = ["zone_id", "code", "name", "status", "case", "investment", "npv", "chance_weighted_npv", "irr"];
+    let more = ["payback_months", "profitability_index", "chance_npv_below_zero", "mean_npv", "p10_npv"];
     let last = ["p50_npv", "p90_npv", "realization_to_date", "problem", "hurdle_rate", "hurdle_rate_basis"];
     keys.iter().chain(&more).chain(&last).map(|k| (k.to_string(), row[*k].clone())).collect()
 }
@@ -149,15 +149,18 @@ async fn after_a_booking_the_stitched_answer_is_what_a_cold_server_computes() {
         "name",
         "status",
         "standing",
+        "taken_by_profitability_index",
         "in_pi_order_set",
         "case",
         "investment",
         "npv",
+        "chance_weighted_npv",
         "risk_adjusted_npv",
         "calibrated_npv",
         "irr",
         "payback_months",
         "profitability_index",
+        "chance_npv_below_zero",
         "probability_npv_below_zero",
         "mean_npv",
         "p10_npv",
