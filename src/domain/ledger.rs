@@ -151,7 +151,7 @@ impl Method {
         match self {
             Self::Direct => "direct",
             Self::VolumeAdjusted => "adjusted to the period's volume",
-            Self::Spend => "spend",
+            Self::Spend => "money spent",
         }
     }
 

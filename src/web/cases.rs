@@ -580,8 +580,12 @@ pub async fn compare(
             CompareRow { name: "Discounted payback", a: ma.discounted_payback, b: mb.discounted_payback },
             CompareRow { name: "Profitability index", a: ma.profitability_index, b: mb.profitability_index },
             CompareRow { name: "One-off outlays", a: ma.total_one_off.to_string(), b: mb.total_one_off.to_string() },
-            CompareRow { name: "PV of benefits", a: ma.pv_benefits.to_string(), b: mb.pv_benefits.to_string() },
-            CompareRow { name: "PV of costs", a: ma.pv_costs.to_string(), b: mb.pv_costs.to_string() },
+            CompareRow {
+                name: "Present value of benefits",
+                a: ma.pv_benefits.to_string(),
+                b: mb.pv_benefits.to_string(),
+            },
+            CompareRow { name: "Present value of costs", a: ma.pv_costs.to_string(), b: mb.pv_costs.to_string() },
             CompareRow {
                 name: "Horizon (months)",
                 a: fa.case.header.horizon_months.to_string(),
