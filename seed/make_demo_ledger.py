@@ -64,7 +64,7 @@ def ledger(code, case):
             q = float(d["qty_likely"]) / 12 * share * REALIZED[code][d["label"]] * random.uniform(0.88, 1.12)
             e = {"kind": "saving", "driver": d["label"], "period": period}
             if d["kind"] == "energy":
-                # Normalized (IPMVP-style): baseline intensity x volume - metered consumption.
+                # Adjusted to the period's volume: baseline intensity x volume - metered consumption.
                 volume = round(random.uniform(26000, 31000))
                 intensity = 3.4
                 e |= {"method": "volume_adjusted", "baseline_intensity": f"{intensity}",

@@ -138,7 +138,7 @@ pub struct CaseHeaderInput {
     /// Months of linear ramp-up after go-live.
     #[serde(deserialize_with = "string_or_number")]
     pub ramp_up_months: String,
-    /// Probability of technical success (fraction in JSON, percent in forms).
+    /// Chance the pilot works (fraction in JSON, percent in forms).
     #[serde(deserialize_with = "string_or_number")]
     pub success_probability: String,
 }
@@ -157,7 +157,7 @@ pub struct CaseHeader {
     pub go_live_offset: u32,
     /// Ramp-up months.
     pub ramp_up_months: u32,
-    /// Probability of technical success, 0 to 1.
+    /// Chance the pilot works, 0 to 1.
     pub success_probability: Decimal,
 }
 

@@ -67,9 +67,9 @@ pub fn checked_rows(
             let cell = cells.get(i).unwrap_or_default();
             // A method hashes as its stored code, so a file written with `volume_adjusted`
             // repeats the same rows written with the older `normalized`.
-            let cell = match Method::from_input(cell) {
-                Some(m) if Some(i) == method_col => m.stored(),
-                _ => cell,
+            let cell = match (Some(i) == method_col).then(|| Method::from_input(cell)).flatten() {
+                Some(m) => m.stored(),
+                None => cell,
             };
             hasher.update(cell.as_bytes());
             hasher.update([0x1f]);

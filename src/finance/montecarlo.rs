@@ -145,7 +145,8 @@ fn percentile(sorted: &[f64], p: f64) -> f64 {
 /// use pilot_ledger::finance::linear::LinearNpv;
 /// use pilot_ledger::finance::montecarlo::{Triangular, simulate};
 ///
-/// // NPV = -100 + 2 q with q triangular on (0, 50, 100): mean 0, P(NPV < 0) = P(q < 50) = 0.5.
+/// // NPV = -100 + 2 q with q triangular on (0, 50, 100): mean 0, chance NPV is below zero =
+/// // P(q < 50) = 0.5.
 /// let model = LinearNpv { base: -100.0, unit_pv: vec![2.0], quantities: vec![50.0] };
 /// let s = simulate(&model, &[Triangular::new(0.0, 50.0, 100.0)?], 20_000, 7)?;
 /// assert!(s.mean.abs() < 3.0 * s.std_dev / (20_000f64).sqrt());

@@ -241,3 +241,35 @@ fn a_listed_label_passes_and_an_unlisted_one_fails() {
     let page = "<th>Payback</th><th>Payback wobble</th>";
     assert_eq!(unlisted(&listed, &labels_in(page)), ["Payback wobble"]);
 }
+
+/// The pages write percentiles in words, with the convention beside them, and none of the
+/// replaced words (the demo plant's portfolio and one of its case pages).
+#[tokio::test]
+async fn pages_write_percentiles_from_the_low_end_beside_their_convention() {
+    let t = crate::helpers::test_app(true).await;
+    let note = "Percentiles count from the low end: 1 in 10 simulated outcomes falls below the 10th percentile.";
+    let portfolio = t.get("/portfolio").await;
+    assert_eq!(portfolio.status, axum::http::StatusCode::OK);
+    assert!(portfolio.text.contains(note), "{}", portfolio.text);
+    for label in [
+        "<th scope=\"col\" class=\"num\">10th pct. / median / 90th pct.</th>",
+        "<th scope=\"col\" class=\"num\">Chance NPV is below zero</th>",
+        "<th scope=\"col\" class=\"num\">Chance-weighted NPV</th>",
+        "<th scope=\"col\" class=\"num\">Profitability index</th>",
+    ] {
+        assert!(portfolio.text.contains(label), "{label}");
+    }
+    let api = t.get("/api/v1/portfolio").await.json();
+    let paint = api["zones"].as_array().unwrap().iter().find(|z| z["code"] == "PAINT-1").unwrap();
+    let case = t.get(&format!("/cases/{}", paint["case"]["id"])).await;
+    assert_eq!(case.status, axum::http::StatusCode::OK);
+    assert!(case.text.contains(note), "{}", case.text);
+    for label in ["<dt>10th percentile</dt>", "<dt>50th percentile (median)</dt>", "<dt>90th percentile</dt>"] {
+        assert!(case.text.contains(label), "{label}");
+    }
+    for old in ["P10", "P50", "P90", "P(NPV", "PI order", "Risk-adjusted", "risk-adjusted", "technical success", ">PI<"]
+    {
+        assert!(!portfolio.text.contains(old), "portfolio page: {old}");
+        assert!(!case.text.contains(old), "case page: {old}");
+    }
+}

@@ -17,7 +17,7 @@ pub struct RangeInput {
     pub from: f64,
     /// Bar end value.
     pub to: f64,
-    /// A thin line across the bar (e.g. P10 to P90).
+    /// A thin line across the bar (e.g. the 10th to the 90th percentile).
     pub whisker: Option<(f64, f64)>,
     /// Where the bar changes to its second class (a tornado's base NPV); `None` for one class.
     pub split: Option<(f64, &'static str)>,
