@@ -217,6 +217,36 @@ fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
     out
 }
 
+/// A range bar small enough for a table cell: the 10th to the 90th percentile as a bar with the
+/// median as a tick, on a scale the whole column shares (so the rows compare at a glance).
+pub struct RangeCell {
+    /// X of the 10th percentile.
+    pub x10: f64,
+    /// X of the median.
+    pub x50: f64,
+    /// Width of the bar (10th to 90th percentile).
+    pub w: f64,
+    /// X of zero, when the column's scale includes it.
+    pub zero: Option<f64>,
+}
+
+impl RangeCell {
+    /// Width of the cell's SVG (`templates/portfolio/_figures.html` draws it this wide).
+    pub const WIDTH: f64 = 110.0;
+
+    /// The scale of a column of `(p10, p90)` ranges: from the lowest to the highest, with zero.
+    pub fn scale(ranges: impl Iterator<Item = (f64, f64)>) -> (f64, f64) {
+        let (lo, hi) = ranges.fold((0.0_f64, 0.0_f64), |(lo, hi), (a, b)| (lo.min(a), hi.max(b)));
+        if hi - lo < 1.0 { (lo - 1.0, hi + 1.0) } else { (lo, hi) }
+    }
+
+    /// Lay out one row's percentiles on the column's `scale` (2 units kept at each end).
+    pub fn new(p10: f64, p50: f64, p90: f64, (lo, hi): (f64, f64)) -> Self {
+        let x = |v: f64| 2.0 + (Self::WIDTH - 4.0) * ((v - lo) / (hi - lo)).clamp(0.0, 1.0);
+        Self { x10: x(p10), x50: x(p50), w: (x(p90) - x(p10)).max(1.0), zero: (lo < 0.0 && hi > 0.0).then(|| x(0.0)) }
+    }
+}
+
 /// Expected against measured: two lines (cumulative) or paired bars (per month), on one scale.
 pub struct PairChart {
     /// The SVG box and the plot area.
