@@ -117,11 +117,13 @@ const LONG_FIGURE: usize = 13;
 
 const DASH: &str = "–";
 
-/// A money text with a line-break opportunity after each group separator, for the table's
-/// HTML: a very long figure wraps between its groups instead of widening the table. Money
-/// texts hold digits, separators and a sign only; anything else is returned escaped, whole.
+/// A money text for the table's HTML: one longer than [`LONG_FIGURE`] characters gets a
+/// line-break opportunity after each group separator, so that it wraps between its groups
+/// instead of widening the table (a shorter one never wraps). Money texts hold digits,
+/// separators and a sign only; anything else is returned escaped, whole.
 fn breakable(text: &str) -> String {
-    if !text.chars().all(|c| c.is_ascii_digit() || matches!(c, '.' | ',' | '-' | '–')) {
+    let money = text.chars().all(|c| c.is_ascii_digit() || matches!(c, '.' | ',' | '-' | '–'));
+    if !money || text.chars().count() <= LONG_FIGURE {
         return text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;");
     }
     let group = match NumberFormat::current().decimal() {
@@ -767,4 +769,24 @@ fn stitch_row(out: &mut String, rank: usize, r: &PortfolioRow, pieces: &[Box<str
     out.push_str(rest);
     out.push('}');
     Ok(())
+}
+
+#[cfg(test)]
+mod layout_tests {
+    use super::*;
+
+    /// Expected texts written by hand from the rule in `breakable`'s docs.
+    #[test]
+    fn only_long_figures_may_wrap_between_groups() {
+        assert_eq!(breakable("-118,670.10"), "-118,670.10");
+        assert_eq!(breakable("-1,000,000.00"), "-1,000,000.00");
+        assert_eq!(breakable("2,064,477,567,804,773.71"), "2,<wbr>064,<wbr>477,<wbr>567,<wbr>804,<wbr>773.71");
+        assert_eq!(breakable("<b>not a figure</b>"), "&lt;b&gt;not a figure&lt;/b&gt;");
+    }
+
+    #[tokio::test]
+    async fn a_decimal_comma_site_breaks_after_its_points() {
+        let text = NumberFormat::DecimalComma.scope(async { breakable("2.064.477.567.804.773,71") }).await;
+        assert_eq!(text, "2.<wbr>064.<wbr>477.<wbr>567.<wbr>804.<wbr>773,71");
+    }
 }
