@@ -278,6 +278,39 @@ impl NumberFormat {
         self.write(v, v.scale())
     }
 
+    /// Write `value` in compact units for axes and narrow cells: `k` (thousand), `M` (million),
+    /// `bn` (billion, 10^9) and `tn` (trillion, 10^12), short scale. Below 1,000 the value is
+    /// written rounded to two decimals with the decimals it has (`250`, `2.5`). From 1,000 on
+    /// it takes the largest unit it reaches and is rounded half away from zero to one decimal
+    /// below 100 of that unit and to none from 100 on (`1.2 M`, `14.2 bn`, `350 k`); a value
+    /// that rounds up to 1,000 of a unit is written in the next one (`999,950` is `1.0 M`, not
+    /// `1000 k`). Beyond the trillions it stays in `tn`, grouped (`14,207 tn`). The decimal
+    /// separator and grouping are this format's; the exact figure belongs beside it.
+    pub fn write_compact(self, value: Decimal) -> String {
+        const UNITS: [(u32, &str); 4] = [(3, "k"), (6, "M"), (9, "bn"), (12, "tn")];
+        let a = value.abs();
+        let sign = if value.is_sign_negative() && !value.is_zero() { "-" } else { "" };
+        let Some(mut unit) = UNITS.iter().rposition(|(p, _)| a >= Decimal::from(10_u64.pow(*p))) else {
+            let small = self.write_quantity(value.round_dp_with_strategy(2, RoundingStrategy::MidpointAwayFromZero));
+            return if small == "-0" { "0".into() } else { small };
+        };
+        loop {
+            let (p, name) = UNITS[unit];
+            let scaled = a / Decimal::from(10_u64.pow(p));
+            let one = scaled.round_dp_with_strategy(1, RoundingStrategy::MidpointAwayFromZero);
+            let (rounded, dp) = if one < Decimal::ONE_HUNDRED {
+                (one, 1)
+            } else {
+                (scaled.round_dp_with_strategy(0, RoundingStrategy::MidpointAwayFromZero), 0)
+            };
+            if rounded >= Decimal::ONE_THOUSAND && unit + 1 < UNITS.len() {
+                unit += 1;
+                continue;
+            }
+            return format!("{sign}{} {name}", self.write(rounded, dp));
+        }
+    }
+
     /// A plain decimal text (`-1250.5`, as the API writes it) with this format's decimal
     /// separator and no grouping: CSV cells, which the importer reads back.
     pub fn export(self, plain: &str) -> String {
@@ -563,6 +596,42 @@ mod tests {
                 .into())
         );
         assert_eq!(read_count(" ", 1, 240), Err("required: a whole number from 1 to 240".into()));
+    }
+
+    /// Expected texts: the rule in `write_compact`'s docs, worked by hand (short-scale unit
+    /// names are common practice in finance reports).
+    #[test]
+    fn compact_units_and_their_rounding_boundaries() {
+        let p = NumberFormat::DecimalPoint;
+        let c = |v: i64| p.write_compact(Decimal::from(v));
+        assert_eq!(c(0), "0");
+        assert_eq!(c(250), "250");
+        assert_eq!(c(999), "999");
+        assert_eq!(c(1_000), "1.0 k");
+        assert_eq!(c(1_250), "1.3 k");
+        assert_eq!(c(99_949), "99.9 k");
+        assert_eq!(c(99_950), "100 k");
+        assert_eq!(c(350_000), "350 k");
+        assert_eq!(c(999_499), "999 k");
+        assert_eq!(c(999_500), "1.0 M");
+        assert_eq!(c(999_950), "1.0 M");
+        assert_eq!(c(1_200_000), "1.2 M");
+        assert_eq!(c(14_206_745_464), "14.2 bn");
+        assert_eq!(c(14_206_745_464_648), "14.2 tn");
+        assert_eq!(c(999_999_999_999_999), "1,000 tn");
+        assert_eq!(c(14_206_745_464_648_000), "14,207 tn");
+        assert_eq!(c(-1_250), "-1.3 k");
+        assert_eq!(c(-76_996), "-77.0 k");
+        assert_eq!(c(-999_950), "-1.0 M");
+        assert_eq!(c(-14_206_745_464_648), "-14.2 tn");
+        assert_eq!(p.write_compact(Decimal::new(25, 1)), "2.5");
+        assert_eq!(p.write_compact(Decimal::new(-125, 3)), "-0.13");
+        assert_eq!(p.write_compact(Decimal::new(-1, 3)), "0");
+        let comma = NumberFormat::DecimalComma;
+        assert_eq!(comma.write_compact(Decimal::from(14_206_745_464_i64)), "14,2 bn");
+        assert_eq!(comma.write_compact(Decimal::from(14_206_745_464_648_000_i64)), "14.207 tn");
+        assert_eq!(comma.write_compact(Decimal::new(25, 1)), "2,5");
+        assert_eq!(NumberFormat::Plain.write_compact(Decimal::from(14_206_745_464_648_000_i64)), "14207 tn");
     }
 
     #[test]

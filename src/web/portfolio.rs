@@ -2,7 +2,7 @@
 //! renderings, so the page, the file and the API always agree.
 
 use super::auth::{CurrentUser, Nav};
-use super::chart::{Axis, RangeBars, RangeInput, Scatter, ScatterPoint};
+use super::chart::{Axis, RangeBars, RangeCell, RangeInput, Scatter, ScatterPoint};
 use super::figures::READY_WAIT;
 use super::metrics::{money_text, rate_text};
 use super::{ApiError, AppError, AppState};
@@ -95,26 +95,68 @@ pub struct RowView {
     payback: String,
     profitability_index: String,
     chance_npv_below_zero: String,
-    p10: String,
-    p50: String,
-    p90: String,
+    /// The 10th percentile, median and 90th percentile, exact (the range cell's title).
+    percentiles: String,
+    /// The same in compact units, written under the range bar.
+    percentiles_short: String,
+    /// The range bar.
+    range: Option<RangeCell>,
     realization: String,
     readiness: String,
     taken_by_profitability_index: bool,
     problem: Option<String>,
     /// "at approval: 9 %" for a baseline whose figures keep the rate of its approval.
     frozen: Option<String>,
+    /// Whether one of its money figures is longer than [`LONG_FIGURE`] characters.
+    long_figures: bool,
 }
+
+/// Money texts longer than this (`-1,000,000.00` has 13 characters) may wrap between their
+/// groups in the table, which would otherwise grow wider than the page.
+const LONG_FIGURE: usize = 13;
 
 const DASH: &str = "–";
 
-fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
+/// A money text for the table's HTML: one longer than [`LONG_FIGURE`] characters gets a
+/// line-break opportunity after each group separator, so that it wraps between its groups
+/// instead of widening the table (a shorter one never wraps). Money texts hold digits,
+/// separators and a sign only; anything else is returned escaped, whole.
+fn breakable(text: &str) -> String {
+    let money = text.chars().all(|c| c.is_ascii_digit() || matches!(c, '.' | ',' | '-' | '–'));
+    if !money || text.chars().count() <= LONG_FIGURE {
+        return text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;");
+    }
+    let group = match NumberFormat::current().decimal() {
+        ',' => '.',
+        _ => ',',
+    };
+    text.chars().fold(String::with_capacity(text.len() + 16), |mut out, c| {
+        out.push(c);
+        if c == group {
+            out.push_str("<wbr>");
+        }
+        out
+    })
+}
+
+/// The range column's scale: every row's 10th to 90th percentile, with zero.
+fn range_scale(rows: &[PortfolioRow]) -> (f64, f64) {
+    RangeCell::scale(rows.iter().filter_map(|r| r.figures()).map(|f| (f.simulation.p10, f.simulation.p90)))
+}
+
+fn row_view(rank: usize, r: &PortfolioRow, scale: (f64, f64)) -> RowView {
     let f = r.figures();
     let m = f.map(|f| &f.metrics);
     let u = f.map(|f| &f.simulation);
-    let money = |d: Option<Decimal>| d.map_or_else(|| DASH.to_string(), |d| Money(d).to_string());
-    let sim_money = |v: Option<f64>| money(v.and_then(Decimal::from_f64_retain));
+    let money = |d: Option<Decimal>| breakable(&d.map_or_else(|| DASH.to_string(), |d| Money(d).to_string()));
+    let exact = |v: f64| Money(Decimal::from_f64_retain(v).unwrap_or_default().round_dp(2)).to_string();
+    let compact = |v: f64| NumberFormat::current().write_compact(Decimal::from_f64_retain(v).unwrap_or_default());
+    let long_figures = [r.investment(), r.npv(), r.chance_weighted, r.calibrated]
+        .into_iter()
+        .flatten()
+        .any(|d| Money(d).to_string().chars().count() > LONG_FIGURE);
     RowView {
+        long_figures,
         rank,
         zone_id: r.zone().id,
         code: r.zone().code.clone(),
@@ -138,9 +180,20 @@ fn row_view(rank: usize, r: &PortfolioRow) -> RowView {
             .and_then(|m| m.profitability_index)
             .map_or_else(|| DASH.into(), |p| NumberFormat::current().write_quantity(p.round_dp(2))),
         chance_npv_below_zero: u.map_or_else(|| DASH.into(), |u| Percent(u.chance_npv_below_zero).to_string()),
-        p10: sim_money(u.map(|u| u.p10)),
-        p50: sim_money(u.map(|u| u.p50)),
-        p90: sim_money(u.map(|u| u.p90)),
+        percentiles: u.map_or_else(
+            || DASH.into(),
+            |u| {
+                format!(
+                    "10th percentile {}; 50th percentile (median) {}; 90th percentile {}",
+                    exact(u.p10),
+                    exact(u.p50),
+                    exact(u.p90)
+                )
+            },
+        ),
+        percentiles_short: u
+            .map_or_else(|| DASH.into(), |u| format!("{} / {} / {}", compact(u.p10), compact(u.p50), compact(u.p90))),
+        range: u.map(|u| RangeCell::new(u.p10, u.p50, u.p90, scale)),
         realization: r.base.realization.map_or_else(|| DASH.into(), |v| Percent(v).to_string()),
         readiness: r.readiness.map_or_else(
             || "not scored".into(),
@@ -300,6 +353,8 @@ struct PortfolioFigures {
     basis: ValueBasis,
     /// The head of the ranking ([`PAGE_ROWS`]).
     rows: Vec<RowView>,
+    /// Whether a money figure of the table is so long that figures may wrap between groups.
+    long_figures: bool,
     /// How many zones the ranking has.
     ranked: usize,
     /// Zones whose figures are still being computed (left out of everything below).
@@ -367,11 +422,17 @@ pub async fn page(
             let Computed { site, portfolio, pending } = computed;
             // Formatting the rows and charts: on the bounded pool.
             let html = crate::app::cpu::run(move || {
+                let head: Vec<RowView> = {
+                    let head = &portfolio.rows[..portfolio.rows.len().min(PAGE_ROWS)];
+                    let scale = range_scale(head);
+                    head.iter().enumerate().map(|(i, r)| row_view(i + 1, r, scale)).collect()
+                };
                 let figures = PortfolioFigures {
                     basis,
                     charts: charts(&portfolio.rows[..portfolio.rows.len().min(PAGE_ROWS)], &site.currency),
                     choice: portfolio.choice.as_ref().map(|c| choice_view(c, &portfolio.rows)),
-                    rows: portfolio.rows.iter().take(PAGE_ROWS).enumerate().map(|(i, r)| row_view(i + 1, r)).collect(),
+                    long_figures: head.iter().any(|r| r.long_figures),
+                    rows: head,
                     ranked: portfolio.rows.len(),
                     pending,
                     query,
@@ -725,4 +786,24 @@ fn stitch_row(out: &mut String, rank: usize, r: &PortfolioRow, pieces: &[Box<str
     out.push_str(rest);
     out.push('}');
     Ok(())
+}
+
+#[cfg(test)]
+mod layout_tests {
+    use super::*;
+
+    /// Expected texts written by hand from the rule in `breakable`'s docs.
+    #[test]
+    fn only_long_figures_may_wrap_between_groups() {
+        assert_eq!(breakable("-118,670.10"), "-118,670.10");
+        assert_eq!(breakable("-1,000,000.00"), "-1,000,000.00");
+        assert_eq!(breakable("2,064,477,567,804,773.71"), "2,<wbr>064,<wbr>477,<wbr>567,<wbr>804,<wbr>773.71");
+        assert_eq!(breakable("<b>not a figure</b>"), "&lt;b&gt;not a figure&lt;/b&gt;");
+    }
+
+    #[tokio::test]
+    async fn a_decimal_comma_site_breaks_after_its_points() {
+        let text = NumberFormat::DecimalComma.scope(async { breakable("2.064.477.567.804.773,71") }).await;
+        assert_eq!(text, "2.<wbr>064.<wbr>477.<wbr>567.<wbr>804.<wbr>773,71");
+    }
 }

@@ -22,14 +22,14 @@ impl Drop for Driver {
 }
 
 /// chromedriver plus a WebDriver session.
-struct Browser {
-    client: Client,
+pub(super) struct Browser {
+    pub(super) client: Client,
     _driver: Driver,
     _profile: tempfile::TempDir,
 }
 
 /// Start chromium, or `None` (after saying so loudly) when it is not installed here.
-async fn browser() -> Option<Browser> {
+pub(super) async fn browser() -> Option<Browser> {
     let present = std::path::Path::new(CHROMIUM).exists() && std::path::Path::new(CHROMEDRIVER).exists();
     if !present {
         if std::env::var("BROWSER_TESTS").as_deref() == Ok("required") {
@@ -118,7 +118,7 @@ async fn screenshot(c: &Client, name: &str) {
     std::fs::write(dir.join(format!("{name}.png")), c.screenshot().await.unwrap()).unwrap();
 }
 
-async fn sign_in(c: &Client, base: &str, name: &str) {
+pub(super) async fn sign_in(c: &Client, base: &str, name: &str) {
     c.goto(&format!("{base}/login")).await.unwrap();
     fill(c, "name", name).await;
     fill(c, "password", crate::helpers::PASSWORD).await;

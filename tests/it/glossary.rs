@@ -252,7 +252,7 @@ async fn pages_write_percentiles_from_the_low_end_beside_their_convention() {
     assert_eq!(portfolio.status, axum::http::StatusCode::OK);
     assert!(portfolio.text.contains(note), "{}", portfolio.text);
     for label in [
-        "<th scope=\"col\" class=\"num\">10th pct. / median / 90th pct.</th>",
+        "<th scope=\"col\" class=\"range\">NPV: 10th pct. / median / 90th pct.</th>",
         "<th scope=\"col\" class=\"num\">Chance NPV is below zero</th>",
         "<th scope=\"col\" class=\"num\">Chance-weighted NPV</th>",
         "<th scope=\"col\" class=\"num\">Profitability index</th>",

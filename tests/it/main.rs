@@ -15,6 +15,7 @@ mod hardening;
 mod helpers;
 mod history;
 mod hostile;
+mod layout;
 mod ledger;
 mod load;
 mod numbers;

@@ -1,12 +1,14 @@
 //! Server-side SVG charts: coordinates are computed here, the markup lives in templates.
 
 mod bars;
+mod labels;
 mod scatter;
 
 pub use bars::{Columns, RangeBars, RangeInput};
 pub use scatter::{Axis, Scatter, ScatterPoint};
 
 use crate::domain::{Money, NumberFormat};
+use labels::{FONT, Placer, Rect, text_box, text_width};
 
 /// Months to one decimal in the page's number format.
 fn months(m: Decimal) -> String {
@@ -18,8 +20,7 @@ use rust_decimal::prelude::ToPrimitive;
 /// Plot area size in SVG user units.
 const WIDTH: f64 = 720.0;
 const HEIGHT: f64 = 260.0;
-/// Margins for the axis labels.
-const LEFT: f64 = 90.0;
+/// Margin below the plot for the month labels.
 const BOTTOM: f64 = 30.0;
 const TOP: f64 = 12.0;
 
@@ -44,8 +45,78 @@ pub struct Frame {
 pub struct Tick {
     /// Position along its axis.
     pub at: f64,
-    /// Text shown.
+    /// Text shown (compact units for money: `350 k`).
     pub label: String,
+    /// The exact figure, shown as the label's title; empty when the label is exact.
+    pub title: String,
+}
+
+impl Tick {
+    /// A tick whose label is exact.
+    fn plain(at: f64, label: String) -> Self {
+        Self { at, label, title: String::new() }
+    }
+}
+
+/// Money tick values over `lo..=hi`: each value with its compact label and exact figure.
+fn money_ticks(lo: f64, hi: f64) -> Vec<(f64, String, String)> {
+    nice_ticks(lo, hi)
+        .into_iter()
+        .map(|v| {
+            let d = Decimal::from_f64_retain(v).unwrap_or_default().round_dp(2);
+            (v, NumberFormat::current().write_compact(d), Money(d).to_string())
+        })
+        .collect()
+}
+
+/// The left edge of a plot whose y-axis labels (right-aligned 6 units left of the plot) are
+/// `labels`, with `before` units kept free on their left (an axis title): the longest label
+/// decides, so none is cut.
+fn left_for<'a>(labels: impl Iterator<Item = &'a str>, before: f64) -> f64 {
+    let widest = labels.map(|l| text_width(l, FONT)).fold(0.0, f64::max);
+    (before + widest + 6.0 + 4.0).ceil()
+}
+
+/// The boxes of y-axis labels drawn right-aligned 6 units left of `left`, 4 below their tick.
+fn y_label_boxes(ticks: &[Tick], left: f64) -> Vec<Rect> {
+    ticks.iter().map(|t| text_box(&t.label, FONT, left - 6.0 - text_width(&t.label, FONT), t.at + 4.0)).collect()
+}
+
+/// Ticks along the bottom with their labels centred at `baseline`: a tick whose label would
+/// leave `0..width`, meet a `blocked` box (the y-axis labels) or meet the label of a tick kept
+/// before it is dropped (first ones win).
+fn spaced(ticks: Vec<Tick>, baseline: f64, width: f64, blocked: &[Rect]) -> Vec<Tick> {
+    let mut placer = Placer::new(Rect { x: 0.0, y: baseline - 2.0 * FONT, w: width, h: 4.0 * FONT });
+    for b in blocked {
+        placer.block(*b);
+    }
+    ticks
+        .into_iter()
+        .filter(|t| {
+            let w = text_width(&t.label, FONT);
+            // A gap of 4 units between neighbours.
+            let mut b = text_box(&t.label, FONT, t.at - w / 2.0 - 2.0, baseline);
+            b.w += 4.0;
+            placer.place([b]).is_some()
+        })
+        .collect()
+}
+
+/// A vertical marker's text: right of the line at `at`, or left of it when the right side would
+/// leave the chart (`right` is the chart's right edge).
+fn marker_text_x(label: &str, at: f64, right: f64) -> f64 {
+    let w = text_width(label, FONT);
+    if at + 4.0 + w <= right { at + 4.0 } else { (at - 4.0 - w).max(0.0) }
+}
+
+/// A vertical marker line and its text.
+pub struct Marker {
+    /// X of the line.
+    pub at: f64,
+    /// Text.
+    pub label: String,
+    /// X where the text starts.
+    pub text_x: f64,
 }
 
 /// A line chart of one monthly series with a zero line and an optional vertical marker.
@@ -60,8 +131,8 @@ pub struct LineChart {
     pub x_ticks: Vec<Tick>,
     /// Money ticks.
     pub y_ticks: Vec<Tick>,
-    /// X of the payback marker and its text.
-    pub marker: Option<Tick>,
+    /// The payback marker.
+    pub marker: Option<Marker>,
     /// A text summary for screen readers and for people who do not read charts.
     pub summary: String,
 }
@@ -77,8 +148,10 @@ impl LineChart {
         }
         let right = WIDTH - 10.0;
         let bottom = HEIGHT - BOTTOM;
+        let y_values = money_ticks(lo, hi);
+        let left = left_for(y_values.iter().map(|t| t.1.as_str()), 0.0);
         let n = ys.len().max(2) - 1;
-        let x = |i: f64| LEFT + (right - LEFT) * i / n as f64;
+        let x = |i: f64| left + (right - left) * i / n as f64;
         let y = |v: f64| TOP + (bottom - TOP) * (hi - v) / (hi - lo);
         let points = ys
             .iter()
@@ -94,21 +167,25 @@ impl LineChart {
         } else {
             1
         };
-        let x_ticks = (0..=n).step_by(step).map(|m| Tick { at: x(m as f64), label: format!("{m}") }).collect();
-        let y_ticks = nice_ticks(lo, hi)
-            .into_iter()
-            .map(|v| Tick { at: y(v), label: Money(Decimal::from_f64_retain(v).unwrap_or_default()).to_string() })
-            .collect();
-        let marker = marker_month
-            .and_then(|m| Some((m.to_f64()?, m)))
-            .map(|(at, m)| Tick { at: x(at), label: format!("payback {} months", months(m)) });
+        let y_ticks: Vec<Tick> =
+            y_values.into_iter().map(|(v, label, title)| Tick { at: y(v), label, title }).collect();
+        let x_ticks = spaced(
+            (0..=n).step_by(step).map(|m| Tick::plain(x(m as f64), format!("{m}"))).collect(),
+            bottom + 18.0,
+            WIDTH,
+            &y_label_boxes(&y_ticks, left),
+        );
+        let marker = marker_month.and_then(|m| Some((m.to_f64()?, m))).map(|(at, m)| {
+            let label = format!("payback {} months", months(m));
+            Marker { at: x(at), text_x: marker_text_x(&label, x(at), WIDTH), label }
+        });
         let last = values.last().copied().unwrap_or_default();
         let summary = match marker_month {
             Some(m) => format!("{what} crosses zero after {} months and ends at {}.", months(m), Money(last)),
             None => format!("{what} never crosses zero inside the horizon; it ends at {}.", Money(last)),
         };
         Self {
-            frame: Frame { width: WIDTH, height: HEIGHT, left: LEFT, right, top: TOP, bottom },
+            frame: Frame { width: WIDTH, height: HEIGHT, left, right, top: TOP, bottom },
             points,
             zero_y: y(0.0),
             x_ticks,
@@ -117,11 +194,6 @@ impl LineChart {
             summary,
         }
     }
-}
-
-/// A money tick label.
-fn money_label(v: f64) -> String {
-    Money(Decimal::from_f64_retain(v).unwrap_or_default().round()).to_string()
 }
 
 /// `lo..hi` widened to include zero-width ranges and padded by 4 % on each side.
@@ -143,6 +215,36 @@ fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
         v += step;
     }
     out
+}
+
+/// A range bar small enough for a table cell: the 10th to the 90th percentile as a bar with the
+/// median as a tick, on a scale the whole column shares (so the rows compare at a glance).
+pub struct RangeCell {
+    /// X of the 10th percentile.
+    pub x10: f64,
+    /// X of the median.
+    pub x50: f64,
+    /// Width of the bar (10th to 90th percentile).
+    pub w: f64,
+    /// X of zero, when the column's scale includes it.
+    pub zero: Option<f64>,
+}
+
+impl RangeCell {
+    /// Width of the cell's SVG (`templates/portfolio/_figures.html` draws it this wide).
+    pub const WIDTH: f64 = 110.0;
+
+    /// The scale of a column of `(p10, p90)` ranges: from the lowest to the highest, with zero.
+    pub fn scale(ranges: impl Iterator<Item = (f64, f64)>) -> (f64, f64) {
+        let (lo, hi) = ranges.fold((0.0_f64, 0.0_f64), |(lo, hi), (a, b)| (lo.min(a), hi.max(b)));
+        if hi - lo < 1.0 { (lo - 1.0, hi + 1.0) } else { (lo, hi) }
+    }
+
+    /// Lay out one row's percentiles on the column's `scale` (2 units kept at each end).
+    pub fn new(p10: f64, p50: f64, p90: f64, (lo, hi): (f64, f64)) -> Self {
+        let x = |v: f64| 2.0 + (Self::WIDTH - 4.0) * ((v - lo) / (hi - lo)).clamp(0.0, 1.0);
+        Self { x10: x(p10), x50: x(p50), w: (x(p90) - x(p10)).max(1.0), zero: (lo < 0.0 && hi > 0.0).then(|| x(0.0)) }
+    }
 }
 
 /// Expected against measured: two lines (cumulative) or paired bars (per month), on one scale.
@@ -180,7 +282,12 @@ pub struct Bar {
 }
 
 impl PairChart {
-    fn y_scale(values: impl Iterator<Item = f64>, height: f64) -> (f64, f64, f64, f64, impl Fn(f64) -> f64 + Copy) {
+    /// The y scale over `values` and zero: the money ticks, the left edge their labels need,
+    /// the bottom and right edges, and the value-to-y function.
+    fn y_scale(
+        values: impl Iterator<Item = f64>,
+        height: f64,
+    ) -> (Vec<Tick>, f64, f64, f64, impl Fn(f64) -> f64 + Copy) {
         let (mut lo, mut hi) = values.fold((0.0_f64, 0.0_f64), |(lo, hi), v| (lo.min(v), hi.max(v)));
         if (hi - lo).abs() < 1.0 {
             lo -= 1.0;
@@ -188,14 +295,10 @@ impl PairChart {
         }
         let bottom = height - BOTTOM;
         let y = move |v: f64| TOP + (bottom - TOP) * (hi - v) / (hi - lo);
-        (lo, hi, bottom, WIDTH - 10.0, y)
-    }
-
-    fn ticks(lo: f64, hi: f64, y: impl Fn(f64) -> f64) -> Vec<Tick> {
-        nice_ticks(lo, hi)
-            .into_iter()
-            .map(|v| Tick { at: y(v), label: Money(Decimal::from_f64_retain(v).unwrap_or_default()).to_string() })
-            .collect()
+        let values = money_ticks(lo, hi);
+        let left = left_for(values.iter().map(|t| t.1.as_str()), 0.0);
+        let ticks = values.into_iter().map(|(v, label, title)| Tick { at: y(v), label, title }).collect();
+        (ticks, left, bottom, WIDTH - 10.0, y)
     }
 
     /// Cumulative expected and measured lines; the measured line stops at `elapsed`.
@@ -211,8 +314,8 @@ impl PairChart {
         };
         let (e, m) = (cum(expected, expected.len()), cum(measured, elapsed));
         let n = expected.len().max(2) - 1;
-        let (lo, hi, bottom, right, y) = Self::y_scale(e.iter().chain(m.iter()).copied(), HEIGHT);
-        let x = |i: usize| LEFT + (right - LEFT) * i as f64 / n as f64;
+        let (y_ticks, left, bottom, right, y) = Self::y_scale(e.iter().chain(m.iter()).copied(), HEIGHT);
+        let x = |i: usize| left + (right - left) * i as f64 / n as f64;
         let line = |v: &[f64]| {
             v.iter().enumerate().map(|(i, v)| format!("{:.1},{:.1}", x(i), y(*v))).collect::<Vec<_>>().join(" ")
         };
@@ -229,13 +332,18 @@ impl PairChart {
             Money(expected.iter().take(elapsed).sum())
         );
         Self {
-            frame: Frame { width: WIDTH, height: HEIGHT, left: LEFT, right, top: TOP, bottom },
+            frame: Frame { width: WIDTH, height: HEIGHT, left, right, top: TOP, bottom },
             zero_y: y(0.0),
             expected_points: line(&e),
             measured_points: line(&m),
             bars: Vec::new(),
-            y_ticks: Self::ticks(lo, hi, y),
-            x_ticks: (0..=n).step_by(step).map(|i| Tick { at: x(i), label: i.to_string() }).collect(),
+            x_ticks: spaced(
+                (0..=n).step_by(step).map(|i| Tick::plain(x(i), i.to_string())).collect(),
+                bottom + 18.0,
+                WIDTH,
+                &y_label_boxes(&y_ticks, left),
+            ),
+            y_ticks,
             summary,
         }
     }
@@ -245,16 +353,16 @@ impl PairChart {
         let months = months.clamp(1, expected.len().max(1));
         let f = |v: &[Decimal], i: usize| v.get(i).and_then(|d| d.to_f64()).unwrap_or(0.0);
         let height = 170.0;
-        let (lo, hi, bottom, right, y) =
+        let (y_ticks, left, bottom, right, y) =
             Self::y_scale((0..months).flat_map(|i| [f(expected, i), f(measured, i)]), height);
-        let slot = (right - LEFT) / months as f64;
+        let slot = (right - left) / months as f64;
         let w = (slot * 0.4).min(14.0);
         let mut bars = Vec::with_capacity(months * 2);
         for i in 0..months {
             for (k, v) in [f(expected, i), f(measured, i)].into_iter().enumerate() {
                 let (top, base) = (y(v.max(0.0)), y(v.min(0.0)));
                 bars.push(Bar {
-                    x: LEFT + slot * i as f64 + slot * 0.1 + w * k as f64,
+                    x: left + slot * i as f64 + slot * 0.1 + w * k as f64,
                     w,
                     y: top,
                     h: (base - top).max(0.5),
@@ -275,16 +383,18 @@ impl PairChart {
             Money(expected.iter().take(months).sum())
         );
         Self {
-            frame: Frame { width: WIDTH, height, left: LEFT, right, top: TOP, bottom },
+            frame: Frame { width: WIDTH, height, left, right, top: TOP, bottom },
             zero_y: y(0.0),
             expected_points: String::new(),
             measured_points: String::new(),
             bars,
-            y_ticks: Self::ticks(lo, hi, y),
-            x_ticks: (0..months)
-                .step_by(step)
-                .map(|i| Tick { at: LEFT + slot * (i as f64 + 0.5), label: i.to_string() })
-                .collect(),
+            x_ticks: spaced(
+                (0..months).step_by(step).map(|i| Tick::plain(left + slot * (i as f64 + 0.5), i.to_string())).collect(),
+                bottom + 18.0,
+                WIDTH,
+                &y_label_boxes(&y_ticks, left),
+            ),
+            y_ticks,
             summary,
         }
     }
