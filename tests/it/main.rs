@@ -17,6 +17,7 @@ mod hostile;
 mod ledger;
 mod load;
 mod numbers;
+mod packs;
 mod pages;
 mod portfolio;
 mod realized;
