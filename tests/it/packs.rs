@@ -54,8 +54,12 @@ async fn case_pack_keeps_its_figures_after_an_approval_and_a_booking() {
 
     let first = t.get(&format!("/packs/{id}")).await;
     assert_eq!(first.status, StatusCode::OK);
-    assert!(first.text.contains("<td class=\"num\" id=\"npv\"") || first.text.contains("id=\"npv\""));
-    assert!(first.text.contains("19,435.14"), "the page shows the NPV to the cent");
+    let npv_card = format!("<dd class=\"num\" id=\"npv\"><a href=\"/cases/{case}/flows\">19,435.14</a>");
+    assert!(first.text.contains(&npv_card), "the page shows the NPV to the cent");
+    // Made at, to the minute in UTC, with the exact value in the title attribute.
+    let shown = pilot_ledger::domain::pack::made_at_text(&made_at);
+    assert_eq!(shown.len(), "2026-12-03 11:40 UTC".len());
+    assert!(first.text.contains(&format!("<time datetime=\"{made_at}\" title=\"{made_at}\">{shown}</time>")));
     assert!(first.text.contains("@page { size: A4 portrait; margin: 12mm; }"));
     assert!(first.text.contains("break-inside: avoid"));
     assert!(
