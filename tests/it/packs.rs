@@ -99,6 +99,12 @@ async fn case_pack_keeps_its_figures_after_an_approval_and_a_booking() {
     assert_eq!(second["database_state"]["ledger_entries"], 1);
     assert_eq!(second["figures"]["state"], "approved");
     assert_ne!(second["database_state"]["generation"], pack["database_state"]["generation"]);
+    // Its approval record names the signers: the lead submitted, the admin approved.
+    let record = t.get(&format!("/packs/{}", second["id"])).await.text;
+    assert!(record.contains("<tr><td>submitted</td><td class=\"nowrap\">t-lead</td>"), "{record}");
+    assert!(record.contains("<tr><td>approved</td><td class=\"nowrap\">t-admin</td>"), "{record}");
+    assert!(record.contains("<td>go; four eyes: approved by a second person</td>"), "{record}");
+    assert!(!first.text.contains("<tr><td>approved</td>"), "the first pack was made before the approval");
     let listed = t.get(&format!("/api/v1/packs?kind=case&subject={case}")).await.json();
     let ids: Vec<i64> = listed["packs"].as_array().unwrap().iter().map(|p| p["id"].as_i64().unwrap()).collect();
     assert_eq!(ids, [second["id"].as_i64().unwrap(), id], "newest first");
