@@ -217,6 +217,9 @@ async fn a_portfolio_pack_lists_the_changes_since_the_last() {
     assert_eq!(second["figures"]["changes"], json!(["PACK-5 (Added later) added, status candidate"]));
     let page = t.get(&format!("/packs/{}", second["id"])).await.text;
     assert!(page.contains("<li>PACK-5 (Added later) added, status candidate</li>"));
+    let reprint = t.get(&format!("/packs/{}", first["id"])).await.text;
+    assert!(!reprint.contains("PACK-5"), "the first pack is as it was made");
+    assert!(reprint.contains("This is the first portfolio pack: nothing to compare with."));
 
     // The page's button posts the page's settings; a bad budget is refused by name.
     let bad = t.post_form("/portfolio/packs", "budget=lots").await;
