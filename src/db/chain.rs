@@ -240,6 +240,8 @@ pub async fn verify(pool: &SqlitePool) -> DbResult<Verification> {
     let (totals, problem) = ledger::check_totals(&mut tx).await?;
     v.totals = totals;
     v.problems.extend(problem);
+    // Decision packs (migration 0015): each stored hash must follow from the pack's content.
+    v.problems.extend(super::packs::check(&mut tx).await?.1);
     let integrity: Vec<String> = sqlx::query_scalar("PRAGMA integrity_check").fetch_all(&mut *tx).await?;
     if let Some(first) = integrity.into_iter().find(|line| line != "ok") {
         v.problems.push(Problem { table: DATABASE.into(), row: "integrity_check".into(), what: first });

@@ -10,6 +10,7 @@ pub mod audit;
 mod cases;
 mod chain;
 pub mod ledger;
+pub mod packs;
 mod portfolio;
 pub mod readiness;
 mod scenario;

@@ -15,6 +15,7 @@ mod ledger;
 pub mod ledger_csv;
 mod money;
 mod numbers;
+pub mod pack;
 mod portfolio;
 mod readiness;
 mod realized;

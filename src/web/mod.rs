@@ -11,6 +11,7 @@ mod error;
 mod figures;
 mod ledger;
 mod metrics;
+mod packs;
 mod pages;
 mod portfolio;
 mod uncertainty;
@@ -240,9 +241,18 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/api/v1/zones/{id}/status", EditCases, post(api::zone_status)),
         route(g.clone(), "/api/v1/site", Admin, get(api::get_site)),
         route(Method::PATCH, "/api/v1/site", Admin, patch(api::patch_site)),
-        route(g, "/api/v1/zones/{id}/ledger", Read, get(ledger::api_show)),
+        route(g.clone(), "/api/v1/zones/{id}/ledger", Read, get(ledger::api_show)),
         route(p.clone(), "/api/v1/zones/{id}/ledger", Ledger, post(ledger::api_book)),
-        route(p, "/api/v1/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::api_reverse)),
+        route(p.clone(), "/api/v1/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::api_reverse)),
+        // Decision packs: made by whoever edits cases, read by every role.
+        route(g.clone(), "/packs", Read, get(packs::list)),
+        route(g.clone(), "/packs/{id}", Read, get(packs::show)),
+        route(p.clone(), "/cases/{id}/packs", EditCases, post(packs::page_make_case)),
+        route(p.clone(), "/portfolio/packs", EditCases, post(packs::page_make_portfolio)),
+        route(g.clone(), "/api/v1/packs", Read, get(packs::api_list)),
+        route(g, "/api/v1/packs/{id}", Read, get(packs::api_get)),
+        route(p.clone(), "/api/v1/cases/{id}/packs", EditCases, post(packs::api_make_case)),
+        route(p, "/api/v1/portfolio/packs", EditCases, post(packs::api_make_portfolio)),
     ]
 }
 

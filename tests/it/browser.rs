@@ -375,3 +375,67 @@ async fn controller_books_in_decimal_comma() {
     screenshot(c, "ledger-decimal-comma").await;
     b.client.clone().close().await.unwrap();
 }
+
+/// The committee's pack: the lead makes a decision pack of PRESS-2's baseline and prints it; a
+/// controller books a month; the reprinted pack is the same text while the live case page moved
+/// (PRESS-2 measures, so its own booking moves the calibration its case page shows).
+#[tokio::test]
+async fn lead_prints_a_decision_pack_that_a_booking_leaves_unchanged() {
+    let t: TestApp = test_app(true).await;
+    let Some(b) = browser().await else { return };
+    let c = &b.client;
+    let base = format!("http://{}", t.listen().await);
+
+    sign_in(c, &base, "t-lead").await;
+    click_and_wait(c, Locator::LinkText("PRESS-2")).await;
+    click_and_wait(c, Locator::LinkText("v1")).await;
+    let case_url = c.current_url().await.unwrap().to_string();
+    let calibrated = || async { c.find(Locator::Id("calibrated-npv")).await.unwrap().text().await.unwrap() };
+    let live_before = calibrated().await;
+    click_button(c, "Make a decision pack").await;
+    let pack_url = c.current_url().await.unwrap();
+    assert!(pack_url.path().starts_with("/packs/"), "{pack_url}");
+    let snapshot = c.find(Locator::Css("main")).await.unwrap().text().await.unwrap();
+    assert!(snapshot.contains("Decision pack: PRESS-2 · v1 Base"), "{snapshot}");
+    for id in ["pack-question", "pack-figures", "pack-histogram", "pack-tornado", "pack-inputs", "pack-signatures"] {
+        assert!(c.find(Locator::Id(id)).await.unwrap().is_displayed().await.unwrap(), "{id}");
+    }
+    // The print rules travel inside the pack: A4 portrait, cards that never split.
+    let source = c.source().await.unwrap();
+    assert!(source.contains("@page { size: A4 portrait; margin: 12mm; }"));
+    assert!(source.contains(".card { break-inside: avoid;"));
+    let pdf = c.print(fantoccini::wd::PrintConfiguration::default()).await.unwrap();
+    assert!(pdf.starts_with(b"%PDF-"), "the browser prints the pack to PDF");
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("target/browser-screenshots");
+    std::fs::create_dir_all(&dir).unwrap();
+    std::fs::write(dir.join("decision-pack.pdf"), &pdf).unwrap();
+    c.set_window_size(794, 1123).await.unwrap(); // A4 portrait at 96 dpi
+    screenshot(c, "decision-pack").await;
+    c.set_window_size(1280, 1400).await.unwrap();
+
+    c.goto(&format!("{base}/zones")).await.unwrap();
+    click_button(c, "Sign out").await;
+    sign_in(c, &base, "t-controller").await;
+    click_and_wait(c, Locator::LinkText("PRESS-2")).await;
+    click_and_wait(c, Locator::LinkText("Measured savings and spending (ledger)")).await;
+    fill(c, "period", "2025-08").await;
+    fill(c, "quantity", "900").await;
+    fill(c, "evidence", "scrap count from the quality report").await;
+    click_button(c, "Book entry").await;
+    let booked: i64 = sqlx::query_scalar(
+        "SELECT COUNT(*) FROM ledger_entries WHERE evidence = 'scrap count from the quality report'",
+    )
+    .fetch_one(&t.pool)
+    .await
+    .unwrap();
+    assert_eq!(booked, 1);
+
+    // The pack reloads as it was; the live case page has moved on.
+    c.goto(pack_url.as_str()).await.unwrap();
+    assert_eq!(c.find(Locator::Css("main")).await.unwrap().text().await.unwrap(), snapshot);
+    c.goto(&case_url).await.unwrap();
+    assert_ne!(calibrated().await, live_before, "the booking moves the live calibration");
+    c.goto(&format!("{base}/packs")).await.unwrap();
+    assert!(c.find(Locator::LinkText("PRESS-2 v1 Base")).await.is_ok());
+    b.client.clone().close().await.unwrap();
+}

@@ -334,7 +334,13 @@ async fn every_field_the_api_answers_is_in_the_document() {
     let doc = document();
     let metrics_body =
         r#"{"rate": "0.1", "flows": ["-1000", "600", "600"], "dates": ["2026-01-01", "2026-07-01", "2027-01-01"]}"#;
+    // Decision packs of both kinds, so that their stored figures are checked too.
+    assert_eq!(admin.post_json("/api/v1/cases/1/packs", "").await.status, StatusCode::CREATED);
+    assert_eq!(admin.post_json("/api/v1/portfolio/packs", r#"{"budget": "150000"}"#).await.status, StatusCode::CREATED);
     let answers = [
+        ("/api/v1/packs", "get", admin.get("/api/v1/packs").await),
+        ("/api/v1/packs/{id}", "get", admin.get("/api/v1/packs/1").await),
+        ("/api/v1/packs/{id}", "get", admin.get("/api/v1/packs/2").await),
         ("/api/v1/zones", "get", admin.get("/api/v1/zones").await),
         ("/api/v1/zones/{id}", "get", admin.get("/api/v1/zones/1").await),
         ("/api/v1/cases/{id}", "get", admin.get("/api/v1/cases/1").await),

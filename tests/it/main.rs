@@ -19,6 +19,7 @@ mod layout;
 mod ledger;
 mod load;
 mod numbers;
+mod packs;
 mod pages;
 mod portfolio;
 mod realized;

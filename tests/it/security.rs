@@ -21,6 +21,8 @@ async fn concrete_path(t: &TestApp, pattern: &str, case: i64) -> String {
         user
     } else if pattern.starts_with("/admin/tokens") {
         token
+    } else if pattern.starts_with("/packs/") || pattern.starts_with("/api/v1/packs/") {
+        sqlx::query_scalar("SELECT MAX(id) FROM decision_packs").fetch_one(&t.pool).await.unwrap()
     } else {
         case
     };
@@ -98,6 +100,9 @@ async fn role_by_route_matrix() {
         let a = controller.post_json(&format!("/api/v1/zones/{zone}/ledger"), &body).await;
         assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
     }
+    // A decision pack to read.
+    let pack = t.as_role(Some(Role::Lead)).post_json(&format!("/api/v1/cases/{case}/packs"), "").await;
+    assert_eq!(pack.status, StatusCode::CREATED, "{}", pack.text);
     let mut checked = 0;
     for role in [None, Some(Role::Viewer), Some(Role::Controller), Some(Role::Lead), Some(Role::Admin)] {
         for r in &table {
