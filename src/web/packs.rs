@@ -209,9 +209,9 @@ fn case_json(
         "pv_costs": money_text(m.pv_costs),
         "one_off": money_text(m.total_one_off),
         "uncertainty": u.map(|u| json!({
-            "chance_weighted_npv": money_text(u.risk_adjusted),
+            "chance_weighted_npv": money_text(u.chance_weighted),
             "calibrated_npv": money_text(u.calibrated),
-            "chance_npv_below_zero": rate_text(u.simulation.prob_negative),
+            "chance_npv_below_zero": rate_text(u.simulation.chance_npv_below_zero),
             "mean_npv": rate_text(u.simulation.mean),
             "npv_10th_percentile": rate_text(u.simulation.p10),
             "npv_median": rate_text(u.simulation.p50),
@@ -347,9 +347,9 @@ pub struct ChoiceLines {
     recommended: String,
     recommended_cost: Money,
     recommended_value: Money,
-    by_pi: String,
-    by_pi_cost: Money,
-    by_pi_value: Money,
+    taken_by_profitability_index: String,
+    taken_by_profitability_index_cost: Money,
+    taken_by_profitability_index_value: Money,
     next_in_line: Option<(String, Money)>,
 }
 
@@ -445,9 +445,9 @@ async fn render_portfolio(
             recommended: listed(codes(&|r| r.standing == Standing::Recommended)),
             recommended_cost: Money(c.recommended_cost),
             recommended_value: Money(c.recommended_value),
-            by_pi: listed(codes(&|r| r.in_greedy)),
-            by_pi_cost: Money(c.greedy_cost),
-            by_pi_value: Money(c.greedy_value),
+            taken_by_profitability_index: listed(codes(&|r| r.taken_by_profitability_index)),
+            taken_by_profitability_index_cost: Money(c.taken_by_profitability_index_cost),
+            taken_by_profitability_index_value: Money(c.taken_by_profitability_index_value),
             next_in_line: c.next_in_line.as_ref().map(|(code, lack)| (code.clone(), Money(*lack))),
         });
         let money = |d: Option<Decimal>| d.map_or_else(|| DASH.to_string(), |d| Money(d).to_string());
@@ -466,7 +466,7 @@ async fn render_portfolio(
                     standing: r.standing.label(),
                     investment: money(r.investment()),
                     npv: money(r.npv()),
-                    chance_weighted: money(r.risk_adjusted),
+                    chance_weighted: money(r.chance_weighted),
                     calibrated: money(r.calibrated),
                     p10: sim(s.map(|s| s.p10)),
                     p50: sim(s.map(|s| s.p50)),
@@ -490,7 +490,7 @@ async fn render_portfolio(
                 if let Some(o) = v.as_object_mut() {
                     o.insert("rank".into(), json!(i + 1));
                     o.insert("investment".into(), json!(cents(r.investment())));
-                    o.insert("chance_weighted_npv".into(), json!(cents(r.risk_adjusted)));
+                    o.insert("chance_weighted_npv".into(), json!(cents(r.chance_weighted)));
                     o.insert("calibrated_npv".into(), json!(cents(r.calibrated)));
                     o.insert("realization_to_date".into(), json!(r.base.realization.map(rate_text)));
                 }
@@ -512,7 +512,7 @@ async fn render_portfolio(
                 "recommended": codes(&|r| r.standing == Standing::Recommended),
                 "recommended_investment": money_text(c.recommended_cost),
                 "recommended_value": money_text(c.recommended_value),
-                "taken_by_profitability_index": codes(&|r| r.in_greedy),
+                "taken_by_profitability_index": codes(&|r| r.taken_by_profitability_index),
             })),
             "changes_since_pack": previous.as_ref().map(|(id, _)| *id),
             "changes": changes,
