@@ -318,7 +318,7 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
     // A copy of v2 carries its identities; Scrap added again takes its old identity, a second
     // Scrap its own id.
     let mut tx = db::begin_write(&pool).await.unwrap();
-    let v3 = db::copy_case(&mut tx, 2, "Copy", "lead").await.unwrap();
+    let v3 = db::copy_case(&mut tx, 2, "Copy", "lead", "2026-11-15T10:00:00Z").await.unwrap();
     let scrap = NewBenefitDriver {
         label: "Scrap".into(),
         kind: DriverKind::Scrap,
@@ -329,8 +329,8 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
         unit_value: 1.into(),
         escalation: 0.into(),
     };
-    let again = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
-    let second = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
+    let again = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();
+    let second = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();
     tx.commit().await.unwrap();
     let v3_uids: Vec<i64> = sqlx::query_scalar("SELECT item_uid FROM benefit_drivers WHERE case_id = ? ORDER BY id")
         .bind(v3)

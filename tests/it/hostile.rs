@@ -305,7 +305,7 @@ fn scenario_loader_refuses_mangled_files_whole() {
                 let before = write_counts(&t).await;
                 // A harmless mutation loads once; later ones then collide on the zone codes,
                 // which must refuse the whole file just the same.
-                if pilot_ledger::cli::load_text(&t.pool, &text).await.is_err() {
+                if pilot_ledger::cli::load_text(&t.pool, &text, t.now()).await.is_err() {
                     prop_assert_eq!(before, write_counts(&t).await, "a refused load wrote rows");
                 }
                 Ok(())

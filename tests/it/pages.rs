@@ -32,7 +32,7 @@ async fn demo_plant_is_loaded_once_and_every_page_renders() {
 
     // A second start on the same database does not load the demo again.
     let url = t.pool.connect_options().get_filename().display().to_string();
-    let again = pilot_ledger::cli::prepare(&format!("sqlite://{url}"), true).await.unwrap();
+    let again = pilot_ledger::cli::prepare(&format!("sqlite://{url}"), true, t.now()).await.unwrap();
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM zones").fetch_one(&again).await.unwrap();
     assert_eq!(n as usize, zones.len());
 }

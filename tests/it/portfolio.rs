@@ -92,7 +92,7 @@ fn next_npv(energy_factor: Decimal) -> Decimal {
 #[tokio::test]
 async fn calibration_follows_the_documented_rule_on_a_scripted_history() {
     let t = test_app(false).await;
-    let summary = cli::load_text(&t.pool, &scripted_history()).await.unwrap();
+    let summary = cli::load_text(&t.pool, &scripted_history(), t.now()).await.unwrap();
     assert_eq!(summary.entries, 24);
     let p = t.get("/api/v1/portfolio").await;
     assert_eq!(p.status, StatusCode::OK, "{}", p.text);
@@ -351,15 +351,15 @@ async fn scenario_readiness_and_ledger_errors_name_the_path_and_store_nothing() 
     let t = test_app(false).await;
     let mut bad: Value = serde_json::from_str(&scripted_history()).unwrap();
     bad["zones"][0]["readiness"]["made_up"] = json!(3);
-    let err = cli::load_text(&t.pool, &bad.to_string()).await.unwrap_err();
+    let err = cli::load_text(&t.pool, &bad.to_string(), t.now()).await.unwrap_err();
     assert!(format!("{err:#}").contains("zones[0].readiness.made_up"), "{err:#}");
     let mut bad: Value = serde_json::from_str(&scripted_history()).unwrap();
     bad["zones"][0]["ledger"][3]["driver"] = json!("Nothing of that name");
-    let err = cli::load_text(&t.pool, &bad.to_string()).await.unwrap_err();
+    let err = cli::load_text(&t.pool, &bad.to_string(), t.now()).await.unwrap_err();
     assert!(format!("{err:#}").contains("zones[0].ledger[3].driver"), "{err:#}");
     let mut bad: Value = serde_json::from_str(&scripted_history()).unwrap();
     bad["zones"][0]["readiness"]["data_reach"] = json!(9);
-    let err = cli::load_text(&t.pool, &bad.to_string()).await.unwrap_err();
+    let err = cli::load_text(&t.pool, &bad.to_string(), t.now()).await.unwrap_err();
     assert!(format!("{err:#}").contains("zones[0].readiness.data_reach"), "{err:#}");
     let zones: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM zones").fetch_one(&t.pool).await.unwrap();
     let entries: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM ledger_entries").fetch_one(&t.pool).await.unwrap();
