@@ -261,7 +261,7 @@ async fn ids_of_users_deleted_before_the_upgrade_are_never_given_again() {
         "newcomer",
         Role::Admin,
         crate::helpers::PASSWORD,
-        time::OffsetDateTime::now_utc(),
+        crate::helpers::TEST_NOW,
     )
     .await
     .unwrap();

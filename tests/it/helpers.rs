@@ -18,6 +18,11 @@ use tower::ServiceExt;
 /// The password of every test account.
 pub const PASSWORD: &str = "correct horse battery staple";
 
+/// Where every test's clock starts: a fixed instant, so that no test depends on the day it
+/// runs (months "in the future", elapsed months, token expiry). Tests move it with
+/// `t.clock.advance` or start elsewhere with [`test_app_at`].
+pub const TEST_NOW: time::OffsetDateTime = time::macros::datetime!(2026-11-15 10:00:00 UTC);
+
 /// An application on its own temporary SQLite file, with one account per role (`t-lead`,
 /// `t-controller`, `t-viewer`, `t-admin`); requests go out as `as_role` says (lead by default).
 #[derive(Clone)]
@@ -30,9 +35,13 @@ pub struct TestApp {
     _dir: Arc<TempDir>,
 }
 
-/// A fresh database, migrated, with the demo plant when `demo`.
+/// A fresh database, migrated, with the demo plant when `demo`, on the clock at [`TEST_NOW`].
 pub async fn test_app(demo: bool) -> TestApp {
-    let now = time::OffsetDateTime::now_utc();
+    test_app_at(demo, TEST_NOW).await
+}
+
+/// [`test_app`] with the clock (and the demo's load) at `now`.
+pub async fn test_app_at(demo: bool, now: time::OffsetDateTime) -> TestApp {
     let dir = tempfile::tempdir().unwrap();
     let url = format!("sqlite://{}", dir.path().join("test.db").display());
     let pool = cli::prepare(&url, demo, now).await.unwrap();
