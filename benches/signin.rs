@@ -27,10 +27,14 @@ fn main() {
     rt.block_on(async {
         let dir = tempfile::tempdir().unwrap();
         let url = format!("sqlite://{}", dir.path().join("bench.db").display());
-        let pool = cli::prepare(&url, false).await.unwrap();
-        pilot_ledger::app::users::add_user(&pool, "bench", "known", Role::Viewer, PASSWORD).await.unwrap();
-        let gone = pilot_ledger::app::users::add_user(&pool, "bench", "gone", Role::Viewer, PASSWORD).await.unwrap();
-        pilot_ledger::app::users::update_user(&pool, "bench", UserId(-1), gone, Role::Viewer, false).await.unwrap();
+        let now = time::OffsetDateTime::now_utc();
+        let pool = cli::prepare(&url, false, now).await.unwrap();
+        pilot_ledger::app::users::add_user(&pool, "bench", "known", Role::Viewer, PASSWORD, now).await.unwrap();
+        let gone =
+            pilot_ledger::app::users::add_user(&pool, "bench", "gone", Role::Viewer, PASSWORD, now).await.unwrap();
+        pilot_ledger::app::users::update_user(&pool, "bench", UserId(-1), gone, Role::Viewer, false, now)
+            .await
+            .unwrap();
         let kinds = [
             ("known name, wrong password", "known", "wrong password 123"),
             ("unknown name", "nobody", "wrong password 123"),

@@ -1,7 +1,7 @@
 //! The subcommands' work. `main` only parses the configuration and calls [`run`].
 
 use crate::app::{self, users::Account};
-use crate::auth::SystemClock;
+use crate::auth::{Clock, SystemClock};
 use crate::auth::{Role, new_secret, parse_new_password};
 use crate::config::{Command, Config, ServeArgs, TokenCommand, UserCommand};
 use crate::db;
@@ -24,7 +24,7 @@ const EMPTY_SITE: &str = r#"{"format": "pilot-ledger-scenario", "version": 1,
 pub async fn run(config: Config) -> anyhow::Result<()> {
     match config.command.unwrap_or(Command::Serve(ServeArgs::default())) {
         Command::Serve(args) => {
-            let pool = prepare(&config.database_url, !args.no_demo).await?;
+            let pool = prepare(&config.database_url, !args.no_demo, now()).await?;
             let listener =
                 TcpListener::bind(args.addr).await.with_context(|| format!("cannot listen on {}", args.addr))?;
             serve(listener, pool, &args).await
@@ -38,7 +38,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let pool = open(&config.database_url).await?;
             let text = std::fs::read_to_string(&file).with_context(|| format!("cannot read {}", file.display()))?;
             let summary =
-                load_text(&pool, &text).await.with_context(|| format!("{} was not loaded", file.display()))?;
+                load_text(&pool, &text, now()).await.with_context(|| format!("{} was not loaded", file.display()))?;
             println!(
                 "loaded {}: {} zones, {} case versions, {} ledger entries",
                 file.display(),
@@ -80,12 +80,13 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
                 UserCommand::Add { name, role } => {
                     let role = Role::parse(&role).map_err(|e| anyhow::anyhow!("--role: {e}"))?;
                     let password = read_password()?;
-                    let id = app::users::add_user(&pool, CLI_ACTOR, &name, role, &password).await.map_err(refused)?;
+                    let id =
+                        app::users::add_user(&pool, CLI_ACTOR, &name, role, &password, now()).await.map_err(refused)?;
                     println!("user {name} created (id {id}, role {role})");
                 }
                 UserCommand::Passwd { name } => {
                     let password = read_password()?;
-                    app::users::set_password(&pool, CLI_ACTOR, Account::Name(&name), &password)
+                    app::users::set_password(&pool, CLI_ACTOR, Account::Name(&name), &password, now())
                         .await
                         .map_err(refused)?;
                     println!("password of {name} changed; their sessions were ended and their tokens revoked");
@@ -97,7 +98,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
             let pool = open(&config.database_url).await?;
             match cmd {
                 TokenCommand::Create { name, label, days } => {
-                    let now = time::OffsetDateTime::now_utc();
+                    let now = now();
                     let (id, token) =
                         app::users::issue_token(&pool, CLI_ACTOR, &name, &label, days, now).await.map_err(refused)?;
                     let until = (now + time::Duration::days(i64::from(days))).date();
@@ -105,7 +106,7 @@ pub async fn run(config: Config) -> anyhow::Result<()> {
                     println!("{token}");
                 }
                 TokenCommand::Revoke { id } => {
-                    app::users::withdraw_token(&pool, CLI_ACTOR, id).await.map_err(refused)?;
+                    app::users::withdraw_token(&pool, CLI_ACTOR, id, now()).await.map_err(refused)?;
                     println!("token {id} revoked");
                 }
             }
@@ -123,6 +124,11 @@ fn refused(e: app::Error) -> anyhow::Error {
         ),
         other => anyhow::Error::new(other).context("nothing was changed"),
     }
+}
+
+/// "Now" on the command line: the system clock (the server's requests read `AppState.clock`).
+fn now() -> time::OffsetDateTime {
+    SystemClock.now()
 }
 
 /// Who the audit trail names for command-line changes.
@@ -147,12 +153,12 @@ fn read_password() -> anyhow::Result<String> {
 }
 
 /// The demo accounts made on the first run: one per role, random passwords printed once.
-async fn create_demo_accounts(pool: &SqlitePool) -> anyhow::Result<()> {
+async fn create_demo_accounts(pool: &SqlitePool, now: time::OffsetDateTime) -> anyhow::Result<()> {
     let mut lines = Vec::new();
     for role in Role::ALL {
         let password = new_secret("");
         let password = &password.expose()[..20];
-        app::users::add_user(pool, "first-run", role.as_str(), role, password).await.map_err(refused)?;
+        app::users::add_user(pool, "first-run", role.as_str(), role, password, now).await.map_err(refused)?;
         lines.push(format!("  {:<11} {password}", role.as_str()));
     }
     // Printed, not logged: the passwords appear here once and are stored only as hashes.
@@ -182,11 +188,12 @@ pub async fn open(url: &str) -> anyhow::Result<SqlitePool> {
 }
 
 /// Open and migrate; on a database that was never loaded, load the demo plant (once: later
-/// runs find the site settings and leave the data alone).
-pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
+/// runs find the site settings and leave the data alone), stamped `now` (no booking of it may
+/// be later than `now`'s month).
+pub async fn prepare(url: &str, demo: bool, now: time::OffsetDateTime) -> anyhow::Result<SqlitePool> {
     let pool = open(url).await?;
     if demo && db::database_is_empty(&pool).await? {
-        let summary = load_text(&pool, DEMO_SCENARIO).await.context("loading the demo plant failed")?;
+        let summary = load_text(&pool, DEMO_SCENARIO, now).await.context("loading the demo plant failed")?;
         tracing::info!(
             zones = summary.zones,
             cases = summary.cases,
@@ -194,10 +201,10 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
             "empty database: demo plant loaded"
         );
         if db::count_users(&pool).await? == 0 {
-            create_demo_accounts(&pool).await?;
+            create_demo_accounts(&pool, now).await?;
         }
     } else if db::database_is_empty(&pool).await? {
-        load_text(&pool, EMPTY_SITE).await.context("writing default site settings failed")?;
+        load_text(&pool, EMPTY_SITE, now).await.context("writing default site settings failed")?;
         tracing::warn!("empty database without the demo: default site settings written; change them on the Admin page");
     }
     if !demo && db::count_users(&pool).await? == 0 {
@@ -215,8 +222,8 @@ pub async fn prepare(url: &str, demo: bool) -> anyhow::Result<SqlitePool> {
     Ok(pool)
 }
 
-/// Parse, validate and store a scenario document.
-pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::LoadSummary> {
+/// Parse, validate and store a scenario document, stamped `now` (and no booking after it).
+pub async fn load_text(pool: &SqlitePool, text: &str, now: time::OffsetDateTime) -> anyhow::Result<db::LoadSummary> {
     let scenario = match Scenario::parse(text, db::number_format(pool).await?) {
         Ok(s) => s,
         Err(errors) => {
@@ -224,7 +231,7 @@ pub async fn load_text(pool: &SqlitePool, text: &str) -> anyhow::Result<db::Load
             bail!("the scenario is not valid; nothing was stored:\n{}", lines.join("\n"));
         }
     };
-    Ok(db::load_scenario(pool, &scenario, "scenario-load", |_| {}).await?)
+    Ok(db::load_scenario(pool, &scenario, ("scenario-load", now), |_| {}).await?)
 }
 
 /// Serve on `listener` until Ctrl-C or SIGTERM; logs the bound address (port 0 picks a free

@@ -4,14 +4,21 @@ use super::{Actor, AppResult, invalid};
 use crate::db;
 use crate::domain::{CaseHeader, CaseId, parse_comment, parse_return_comment};
 use sqlx::SqlitePool;
+use time::OffsetDateTime;
 
 /// Save version `id` as the zone's next draft named `label`. Returns the new version's id.
-pub async fn copy(pool: &SqlitePool, actor: Actor<'_>, CaseId(id): CaseId, label: &str) -> AppResult<CaseId> {
+pub async fn copy(
+    pool: &SqlitePool,
+    actor: Actor<'_>,
+    CaseId(id): CaseId,
+    label: &str,
+    now: OffsetDateTime,
+) -> AppResult<CaseId> {
     let label = CaseHeader::parse_label(label).map_err(|msg| invalid("label", msg))?;
+    let at = db::timestamp(now);
     let mut tx = db::begin_write(pool).await?;
-    let new_id = db::copy_case(&mut tx, id, &label, actor).await?;
-    db::audit::record(&mut tx, &db::now(), actor, "case.copy", &format!("case {new_id}"), &format!("from case {id}"))
-        .await?;
+    let new_id = db::copy_case(&mut tx, id, &label, actor, &at).await?;
+    db::audit::record(&mut tx, &at, actor, "case.copy", &format!("case {new_id}"), &format!("from case {id}")).await?;
     tx.commit().await?;
     Ok(CaseId(new_id))
 }
@@ -45,22 +52,26 @@ pub async fn review(
     CaseId(id): CaseId,
     step: ReviewStep,
     comment: &str,
+    now: OffsetDateTime,
 ) -> AppResult<()> {
     let comment = match step {
         ReviewStep::Reject => parse_return_comment(comment),
         ReviewStep::Submit | ReviewStep::Approve => parse_comment(comment),
     }
     .map_err(|msg| invalid("comment", msg))?;
+    let at = db::timestamp(now);
     let mut tx = db::begin_write(pool).await?;
     let mut detail = match step {
-        ReviewStep::Submit => db::submit_case(&mut tx, id, actor, &comment).await.map(|()| String::new()),
-        ReviewStep::Approve => db::approve_case(&mut tx, id, actor, &comment).await.map(|k| k.as_str().to_string()),
-        ReviewStep::Reject => db::reject_case(&mut tx, id, actor, &comment).await.map(|()| String::new()),
+        ReviewStep::Submit => db::submit_case(&mut tx, id, actor, &at, &comment).await.map(|()| String::new()),
+        ReviewStep::Approve => {
+            db::approve_case(&mut tx, id, actor, &at, &comment).await.map(|k| k.as_str().to_string())
+        }
+        ReviewStep::Reject => db::reject_case(&mut tx, id, actor, &at, &comment).await.map(|()| String::new()),
     }?;
     if !comment.is_empty() {
         detail = if detail.is_empty() { comment } else { format!("{detail}: {comment}") };
     }
-    db::audit::record(&mut tx, &db::now(), actor, step.action(), &format!("case {id}"), &detail).await?;
+    db::audit::record(&mut tx, &at, actor, step.action(), &format!("case {id}"), &detail).await?;
     tx.commit().await?;
     Ok(())
 }

@@ -7,6 +7,7 @@ use crate::db::{self, ledger::Booked};
 use crate::domain::{Booking, EntryId, FieldErrors, LedgerEntry, UserId, ZoneId, ledger_csv};
 use sqlx::SqlitePool;
 use std::sync::Arc;
+use time::OffsetDateTime;
 
 /// Who books: the account (one-time tokens and idempotency keys are per user) and its name.
 #[derive(Debug, Clone, Copy)]
@@ -42,23 +43,25 @@ pub enum Once<T> {
 }
 
 /// Book one entry with its audit row in one transaction; a form's one-time token is used in
-/// the same transaction (a second submit of it books nothing).
+/// the same transaction (a second submit of it books nothing). `today` is the latest date a
+/// booking may name; `now` stamps the rows.
 pub async fn book(
     pool: &SqlitePool,
     who: Who<'_>,
     ZoneId(zone_id): ZoneId,
     booking: &Booking,
-    today: time::Date,
+    (today, now): (time::Date, OffsetDateTime),
     key: Option<&db::ledger::Idempotency<'_>>,
     form: Option<&str>,
 ) -> AppResult<Once<Booked>> {
+    let at = db::timestamp(now);
     let mut tx = db::begin_write(pool).await?;
     if let Some(token) = form
         && let Some(outcome) = db::ledger::form_outcome(&mut tx, token, who.id.0, zone_id).await?
     {
         return Ok(Once::Already(outcome));
     }
-    let booked = db::ledger::book(&mut tx, zone_id, booking, today, (who.name, who.on_behalf), key).await?;
+    let booked = db::ledger::book(&mut tx, zone_id, booking, today, (who.name, who.on_behalf, &at), key).await?;
     if let Booked::New(e) = &booked {
         let mut detail = format!("{} {} {} {}", e.kind().as_str(), e.period, e.method.as_str(), e.amount);
         if let Some(paid) = e.paid_on {
@@ -68,9 +71,9 @@ pub async fn book(
             detail.push_str(" (beyond the plausibility threshold, confirmed by the author)");
         }
         detail.push_str(&who.audit_note());
-        db::audit::record(&mut tx, &db::now(), who.name, "ledger.book", &format!("entry {}", e.id), &detail).await?;
+        db::audit::record(&mut tx, &at, who.name, "ledger.book", &format!("entry {}", e.id), &detail).await?;
         if let Some(token) = form {
-            db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", e.id)).await?;
+            db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", e.id), &at).await?;
         }
     }
     tx.commit().await?;
@@ -86,7 +89,9 @@ pub async fn reverse(
     EntryId(entry): EntryId,
     evidence: &str,
     form: Option<&str>,
+    now: OffsetDateTime,
 ) -> AppResult<Once<LedgerEntry>> {
+    let at = db::timestamp(now);
     let evidence = crate::domain::required_text(evidence, 80).map_err(|_| {
         Error::Invalid(FieldErrors::one("evidence", "required: why the entry is reversed, at most 80 characters"))
     })?;
@@ -96,13 +101,13 @@ pub async fn reverse(
     {
         return Ok(Once::Already(outcome));
     }
-    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, (who.name, who.on_behalf)).await?;
+    let r = db::ledger::reverse(&mut tx, zone_id, entry, &evidence, (who.name, who.on_behalf, &at)).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", r.id)).await?;
+        db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("entry {}", r.id), &at).await?;
     }
     db::audit::record(
         &mut tx,
-        &db::now(),
+        &at,
         who.name,
         "ledger.reverse",
         &format!("entry {}", r.id),
@@ -133,8 +138,9 @@ pub async fn import(
     ZoneId(zone_id): ZoneId,
     Upload { file_name, bytes, again }: Upload<'_>,
     form: Option<&str>,
-    today: time::Date,
+    (today, now): (time::Date, OffsetDateTime),
 ) -> AppResult<Once<usize>> {
+    let at = db::timestamp(now);
     if bytes.len() > ledger_csv::IMPORT_MAX_BYTES {
         return Err(Error::Invalid(FieldErrors::one(
             "file",
@@ -172,18 +178,23 @@ pub async fn import(
         rows: rows.len(),
         again,
     };
-    let (import_id, earlier) = db::ledger::insert_import(&mut tx, zone_id, &file, who.name).await?;
-    let tag =
-        db::ledger::Tag { actor: who.name, on_behalf: who.on_behalf, import_id: Some(import_id), reverses_id: None };
+    let (import_id, earlier) = db::ledger::insert_import(&mut tx, zone_id, &file, (who.name, &at)).await?;
+    let tag = db::ledger::Tag {
+        actor: who.name,
+        at: &at,
+        on_behalf: who.on_behalf,
+        import_id: Some(import_id),
+        reverses_id: None,
+    };
     db::ledger::insert_checked(&mut tx, zone_id, &rows, &tag).await?;
     let mut detail = format!("{file_name}: {} rows", rows.len());
     if let Some((id, at, by)) = earlier {
         detail.push_str(&format!("; the same rows as import {id} of {at} by {by}, booked again on purpose"));
     }
     detail.push_str(&who.audit_note());
-    db::audit::record(&mut tx, &db::now(), who.name, "ledger.import", &format!("import {import_id}"), &detail).await?;
+    db::audit::record(&mut tx, &at, who.name, "ledger.import", &format!("import {import_id}"), &detail).await?;
     if let Some(token) = form {
-        db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("import {import_id}")).await?;
+        db::ledger::use_form_token(&mut tx, token, who.id.0, zone_id, &format!("import {import_id}"), &at).await?;
     }
     tx.commit().await?;
     Ok(Once::Done(rows.len()))

@@ -7,9 +7,15 @@ use sqlx::SqlitePool;
 
 /// Store new site settings with their audit row: the settings form and `PATCH /api/v1/site`.
 /// The currency is refused once cases hold money (`db::put_site`).
-pub async fn change_settings(pool: &SqlitePool, actor: Actor<'_>, site: &SiteSettings) -> AppResult<()> {
+pub async fn change_settings(
+    pool: &SqlitePool,
+    actor: Actor<'_>,
+    site: &SiteSettings,
+    now: time::OffsetDateTime,
+) -> AppResult<()> {
+    let at = db::timestamp(now);
     let mut tx = db::begin_write(pool).await?;
-    db::put_site(&mut tx, site, actor).await?;
+    db::put_site(&mut tx, site, actor, &at).await?;
     let detail = format!(
         "currency {}, hurdle {}, tax {:?}, depreciation {:?}, one-person approval {}, numbers {}",
         site.currency,
@@ -19,7 +25,7 @@ pub async fn change_settings(pool: &SqlitePool, actor: Actor<'_>, site: &SiteSet
         site.one_person_approval,
         site.number_format.as_str()
     );
-    db::audit::record(&mut tx, &db::now(), actor, "settings.update", "site", &detail).await?;
+    db::audit::record(&mut tx, &at, actor, "settings.update", "site", &detail).await?;
     tx.commit().await?;
     Ok(())
 }

@@ -5,6 +5,7 @@ use crate::auth::{Role, hash_password, hash_secret, new_secret, parse_new_passwo
 use crate::db;
 use crate::domain::{FieldErrors, UserId, check_token_days, parse_user_name};
 use sqlx::SqlitePool;
+use time::OffsetDateTime;
 use time::format_description::well_known::Rfc3339;
 
 async fn hashed(password: &str) -> AppResult<String> {
@@ -20,6 +21,7 @@ pub async fn add_user(
     name: &str,
     role: Role,
     password: &str,
+    now: OffsetDateTime,
 ) -> AppResult<UserId> {
     let mut e = FieldErrors::default();
     let name = e.take("name", parse_user_name(name));
@@ -27,7 +29,7 @@ pub async fn add_user(
     let (Some(name), Some(())) = (name, hash) else { return Err(Error::Invalid(e)) };
     let hash = hashed(password).await?;
     let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
+    let at = db::timestamp(now);
     let id = match db::insert_user(&mut tx, &name, role, &hash, &at, actor).await {
         Err(db::DbError::Conflict(msg)) => return Err(invalid("name", msg)),
         other => other?,
@@ -71,12 +73,13 @@ pub async fn update_user(
     UserId(id): UserId,
     role: Role,
     active: bool,
+    now: OffsetDateTime,
 ) -> AppResult<()> {
     if id == me.0 && (role != Role::Admin || !active) {
         return Err(Error::Conflict("you cannot remove your own admin role or deactivate yourself".into()));
     }
     let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
+    let at = db::timestamp(now);
     let before = db::get_user(&mut tx, id).await?;
     db::update_user(&mut tx, id, role, active, &at, actor).await?;
     let mut detail = format!(
@@ -107,10 +110,11 @@ pub async fn set_password(
     actor: Actor<'_>,
     account: Account<'_>,
     password: &str,
+    now: OffsetDateTime,
 ) -> AppResult<String> {
     let hash = hashed(password).await?;
     let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
+    let at = db::timestamp(now);
     let name = match account {
         Account::Id(UserId(id)) => db::get_user(&mut tx, id).await?.name,
         Account::Name(name) => name.to_string(),
@@ -132,7 +136,7 @@ pub async fn issue_token(
     user_name: &str,
     label: &str,
     days: u32,
-    now: time::OffsetDateTime,
+    now: OffsetDateTime,
 ) -> AppResult<(i64, String)> {
     let mut e = FieldErrors::default();
     let label = e.take("label", crate::domain::CaseHeader::parse_label(label));
@@ -167,9 +171,9 @@ pub async fn issue_token(
 }
 
 /// Revoke a token.
-pub async fn withdraw_token(pool: &SqlitePool, actor: Actor<'_>, id: i64) -> AppResult<()> {
+pub async fn withdraw_token(pool: &SqlitePool, actor: Actor<'_>, id: i64, now: OffsetDateTime) -> AppResult<()> {
     let mut tx = db::begin_write(pool).await?;
-    let at = db::now();
+    let at = db::timestamp(now);
     db::revoke_token(&mut tx, id, &at, actor).await?;
     db::audit::record(&mut tx, &at, actor, "token.revoke", &format!("token {id}"), "").await?;
     tx.commit().await?;

@@ -1,4 +1,6 @@
-//! An injectable clock, so that tests can move time for session expiry and throttling.
+//! An injectable clock: every "now" of a request (write stamps, the month that can be booked,
+//! a new draft's start, session and token expiry, throttling) comes from `AppState.clock`, so
+//! that tests run on a fixed, movable time. The command line uses [`SystemClock`].
 
 use std::sync::Mutex;
 use time::OffsetDateTime;

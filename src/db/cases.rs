@@ -1,6 +1,6 @@
 //! Business-case versions with their cost items and benefit drivers.
 
-use super::{DbError, DbResult, count, decimal, now, parsed};
+use super::{DbError, DbResult, count, decimal, parsed};
 use crate::domain::{
     ApprovalKind, ApprovalSettings, BaselineHistory, BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState,
     CostCategory, CostItem, CostKind, DriverKind, InForce, Month, NewBenefitDriver, NewCostItem, Review, SiteSettings,
@@ -278,8 +278,14 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
 }
 
 /// Store a whole case as the zone's next version; returns its id.
-pub async fn insert_case(conn: &mut SqliteConnection, zone_id: i64, spec: &CaseSpec, actor: &str) -> DbResult<i64> {
-    insert_version(conn, zone_id, spec, (&[], &[]), actor).await
+pub async fn insert_case(
+    conn: &mut SqliteConnection,
+    zone_id: i64,
+    spec: &CaseSpec,
+    actor: &str,
+    at: &str,
+) -> DbResult<i64> {
+    insert_version(conn, zone_id, spec, (&[], &[]), actor, at).await
 }
 
 /// [`insert_case`] with the identities of the first cost items and drivers given.
@@ -289,13 +295,13 @@ async fn insert_version(
     spec: &CaseSpec,
     (cost_uids, driver_uids): (&[i64], &[i64]),
     actor: &str,
+    ts: &str,
 ) -> DbResult<i64> {
     let exists: Option<i64> =
         sqlx::query_scalar("SELECT id FROM zones WHERE id = ?").bind(zone_id).fetch_optional(&mut *conn).await?;
     if exists.is_none() {
         return Err(DbError::NotFound("zone"));
     }
-    let ts = now();
     let h = &spec.header;
     let id: i64 = sqlx::query_scalar(
         "INSERT INTO case_versions (zone_id, version, label, horizon_months, start_month, go_live_offset, ramp_up_months,
@@ -314,36 +320,43 @@ async fn insert_version(
     .bind(i64::from(h.ramp_up_months))
     .bind(h.success_probability.to_string())
     .bind(CaseState::Draft.as_str())
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
     .bind(actor)
     .fetch_one(&mut *conn)
     .await?;
-    insert_items(conn, id, spec, cost_uids, driver_uids, actor).await?;
+    insert_items(conn, id, spec, cost_uids, driver_uids, actor, ts).await?;
     // Items go in while the row is a draft: the database freezes approved versions. A
     // scenario file's approved version is recorded as loaded, not as a four-eyes approval.
     match spec.state {
         CaseState::Draft => {}
-        CaseState::Submitted => mark_submitted(conn, id, actor, "").await?,
+        CaseState::Submitted => mark_submitted(conn, id, actor, ts, "").await?,
         state @ (CaseState::Approved | CaseState::Superseded) => {
-            mark_approved(conn, id, state, actor, ApprovalKind::Scenario, "loaded from a scenario file").await?;
+            let how = (ApprovalKind::Scenario, "loaded from a scenario file");
+            mark_approved(conn, id, state, (actor, ts), how).await?;
         }
     }
     Ok(id)
 }
 
-async fn mark_submitted(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+async fn mark_submitted(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    actor: &str,
+    at: &str,
+    comment: &str,
+) -> DbResult<()> {
     stamp(
         conn,
         "UPDATE case_versions SET state = 'submitted', updated_at = ?, updated_by = ?,
                 submitted_at = ?, submitted_by = ?, submit_comment = ?
          WHERE id = ?",
         case_id,
-        actor,
+        (actor, at),
         comment,
     )
     .await
@@ -355,11 +368,10 @@ async fn stamp(
     conn: &mut SqliteConnection,
     sql: &'static str,
     case_id: i64,
-    actor: &str,
+    (actor, ts): (&str, &str),
     comment: &str,
 ) -> DbResult<()> {
-    let ts = now();
-    sqlx::query(sql).bind(&ts).bind(actor).bind(&ts).bind(actor).bind(comment).bind(case_id).execute(conn).await?;
+    sqlx::query(sql).bind(ts).bind(actor).bind(ts).bind(actor).bind(comment).bind(case_id).execute(conn).await?;
     Ok(())
 }
 
@@ -369,12 +381,10 @@ async fn mark_approved(
     conn: &mut SqliteConnection,
     case_id: i64,
     state: CaseState,
-    actor: &str,
-    kind: ApprovalKind,
-    comment: &str,
+    (actor, ts): (&str, &str),
+    (kind, comment): (ApprovalKind, &str),
 ) -> DbResult<()> {
-    let ts = now();
-    let from = in_force_from(conn, case_id, kind, &ts).await?;
+    let from = in_force_from(conn, case_id, kind, ts).await?;
     sqlx::query(
         "UPDATE case_versions SET state = ?, updated_at = ?, updated_by = ?,
                 approved_at = ?, approved_by = ?, approval_kind = ?, approve_comment = ?, in_force_from = ?,
@@ -385,9 +395,9 @@ async fn mark_approved(
          WHERE id = ?",
     )
     .bind(state.as_str())
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
     .bind(kind.as_str())
     .bind(comment)
@@ -472,9 +482,15 @@ async fn version_in(conn: &mut SqliteConnection, case_id: i64) -> DbResult<CaseV
 }
 
 /// Submit a draft for approval, with an optional comment.
-pub async fn submit_case(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+pub async fn submit_case(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    actor: &str,
+    at: &str,
+    comment: &str,
+) -> DbResult<()> {
     ensure_editable(conn, case_id).await?;
-    mark_submitted(conn, case_id, actor, comment).await
+    mark_submitted(conn, case_id, actor, at, comment).await
 }
 
 /// A submitted version, or the conflict naming what to do first.
@@ -497,21 +513,22 @@ pub async fn approve_case(
     conn: &mut SqliteConnection,
     case_id: i64,
     actor: &str,
+    at: &str,
     comment: &str,
 ) -> DbResult<ApprovalKind> {
     let case = submitted(conn, case_id, "approved").await?;
     let site = super::site::get_site_in(conn).await?;
     let kind = case.review.approval_by(actor, site.one_person_approval).map_err(DbError::Conflict)?;
     sqlx::query("UPDATE case_versions SET state = 'superseded', updated_at = ?, updated_by = ? WHERE zone_id = ? AND state = 'approved'")
-        .bind(now())
+        .bind(at)
         .bind(actor)
         .bind(case.zone_id)
         .execute(&mut *conn)
         .await?;
-    mark_approved(conn, case_id, CaseState::Approved, actor, kind, comment).await?;
+    mark_approved(conn, case_id, CaseState::Approved, (actor, at), (kind, comment)).await?;
     sqlx::query("UPDATE zones SET status = ?, updated_at = ?, updated_by = ? WHERE id = ? AND status = ?")
         .bind(ZoneStatus::Approved.as_str())
-        .bind(now())
+        .bind(at)
         .bind(actor)
         .bind(case.zone_id)
         .bind(ZoneStatus::Candidate.as_str())
@@ -522,7 +539,13 @@ pub async fn approve_case(
 
 /// Return a submitted version to its author as an editable draft, with the reason. Anyone
 /// who may approve may return (the submitter too: withdrawing is a return).
-pub async fn reject_case(conn: &mut SqliteConnection, case_id: i64, actor: &str, comment: &str) -> DbResult<()> {
+pub async fn reject_case(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    actor: &str,
+    at: &str,
+    comment: &str,
+) -> DbResult<()> {
     submitted(conn, case_id, "returned").await?;
     stamp(
         conn,
@@ -530,7 +553,7 @@ pub async fn reject_case(conn: &mut SqliteConnection, case_id: i64, actor: &str,
                 returned_at = ?, returned_by = ?, return_comment = ?
          WHERE id = ?",
         case_id,
-        actor,
+        (actor, at),
         comment,
     )
     .await
@@ -554,6 +577,7 @@ pub async fn update_header(
     case_id: i64,
     header: &CaseHeader,
     actor: &str,
+    at: &str,
 ) -> DbResult<()> {
     ensure_editable(conn, case_id).await?;
     let beyond: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM cost_items WHERE case_id = ? AND month_offset >= ?")
@@ -578,9 +602,9 @@ pub async fn update_header(
     .bind(i64::from(header.go_live_offset))
     .bind(i64::from(header.ramp_up_months))
     .bind(header.success_probability.to_string())
-    .bind(now())
+    .bind(at)
     .bind(actor)
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .bind(case_id)
     .execute(&mut *conn)
@@ -604,13 +628,12 @@ async fn add_editor(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> D
 }
 
 /// Stamp a content change (an item added or removed) as the version's latest edit.
-async fn touch(conn: &mut SqliteConnection, case_id: i64, actor: &str) -> DbResult<()> {
+async fn touch(conn: &mut SqliteConnection, case_id: i64, actor: &str, ts: &str) -> DbResult<()> {
     add_editor(conn, case_id, actor).await?;
-    let ts = now();
     sqlx::query("UPDATE case_versions SET updated_at = ?, updated_by = ?, edited_at = ?, edited_by = ? WHERE id = ?")
-        .bind(&ts)
+        .bind(ts)
         .bind(actor)
-        .bind(&ts)
+        .bind(ts)
         .bind(actor)
         .bind(case_id)
         .execute(conn)
@@ -627,12 +650,13 @@ async fn insert_items(
     cost_uids: &[i64],
     driver_uids: &[i64],
     actor: &str,
+    at: &str,
 ) -> DbResult<()> {
     for (i, c) in spec.costs.iter().enumerate() {
-        insert_cost_row(conn, case_id, c, cost_uids.get(i).copied(), actor).await?;
+        insert_cost_row(conn, case_id, c, cost_uids.get(i).copied(), (actor, at)).await?;
     }
     for (i, d) in spec.drivers.iter().enumerate() {
-        insert_driver_row(conn, case_id, d, driver_uids.get(i).copied(), actor).await?;
+        insert_driver_row(conn, case_id, d, driver_uids.get(i).copied(), (actor, at)).await?;
     }
     Ok(())
 }
@@ -645,7 +669,7 @@ async fn insert_cost_row(
     case_id: i64,
     c: &NewCostItem,
     uid: Option<i64>,
-    actor: &str,
+    (actor, at): (&str, &str),
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO cost_items (case_id, label, category, kind, amount, month_offset, escalation, capex, created_at,
@@ -665,7 +689,7 @@ async fn insert_cost_row(
     .bind(i64::from(c.month_offset))
     .bind(c.escalation.to_string())
     .bind(i64::from(c.capex))
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .bind(uid)
     .fetch_one(conn)
@@ -678,7 +702,7 @@ async fn insert_driver_row(
     case_id: i64,
     d: &NewBenefitDriver,
     uid: Option<i64>,
-    actor: &str,
+    (actor, at): (&str, &str),
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO benefit_drivers (case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation,
@@ -699,7 +723,7 @@ async fn insert_driver_row(
     .bind(d.qty_high.to_string())
     .bind(d.unit_value.to_string())
     .bind(d.escalation.to_string())
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .bind(uid)
     .fetch_one(conn)
@@ -707,37 +731,55 @@ async fn insert_driver_row(
 }
 
 /// Add a cost item to a draft; the caller validated it against the draft's horizon.
-pub async fn add_cost(conn: &mut SqliteConnection, case_id: i64, c: &NewCostItem, actor: &str) -> DbResult<i64> {
+pub async fn add_cost(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    c: &NewCostItem,
+    actor: &str,
+    at: &str,
+) -> DbResult<i64> {
     ensure_editable(conn, case_id).await?;
-    let id = insert_cost_row(conn, case_id, c, None, actor).await?;
-    touch(conn, case_id, actor).await?;
+    let id = insert_cost_row(conn, case_id, c, None, (actor, at)).await?;
+    touch(conn, case_id, actor, at).await?;
     Ok(id)
 }
 
 /// Add a benefit driver to a draft.
-pub async fn add_driver(conn: &mut SqliteConnection, case_id: i64, d: &NewBenefitDriver, actor: &str) -> DbResult<i64> {
+pub async fn add_driver(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    d: &NewBenefitDriver,
+    actor: &str,
+    at: &str,
+) -> DbResult<i64> {
     ensure_editable(conn, case_id).await?;
-    let id = insert_driver_row(conn, case_id, d, None, actor).await?;
-    touch(conn, case_id, actor).await?;
+    let id = insert_driver_row(conn, case_id, d, None, (actor, at)).await?;
+    touch(conn, case_id, actor, at).await?;
     Ok(id)
 }
 
 /// Remove a cost item from a draft.
-pub async fn delete_cost(conn: &mut SqliteConnection, case_id: i64, cost_id: i64, actor: &str) -> DbResult<()> {
-    delete_item(conn, "DELETE FROM cost_items WHERE id = ? AND case_id = ?", "cost item", case_id, cost_id, actor).await
+pub async fn delete_cost(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    cost_id: i64,
+    actor: &str,
+    at: &str,
+) -> DbResult<()> {
+    let sql = "DELETE FROM cost_items WHERE id = ? AND case_id = ?";
+    delete_item(conn, sql, "cost item", (case_id, cost_id), (actor, at)).await
 }
 
 /// Remove a benefit driver from a draft.
-pub async fn delete_driver(conn: &mut SqliteConnection, case_id: i64, driver_id: i64, actor: &str) -> DbResult<()> {
-    delete_item(
-        conn,
-        "DELETE FROM benefit_drivers WHERE id = ? AND case_id = ?",
-        "benefit driver",
-        case_id,
-        driver_id,
-        actor,
-    )
-    .await
+pub async fn delete_driver(
+    conn: &mut SqliteConnection,
+    case_id: i64,
+    driver_id: i64,
+    actor: &str,
+    at: &str,
+) -> DbResult<()> {
+    let sql = "DELETE FROM benefit_drivers WHERE id = ? AND case_id = ?";
+    delete_item(conn, sql, "benefit driver", (case_id, driver_id), (actor, at)).await
 }
 
 /// Delete one item of a draft with `sql` (`id`, `case_id` binds); `what` names it when missing.
@@ -745,20 +787,19 @@ async fn delete_item(
     conn: &mut SqliteConnection,
     sql: &'static str,
     what: &'static str,
-    case_id: i64,
-    item_id: i64,
-    actor: &str,
+    (case_id, item_id): (i64, i64),
+    (actor, at): (&str, &str),
 ) -> DbResult<()> {
     ensure_editable(conn, case_id).await?;
     let done = sqlx::query(sql).bind(item_id).bind(case_id).execute(&mut *conn).await?;
     if done.rows_affected() == 0 {
         return Err(DbError::NotFound(what));
     }
-    touch(conn, case_id, actor).await
+    touch(conn, case_id, actor, at).await
 }
 
 /// Save a copy of any version as the zone's next draft version, named `label`.
-pub async fn copy_case(conn: &mut SqliteConnection, case_id: i64, label: &str, actor: &str) -> DbResult<i64> {
+pub async fn copy_case(conn: &mut SqliteConnection, case_id: i64, label: &str, actor: &str, at: &str) -> DbResult<i64> {
     let full = case_full_in(conn, case_id).await?;
     // The copy's items are the same items: they keep their identities.
     let cost_uids: Vec<i64> = full.costs.iter().map(|c| c.item_uid).collect();
@@ -769,5 +810,5 @@ pub async fn copy_case(conn: &mut SqliteConnection, case_id: i64, label: &str, a
         costs: full.costs.into_iter().map(|c| c.item).collect(),
         drivers: full.drivers.into_iter().map(|d| d.driver).collect(),
     };
-    insert_version(conn, full.case.zone_id, &spec, (&cost_uids, &driver_uids), actor).await
+    insert_version(conn, full.case.zone_id, &spec, (&cost_uids, &driver_uids), actor, at).await
 }

@@ -128,7 +128,9 @@ pub(super) async fn seal(pool: &SqlitePool) -> DbResult<()> {
     if !sealed.is_empty() {
         let detail = format!("sealed {} written before hash chains", sealed.join(" and "));
         tracing::info!("{detail}");
-        audit::record(&mut tx, &super::now(), "migration", "chain.seal", "hash chains", &detail).await?;
+        // At start-up, not on a request: the system clock.
+        let at = super::timestamp(crate::auth::Clock::now(&crate::auth::SystemClock));
+        audit::record(&mut tx, &at, "migration", "chain.seal", "hash chains", &detail).await?;
     }
     tx.commit().await
 }

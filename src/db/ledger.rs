@@ -1,7 +1,7 @@
 //! The ledger: append-only bookings against a zone's approved baseline.
 
 use super::chain::{self, Problem, insert_chained};
-use super::{DbError, DbResult, count, decimal, now, parsed};
+use super::{DbError, DbResult, count, decimal, parsed};
 use crate::domain::chain::{EntryStamp, LEDGER_ENTRIES, Tip, ledger_entry_row};
 use crate::domain::{
     BaselineCost, BaselineDriver, Booking, BookingBaseline, EntryId, EntryKind, LedgerEntry, LedgerItem, Method, Month,
@@ -138,6 +138,8 @@ pub enum Booked {
 pub struct Tag<'a> {
     /// The user booking.
     pub actor: &'a str,
+    /// When (`booked_at`: RFC 3339 UTC, [`super::timestamp`]).
+    pub at: &'a str,
     /// Who made the token the user books with, when someone else did (`on_behalf_by`).
     pub on_behalf: Option<&'a str>,
     /// The CSV import the entries came from.
@@ -159,8 +161,8 @@ pub struct Idempotency<'a> {
 /// Book one entry in the caller's transaction. Checks against the baseline are reported as
 /// field errors: unknown driver or cost item, a month outside the horizon or in the future, an
 /// implausible figure not confirmed. `key` makes a retried request book once; the same key with
-/// another request (body or URL) is a conflict and books nothing. `(actor, on_behalf)`: who
-/// books, and who made their token when someone else did (`on_behalf_by`).
+/// another request (body or URL) is a conflict and books nothing. `(actor, on_behalf, at)`: who
+/// books, who made their token when someone else did (`on_behalf_by`), and when.
 ///
 /// The hot path of the API: one query reads the key's earlier use, the baseline, the item,
 /// its running totals and the ledger chain's tip; then the insert, the totals, the key and
@@ -170,7 +172,7 @@ pub async fn book(
     zone_id: i64,
     b: &Booking,
     today: time::Date,
-    (actor, on_behalf): (&str, Option<&str>),
+    (actor, on_behalf, at): (&str, Option<&str>, &str),
     key: Option<&Idempotency<'_>>,
 ) -> DbResult<Booked> {
     let saving = b.item.kind() == EntryKind::Saving;
@@ -236,10 +238,9 @@ pub async fn book(
         });
     }
     let e = baseline.check(b, today).map_err(DbError::Invalid)?;
-    let tag = Tag { actor, on_behalf, import_id: None, reverses_id: None };
-    let at = now();
+    let tag = Tag { actor, at, on_behalf, import_id: None, reverses_id: None };
     let mut tip = Tip { id: row.try_get::<Option<i64>, _>("tip_id")?.unwrap_or(0), hash: row.try_get("tip_hash")? };
-    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &at, &mut tip).await?;
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), &tag, &mut tip).await?;
     write_totals(conn, zone_id, &item, Totals::from_row(&row)?, &Totals::of(&e)).await?;
     if let Some(k) = key {
         sqlx::query(
@@ -249,11 +250,11 @@ pub async fn book(
         .bind(k.key)
         .bind(k.fingerprint)
         .bind(id)
-        .bind(&at)
+        .bind(at)
         .execute(&mut *conn)
         .await?;
     }
-    Ok(Booked::New(stored(id, zone_id, e, &tag, at)))
+    Ok(Booked::New(stored(id, zone_id, e, &tag)))
 }
 
 /// What a one-time form token already did (`entry 12`, `import 3`), if it was used by this
@@ -289,13 +290,14 @@ pub async fn use_form_token(
     user_id: i64,
     zone_id: i64,
     outcome: &str,
+    at: &str,
 ) -> DbResult<()> {
     sqlx::query("INSERT INTO form_submissions (token, user_id, zone_id, outcome, used_at) VALUES (?, ?, ?, ?, ?)")
         .bind(token)
         .bind(user_id)
         .bind(zone_id)
         .bind(outcome)
-        .bind(now())
+        .bind(at)
         .execute(conn)
         .await
         .map_err(|e| super::unique_as(e, "this form was already submitted"))?;
@@ -339,15 +341,14 @@ fn no_baseline() -> DbError {
 
 /// Insert one checked entry with its totals; the stored entry is built from what was written.
 async fn insert_one(conn: &mut SqliteConnection, zone_id: i64, e: NewEntry, tag: &Tag<'_>) -> DbResult<LedgerEntry> {
-    let at = now();
     let mut tip = chain::tip(conn, LEDGER_ENTRIES).await?;
-    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &at, &mut tip).await?;
+    let id = insert_rows(conn, zone_id, std::slice::from_ref(&e), tag, &mut tip).await?;
     add_to_totals(conn, zone_id, std::slice::from_ref(&e)).await?;
-    Ok(stored(id, zone_id, e, tag, at))
+    Ok(stored(id, zone_id, e, tag))
 }
 
 /// The entry as stored: what was written, normalized as it reads back.
-fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> LedgerEntry {
+fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>) -> LedgerEntry {
     let [baseline_intensity, reporting_volume, measured_consumption] = e.inputs.map(|d| d.map(|d| d.normalize()));
     LedgerEntry {
         id: EntryId(id),
@@ -365,7 +366,7 @@ fn stored(id: i64, zone_id: i64, e: NewEntry, tag: &Tag<'_>, at: String) -> Ledg
         evidence: e.evidence,
         reverses_id: tag.reverses_id.map(EntryId),
         reversed_by: None,
-        booked_at: at,
+        booked_at: tag.at.to_string(),
         booked_by: tag.actor.to_string(),
         paid_on: e.paid_on,
         implausible_confirmed: e.implausible_confirmed,
@@ -381,11 +382,10 @@ pub async fn insert_checked(
     entries: &[NewEntry],
     tag: &Tag<'_>,
 ) -> DbResult<()> {
-    let at = now();
     let mut tip = chain::tip(conn, LEDGER_ENTRIES).await?;
     // About 22 values per row: 500 rows stay far below SQLite's limit of 32,766 bound values.
     for chunk in entries.chunks(500) {
-        insert_rows(conn, zone_id, chunk, tag, &at, &mut tip).await?;
+        insert_rows(conn, zone_id, chunk, tag, &mut tip).await?;
     }
     add_to_totals(conn, zone_id, entries).await
 }
@@ -649,7 +649,6 @@ async fn insert_rows(
     zone_id: i64,
     rows: &[NewEntry],
     tag: &Tag<'_>,
-    at: &str,
     tip: &mut Tip,
 ) -> DbResult<i64> {
     let stamp = |id| EntryStamp {
@@ -659,7 +658,7 @@ async fn insert_rows(
         // Keys live in idempotency_keys since migration 0009.
         idempotency_key: None,
         import_id: tag.import_id,
-        booked_at: at,
+        booked_at: tag.at,
         booked_by: tag.actor,
         on_behalf_by: tag.on_behalf,
     };
@@ -682,13 +681,13 @@ async fn insert_rows(
 
 /// Book the reversal of entry `id` (negated quantity and amount, same month and item), with
 /// its own evidence note. An entry can be reversed once; a reversal cannot be reversed.
-/// `(actor, on_behalf)` as for [`book`].
+/// `(actor, on_behalf, at)` as for [`book`].
 pub async fn reverse(
     conn: &mut SqliteConnection,
     zone_id: i64,
     id: i64,
     evidence: &str,
-    (actor, on_behalf): (&str, Option<&str>),
+    (actor, on_behalf, at): (&str, Option<&str>, &str),
 ) -> DbResult<LedgerEntry> {
     let original =
         entry_in(conn, id).await?.filter(|e| e.zone_id == zone_id).ok_or(DbError::NotFound("ledger entry"))?;
@@ -712,7 +711,7 @@ pub async fn reverse(
         paid_on: original.paid_on,
         implausible_confirmed: false,
     };
-    insert_one(conn, zone_id, entry, &Tag { actor, on_behalf, import_id: None, reverses_id: Some(id) }).await
+    insert_one(conn, zone_id, entry, &Tag { actor, at, on_behalf, import_id: None, reverses_id: Some(id) }).await
 }
 
 /// A CSV file to record as an import.
@@ -739,7 +738,7 @@ pub async fn insert_import(
     conn: &mut SqliteConnection,
     zone_id: i64,
     file: &ImportFile<'_>,
-    actor: &str,
+    (actor, at): (&str, &str),
 ) -> DbResult<(i64, Option<EarlierImport>)> {
     let earlier: Option<EarlierImport> = sqlx::query_as(
         "SELECT id, imported_at, imported_by FROM ledger_imports
@@ -784,7 +783,7 @@ pub async fn insert_import(
     .bind(content_hash)
     .bind(file.file_name)
     .bind(file.rows as i64)
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .bind(file.rows_hash)
     .bind(earlier.as_ref().map(|e| e.0))

@@ -254,9 +254,11 @@ pub async fn close(pool: &SqlitePool) -> DbResult<()> {
     Ok(())
 }
 
-/// The current time as RFC 3339 UTC text, the one timestamp format of the database.
-pub fn now() -> String {
-    time::OffsetDateTime::now_utc().format(&time::format_description::well_known::Rfc3339).unwrap_or_default()
+/// `at` as RFC 3339 UTC text, the one timestamp format of the database. Writes take "now" from
+/// their caller: the app's clock (`AppState.clock`) on requests, the system clock on the
+/// command line.
+pub fn timestamp(at: time::OffsetDateTime) -> String {
+    at.to_offset(time::UtcOffset::UTC).format(&time::format_description::well_known::Rfc3339).unwrap_or_default()
 }
 
 /// Parse a stored decimal column.

@@ -1,6 +1,6 @@
 //! Readiness criteria (weights) and zone scores.
 
-use super::{DbResult, now};
+use super::DbResult;
 use crate::domain::Criterion;
 use sqlx::{Row, SqliteConnection, SqlitePool};
 use std::collections::HashMap;
@@ -25,12 +25,11 @@ pub async fn criteria(pool: &SqlitePool) -> DbResult<Vec<Criterion>> {
 }
 
 /// Set the criteria's weights.
-pub async fn set_weights(conn: &mut SqliteConnection, weights: &[(i64, u8)], actor: &str) -> DbResult<()> {
-    let at = now();
+pub async fn set_weights(conn: &mut SqliteConnection, weights: &[(i64, u8)], actor: &str, at: &str) -> DbResult<()> {
     for (id, w) in weights {
         sqlx::query("UPDATE readiness_criteria SET weight = ?, updated_at = ?, updated_by = ? WHERE id = ?")
             .bind(i64::from(*w))
-            .bind(&at)
+            .bind(at)
             .bind(actor)
             .bind(id)
             .execute(&mut *conn)
@@ -81,8 +80,8 @@ pub async fn set_scores(
     zone_id: i64,
     scores: &[(i64, Option<u8>)],
     actor: &str,
+    at: &str,
 ) -> DbResult<()> {
-    let at = now();
     for (criterion, score) in scores {
         match score {
             Some(s) => {
@@ -95,7 +94,7 @@ pub async fn set_scores(
                 .bind(zone_id)
                 .bind(criterion)
                 .bind(i64::from(*s))
-                .bind(&at)
+                .bind(at)
                 .bind(actor)
                 .execute(&mut *conn)
                 .await?;

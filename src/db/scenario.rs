@@ -15,19 +15,15 @@ pub struct LoadSummary {
     pub entries: usize,
 }
 
-/// The date now: a scenario may not book later months (or payment dates) either.
-fn today() -> time::Date {
-    time::OffsetDateTime::now_utc().date()
-}
-
 /// Store one zone's readiness scores and ledger; errors name the scenario's JSON path.
 async fn load_zone_extras(
     conn: &mut SqliteConnection,
     i: usize,
     zone_id: i64,
     z: &crate::domain::ZoneScenario,
-    actor: &str,
+    (actor, now): (&str, time::OffsetDateTime),
 ) -> DbResult<usize> {
+    let at = super::timestamp(now);
     let mut scores = Vec::with_capacity(z.readiness.len());
     for (key, score) in &z.readiness {
         let id: Option<i64> = sqlx::query_scalar("SELECT id FROM readiness_criteria WHERE key = ?")
@@ -42,7 +38,7 @@ async fn load_zone_extras(
         })?;
         scores.push((id, Some(*score)));
     }
-    super::readiness::set_scores(conn, zone_id, &scores, actor).await?;
+    super::readiness::set_scores(conn, zone_id, &scores, actor, &at).await?;
     if z.ledger.is_empty() {
         return Ok(0);
     }
@@ -50,7 +46,8 @@ async fn load_zone_extras(
         DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one(format!("zones[{i}].ledger"), msg)),
         other => other,
     })?;
-    let now = today();
+    // A scenario may not book later months (or payment dates) either.
+    let today = now.date();
     let mut errors = FieldErrors::default();
     let mut entries = Vec::with_capacity(z.ledger.len());
     for (j, entry) in z.ledger.iter().enumerate() {
@@ -63,7 +60,7 @@ async fn load_zone_extras(
         };
         let mut booking = entry.booking.clone();
         booking.item = crate::domain::LedgerItem::new(booking.item.kind(), id);
-        match baseline.check(&booking, now) {
+        match baseline.check(&booking, today) {
             Ok(e) => entries.push(e),
             Err(fe) => errors.extend_prefixed(&prefix, fe),
         }
@@ -71,7 +68,7 @@ async fn load_zone_extras(
     if !errors.is_empty() {
         return Err(DbError::Invalid(errors));
     }
-    let tag = ledger::Tag { actor, on_behalf: None, import_id: None, reverses_id: None };
+    let tag = ledger::Tag { actor, at: &at, on_behalf: None, import_id: None, reverses_id: None };
     ledger::insert_checked(conn, zone_id, &entries, &tag).await?;
     Ok(z.ledger.len())
 }
@@ -83,16 +80,18 @@ pub async fn database_is_empty(pool: &SqlitePool) -> DbResult<bool> {
 }
 
 /// Store a validated scenario all-or-nothing. Zones whose code already exists are refused.
-/// `progress` is called after each zone (the CLI draws a bar with it).
+/// `progress` is called after each zone (the CLI draws a bar with it). `now` stamps the rows
+/// and is the date no booking may be later than.
 pub async fn load_scenario(
     pool: &SqlitePool,
     scenario: &Scenario,
-    actor: &str,
+    (actor, now): (&str, time::OffsetDateTime),
     mut progress: impl FnMut(usize),
 ) -> DbResult<LoadSummary> {
+    let at = super::timestamp(now);
     let mut tx = begin_write(pool).await?;
     if let Some(site) = &scenario.site {
-        put_site(&mut tx, site, actor).await.map_err(|e| match e {
+        put_site(&mut tx, site, actor, &at).await.map_err(|e| match e {
             DbError::Invalid(fields) => {
                 let mut named = FieldErrors::default();
                 named.extend_prefixed("site.", fields);
@@ -107,12 +106,12 @@ pub async fn load_scenario(
     }
     let (mut cases, mut entries) = (0, 0);
     for (i, z) in scenario.zones.iter().enumerate() {
-        let zone_id = insert_zone(&mut tx, &z.zone, actor).await?;
+        let zone_id = insert_zone(&mut tx, &z.zone, actor, &at).await?;
         for c in &z.cases {
-            insert_case(&mut tx, zone_id, c, actor).await?;
+            insert_case(&mut tx, zone_id, c, actor, &at).await?;
             cases += 1;
         }
-        entries += load_zone_extras(&mut tx, i, zone_id, z, actor).await?;
+        entries += load_zone_extras(&mut tx, i, zone_id, z, (actor, now)).await?;
         progress(i + 1);
     }
     tx.commit().await?;

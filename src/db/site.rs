@@ -1,6 +1,6 @@
 //! Site settings (one row).
 
-use super::{DbError, DbResult, count, decimal, now, parsed};
+use super::{DbError, DbResult, count, decimal, parsed};
 use crate::domain::{FieldErrors, NumberFormat, SiteSettings};
 use sqlx::{Row, SqliteConnection, SqlitePool};
 
@@ -44,7 +44,7 @@ pub async fn number_format(pool: &SqlitePool) -> DbResult<NumberFormat> {
 
 /// Insert or replace the site settings. The currency is refused (a field error) once any case
 /// holds money or anything is booked: stored amounts would be relabelled, not converted.
-pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &str) -> DbResult<()> {
+pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &str, at: &str) -> DbResult<()> {
     let current: Option<String> =
         sqlx::query_scalar("SELECT currency FROM site_settings WHERE id = 1").fetch_optional(&mut *conn).await?;
     if let Some(current) = current.filter(|c| *c != site.currency) {
@@ -86,7 +86,7 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     .bind(site.expert_multiplier.to_string())
     .bind(site.number_format.as_str())
     .bind(i64::from(site.one_person_approval))
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .execute(conn)
     .await?;

@@ -1,6 +1,6 @@
 //! Zones.
 
-use super::{DbError, DbResult, now, parsed, unique_as};
+use super::{DbError, DbResult, parsed, unique_as};
 use crate::domain::{FieldErrors, NewZone, Zone, ZoneStatus};
 use sqlx::sqlite::SqliteRow;
 use sqlx::{Row, SqliteConnection, SqlitePool};
@@ -53,8 +53,7 @@ pub(super) async fn get_zone_in(conn: &mut SqliteConnection, id: i64) -> DbResul
 }
 
 /// Insert a zone; a taken code is a conflict the user can fix.
-pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &str) -> DbResult<i64> {
-    let ts = now();
+pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &str, ts: &str) -> DbResult<i64> {
     let id = sqlx::query_scalar(
         "INSERT INTO zones (code, name, description, owner, status, created_at, created_by, updated_at, updated_by)
          VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
@@ -64,9 +63,9 @@ pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &st
     .bind(&zone.description)
     .bind(&zone.owner)
     .bind(zone.status.as_str())
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
-    .bind(&ts)
+    .bind(ts)
     .bind(actor)
     .fetch_one(conn)
     .await
@@ -99,11 +98,12 @@ pub async fn set_zone_status(
     id: i64,
     to: ZoneStatus,
     actor: &str,
+    at: &str,
 ) -> DbResult<ZoneStatus> {
     let from = check_status_move(conn, id, to).await?;
     sqlx::query("UPDATE zones SET status = ?, updated_at = ?, updated_by = ? WHERE id = ?")
         .bind(to.as_str())
-        .bind(now())
+        .bind(at)
         .bind(actor)
         .bind(id)
         .execute(conn)
@@ -112,7 +112,7 @@ pub async fn set_zone_status(
 }
 
 /// Replace a zone's fields; a status change follows the lifecycle ([`set_zone_status`]'s rule).
-pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, actor: &str) -> DbResult<()> {
+pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, actor: &str, at: &str) -> DbResult<()> {
     // On the zone form the refusal belongs beside the status field.
     check_status_move(conn, id, zone.status).await.map_err(|e| match e {
         DbError::Conflict(msg) => DbError::Invalid(FieldErrors::one("status", msg)),
@@ -127,7 +127,7 @@ pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, a
     .bind(&zone.description)
     .bind(&zone.owner)
     .bind(zone.status.as_str())
-    .bind(now())
+    .bind(at)
     .bind(actor)
     .bind(id)
     .execute(conn)

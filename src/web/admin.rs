@@ -124,7 +124,7 @@ pub async fn add_user(
         Ok(role) => role,
         Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
     };
-    match app::users::add_user(&state.pool, me.name(), &form.name, role, &form.password).await {
+    match app::users::add_user(&state.pool, me.name(), &form.name, role, &form.password, state.clock.now()).await {
         Ok(_) => Ok(Redirect::to("/admin").into_response()),
         Err(e) => refused(&state, &me, e).await,
     }
@@ -150,7 +150,17 @@ pub async fn update_user(
         Ok(role) => role,
         Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
     };
-    match app::users::update_user(&state.pool, me.name(), UserId(me.user.id), UserId(id), role, form.active).await {
+    match app::users::update_user(
+        &state.pool,
+        me.name(),
+        UserId(me.user.id),
+        UserId(id),
+        role,
+        form.active,
+        state.clock.now(),
+    )
+    .await
+    {
         Ok(()) => Ok(Redirect::to("/admin").into_response()),
         Err(app::Error::Conflict(msg)) => {
             admin_page(&state, Nav::from(&me), FieldErrors::default(), Some(msg), None).await
@@ -173,7 +183,9 @@ pub async fn reset_password(
     Path(id): Path<i64>,
     FormBody(form): FormBody<PasswordForm>,
 ) -> Result<Response, AppError> {
-    match app::users::set_password(&state.pool, me.name(), Account::Id(UserId(id)), &form.password).await {
+    match app::users::set_password(&state.pool, me.name(), Account::Id(UserId(id)), &form.password, state.clock.now())
+        .await
+    {
         Ok(_) => Ok(Redirect::to("/admin").into_response()),
         Err(e) => refused(&state, &me, e).await,
     }
@@ -212,7 +224,7 @@ pub async fn revoke_token(
     CurrentUser(me): CurrentUser,
     Path(id): Path<i64>,
 ) -> Result<Response, AppError> {
-    app::users::withdraw_token(&state.pool, me.name(), id).await?;
+    app::users::withdraw_token(&state.pool, me.name(), id, state.clock.now()).await?;
     Ok(Redirect::to("/admin").into_response())
 }
 
@@ -269,7 +281,7 @@ pub async fn update_settings(
             return admin_page(&state, Nav::from(&me), e, None, None).await;
         }
     };
-    match crate::app::site::change_settings(&state.pool, me.name(), &site).await {
+    match crate::app::site::change_settings(&state.pool, me.name(), &site, state.clock.now()).await {
         Ok(()) => Ok(Redirect::to("/admin").into_response()),
         Err(crate::app::Error::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
         Err(other) => Err(other.into()),
@@ -287,10 +299,11 @@ pub async fn update_weights(
         Ok(w) => w,
         Err(e) => return admin_page(&state, Nav::from(&me), e, None, None).await,
     };
+    let at = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
-    db::readiness::set_weights(&mut tx, &weights, me.name()).await?;
+    db::readiness::set_weights(&mut tx, &weights, me.name(), &at).await?;
     let detail: Vec<String> = criteria.iter().zip(&weights).map(|(c, (_, w))| format!("{}={w}", c.key)).collect();
-    db::audit::record(&mut tx, &db::now(), me.name(), "readiness.weights", "readiness", &detail.join(" ")).await?;
+    db::audit::record(&mut tx, &at, me.name(), "readiness.weights", "readiness", &detail.join(" ")).await?;
     tx.commit().await?;
     Ok(Redirect::to("/admin#readiness-weights").into_response())
 }

@@ -38,9 +38,10 @@ pub async fn create_zone(
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
     let zone = NewZone::parse_new(&input)?;
+    let at = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
-    let id = db::insert_zone(&mut tx, &zone, user.name()).await?;
-    db::audit::record(&mut tx, &db::now(), user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;
+    let id = db::insert_zone(&mut tx, &zone, user.name(), &at).await?;
+    db::audit::record(&mut tx, &at, user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;
     tx.commit().await?;
     let zone = db::get_zone(&state.pool, id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/zones/{id}"))], Json(json!({ "zone": zone }))))
@@ -68,17 +69,11 @@ pub async fn create_case(
 ) -> Result<impl IntoResponse, ApiError> {
     let mut spec = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain))?;
     spec.state = CaseState::Draft;
+    let at = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
-    let id = db::insert_case(&mut tx, zone_id, &spec, user.name()).await?;
-    db::audit::record(
-        &mut tx,
-        &db::now(),
-        user.name(),
-        "case.create",
-        &format!("case {id}"),
-        &format!("zone {zone_id}"),
-    )
-    .await?;
+    let id = db::insert_case(&mut tx, zone_id, &spec, user.name(), &at).await?;
+    db::audit::record(&mut tx, &at, user.name(), "case.create", &format!("case {id}"), &format!("zone {zone_id}"))
+        .await?;
     tx.commit().await?;
     let body = case_body(&state, id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{id}"))], Json(body)))
@@ -215,7 +210,7 @@ pub async fn copy_case(
     ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<CopyForm>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &body.label).await?.0;
+    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &body.label, state.clock.now()).await?.0;
     let body = case_body(&state, new_id).await?;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/cases/{new_id}"))], Json(body)))
 }
@@ -227,7 +222,7 @@ async fn review(
     step: ReviewStep,
     comment: &str,
 ) -> Result<Json<Value>, ApiError> {
-    app::cases::review(&state.pool, user.name(), CaseId(id), step, comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), step, comment, state.clock.now()).await?;
     Ok(Json(case_body(state, id).await?))
 }
 
@@ -281,7 +276,7 @@ pub async fn zone_status(
     ApiPath(id): ApiPath<i64>,
     JsonBody(body): JsonBody<StatusBody>,
 ) -> Result<Json<Value>, ApiError> {
-    let zone = app::zones::change_status(&state.pool, user.name(), ZoneId(id), &body.status).await?;
+    let zone = app::zones::change_status(&state.pool, user.name(), ZoneId(id), &body.status, state.clock.now()).await?;
     Ok(Json(json!({ "zone": zone })))
 }
 
@@ -363,6 +358,6 @@ pub async fn patch_site(
 ) -> Result<Json<Value>, ApiError> {
     let current = db::get_site(&state.pool).await?;
     let site = SiteSettings::parse(&patch.apply(current.input()), NumberFormat::Plain).map_err(AppError::Invalid)?;
-    app::site::change_settings(&state.pool, user.name(), &site).await?;
+    app::site::change_settings(&state.pool, user.name(), &site, state.clock.now()).await?;
     Ok(Json(site_json(&db::get_site(&state.pool).await?)))
 }

@@ -401,7 +401,7 @@ pub async fn edit(
 }
 
 /// Commit a write (with its audit row) and go back to the editor, or show the editor with
-/// the refusal.
+/// the refusal. The write gets the time to stamp (from the app's clock).
 async fn write_then_edit<F>(
     state: &AppState,
     user: &Principal,
@@ -410,12 +410,13 @@ async fn write_then_edit<F>(
     write: F,
 ) -> Result<Response, AppError>
 where
-    F: AsyncFnOnce(&mut sqlx::SqliteConnection) -> Result<String, db::DbError>,
+    F: AsyncFnOnce(&mut sqlx::SqliteConnection, &str) -> Result<String, db::DbError>,
 {
+    let at = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
-    match write(&mut tx).await {
+    match write(&mut tx, &at).await {
         Ok(detail) => {
-            db::audit::record(&mut tx, &db::now(), user.name(), action, &format!("case {id}"), &detail).await?;
+            db::audit::record(&mut tx, &at, user.name(), action, &format!("case {id}"), &detail).await?;
             tx.commit().await?;
             Ok(Redirect::to(&format!("/cases/{id}/edit")).into_response())
         }
@@ -434,8 +435,8 @@ pub async fn update_header(
     match CaseHeader::parse(&input, RateStyle::Percent(NumberFormat::current())) {
         Ok(header) => {
             let detail = format!("{} months from {}", header.horizon_months, header.start_month);
-            write_then_edit(&state, &user, id, "case.update", async |conn| {
-                db::update_header(conn, id, &header, user.name()).await.map(|()| detail)
+            write_then_edit(&state, &user, id, "case.update", async |conn, at| {
+                db::update_header(conn, id, &header, user.name(), at).await.map(|()| detail)
             })
             .await
         }
@@ -453,8 +454,8 @@ pub async fn add_cost(
     let full = db::case_full(&state.pool, id).await?;
     match NewCostItem::parse(&input, full.case.header.horizon_months, RateStyle::Percent(NumberFormat::current())) {
         Ok(item) => {
-            write_then_edit(&state, &user, id, "cost.add", async |conn| {
-                db::add_cost(conn, id, &item, user.name())
+            write_then_edit(&state, &user, id, "cost.add", async |conn, at| {
+                db::add_cost(conn, id, &item, user.name(), at)
                     .await
                     .map(|c| format!("cost {c}: {} {}", item.label, item.amount))
             })
@@ -473,8 +474,8 @@ pub async fn add_driver(
 ) -> Result<Response, AppError> {
     match NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::current())) {
         Ok(d) => {
-            write_then_edit(&state, &user, id, "driver.add", async |conn| {
-                db::add_driver(conn, id, &d, user.name()).await.map(|n| format!("driver {n}: {}", d.label))
+            write_then_edit(&state, &user, id, "driver.add", async |conn, at| {
+                db::add_driver(conn, id, &d, user.name(), at).await.map(|n| format!("driver {n}: {}", d.label))
             })
             .await
         }
@@ -488,8 +489,8 @@ pub async fn delete_cost(
     CurrentUser(user): CurrentUser,
     Path((id, item)): Path<(i64, i64)>,
 ) -> Result<Response, AppError> {
-    write_then_edit(&state, &user, id, "cost.remove", async |conn| {
-        db::delete_cost(conn, id, item, user.name()).await.map(|()| format!("cost {item}"))
+    write_then_edit(&state, &user, id, "cost.remove", async |conn, at| {
+        db::delete_cost(conn, id, item, user.name(), at).await.map(|()| format!("cost {item}"))
     })
     .await
 }
@@ -500,8 +501,8 @@ pub async fn delete_driver(
     CurrentUser(user): CurrentUser,
     Path((id, item)): Path<(i64, i64)>,
 ) -> Result<Response, AppError> {
-    write_then_edit(&state, &user, id, "driver.remove", async |conn| {
-        db::delete_driver(conn, id, item, user.name()).await.map(|()| format!("driver {item}"))
+    write_then_edit(&state, &user, id, "driver.remove", async |conn, at| {
+        db::delete_driver(conn, id, item, user.name(), at).await.map(|()| format!("driver {item}"))
     })
     .await
 }
@@ -521,7 +522,7 @@ pub async fn copy(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CopyForm>,
 ) -> Result<Response, AppError> {
-    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &form.label).await?.0;
+    let new_id = app::cases::copy(&state.pool, user.name(), CaseId(id), &form.label, state.clock.now()).await?.0;
     Ok(Redirect::to(&format!("/cases/{new_id}/edit")).into_response())
 }
 
@@ -620,7 +621,8 @@ pub async fn submit(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Submit, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Submit, &form.comment, state.clock.now())
+        .await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -631,7 +633,8 @@ pub async fn approve(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Approve, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Approve, &form.comment, state.clock.now())
+        .await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 
@@ -642,7 +645,8 @@ pub async fn reject(
     Path(id): Path<i64>,
     FormBody(form): FormBody<CommentForm>,
 ) -> Result<Response, AppError> {
-    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Reject, &form.comment).await?;
+    app::cases::review(&state.pool, user.name(), CaseId(id), ReviewStep::Reject, &form.comment, state.clock.now())
+        .await?;
     Ok(Redirect::to(&format!("/cases/{id}")).into_response())
 }
 

@@ -351,7 +351,8 @@ pub async fn book(
         Ok(b) => b,
         Err(e) => return page(&state, &me, id, input, e, None).await,
     };
-    match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, today(&state), None, Some(token))
+    let now = state.clock.now();
+    match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, (today(&state), now), None, Some(token))
         .await
         .map_err(AppError::from)
     {
@@ -380,7 +381,8 @@ pub async fn reverse(
 ) -> Result<Response, AppError> {
     let result = match q.token() {
         Ok(token) => {
-            app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, Some(token))
+            let (evidence, now) = (&input.evidence, state.clock.now());
+            app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), evidence, Some(token), now)
                 .await
                 .map_err(AppError::from)
         }
@@ -451,7 +453,7 @@ pub async fn import(
         ZoneId(id),
         app::ledger::Upload { file_name: &name, bytes, again },
         Some(token),
-        today(&state),
+        (today(&state), state.clock.now()),
     )
     .await
     .map_err(AppError::from)
@@ -617,15 +619,15 @@ pub async fn api_book(
     let fingerprint =
         crate::auth::sha256_hex(format!("POST /api/v1/zones/{id}/ledger\n{}", booking.canonical()).as_bytes());
     let key = key.map(|key| db::ledger::Idempotency { user_id: me.user.id, key, fingerprint: &fingerprint });
-    let booked = match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, today(&state), key.as_ref(), None)
-        .await?
-    {
-        app::ledger::Once::Done(b) => b,
-        // Only forms carry a one-time token; kept total all the same.
-        app::ledger::Once::Already(outcome) => {
-            return Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into());
-        }
-    };
+    let (today, now) = (today(&state), state.clock.now());
+    let booked =
+        match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, (today, now), key.as_ref(), None).await? {
+            app::ledger::Once::Done(b) => b,
+            // Only forms carry a one-time token; kept total all the same.
+            app::ledger::Once::Already(outcome) => {
+                return Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into());
+            }
+        };
     Ok(match booked {
         Booked::New(e) => (StatusCode::CREATED, Json(json!({ "entry": e }))).into_response(),
         Booked::Replayed(e) => {
@@ -642,7 +644,8 @@ pub async fn api_reverse(
     ApiPath((id, entry)): ApiPath<(i64, i64)>,
     JsonBody(input): JsonBody<ReverseInput>,
 ) -> Result<Response, ApiError> {
-    match app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, None).await? {
+    let now = state.clock.now();
+    match app::ledger::reverse(&state.pool, who(&me), ZoneId(id), EntryId(entry), &input.evidence, None, now).await? {
         app::ledger::Once::Done(r) => Ok((StatusCode::CREATED, Json(json!({ "entry": r }))).into_response()),
         app::ledger::Once::Already(outcome) => {
             Err(AppError::Conflict(format!("already submitted: it booked {outcome}")).into())

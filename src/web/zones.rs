@@ -72,18 +72,12 @@ pub async fn create(
 ) -> Result<Response, AppError> {
     let result = match NewZone::parse_new(&input) {
         Ok(zone) => {
+            let at = db::timestamp(state.clock.now());
             let mut tx = db::begin_write(&state.pool).await?;
-            match db::insert_zone(&mut tx, &zone, user.name()).await {
+            match db::insert_zone(&mut tx, &zone, user.name(), &at).await {
                 Ok(id) => {
-                    db::audit::record(
-                        &mut tx,
-                        &db::now(),
-                        user.name(),
-                        "zone.create",
-                        &format!("zone {id}"),
-                        &zone.code,
-                    )
-                    .await?;
+                    db::audit::record(&mut tx, &at, user.name(), "zone.create", &format!("zone {id}"), &zone.code)
+                        .await?;
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
@@ -208,22 +202,16 @@ pub async fn rate_readiness(
     let criteria = db::readiness::criteria(&state.pool).await?;
     match parse_scores(&criteria, &form) {
         Ok(scores) => {
+            let at = db::timestamp(state.clock.now());
             let mut tx = db::begin_write(&state.pool).await?;
-            db::readiness::set_scores(&mut tx, id, &scores, user.name()).await?;
+            db::readiness::set_scores(&mut tx, id, &scores, user.name(), &at).await?;
             let detail: Vec<String> = criteria
                 .iter()
                 .zip(&scores)
                 .map(|(c, (_, s))| format!("{}={}", c.key, s.map_or_else(|| "-".into(), |s| s.to_string())))
                 .collect();
-            db::audit::record(
-                &mut tx,
-                &db::now(),
-                user.name(),
-                "zone.readiness",
-                &format!("zone {id}"),
-                &detail.join(" "),
-            )
-            .await?;
+            db::audit::record(&mut tx, &at, user.name(), "zone.readiness", &format!("zone {id}"), &detail.join(" "))
+                .await?;
             tx.commit().await?;
             Ok(Redirect::to(&format!("/zones/{id}#readiness")).into_response())
         }
@@ -252,12 +240,12 @@ pub async fn update(
 ) -> Result<Response, AppError> {
     let errors = match NewZone::parse(&input) {
         Ok(zone) => {
+            let at = db::timestamp(state.clock.now());
             let mut tx = db::begin_write(&state.pool).await?;
-            match db::update_zone(&mut tx, id, &zone, user.name()).await {
+            match db::update_zone(&mut tx, id, &zone, user.name(), &at).await {
                 Ok(()) => {
                     let detail = format!("{} {} {}", zone.code, zone.name, zone.status);
-                    db::audit::record(&mut tx, &db::now(), user.name(), "zone.update", &format!("zone {id}"), &detail)
-                        .await?;
+                    db::audit::record(&mut tx, &at, user.name(), "zone.update", &format!("zone {id}"), &detail).await?;
                     tx.commit().await?;
                     return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
                 }
@@ -277,8 +265,8 @@ pub async fn new_case(
     Path(id): Path<i64>,
 ) -> Result<Redirect, AppError> {
     let site = db::get_site(&state.pool).await?;
-    let today = time::OffsetDateTime::now_utc().date();
-    let start = Month::of(today).plus(1);
+    let now = state.clock.now();
+    let start = Month::of(now.date()).plus(1);
     let horizon = site.default_horizon_months;
     let spec = CaseSpec {
         header: CaseHeader {
@@ -293,17 +281,11 @@ pub async fn new_case(
         costs: Vec::new(),
         drivers: Vec::new(),
     };
+    let at = db::timestamp(now);
     let mut tx = db::begin_write(&state.pool).await?;
-    let case_id = db::insert_case(&mut tx, id, &spec, user.name()).await?;
-    db::audit::record(
-        &mut tx,
-        &db::now(),
-        user.name(),
-        "case.create",
-        &format!("case {case_id}"),
-        &format!("zone {id}"),
-    )
-    .await?;
+    let case_id = db::insert_case(&mut tx, id, &spec, user.name(), &at).await?;
+    db::audit::record(&mut tx, &at, user.name(), "case.create", &format!("case {case_id}"), &format!("zone {id}"))
+        .await?;
     tx.commit().await?;
     Ok(Redirect::to(&format!("/cases/{case_id}/edit")))
 }

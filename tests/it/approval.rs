@@ -85,8 +85,8 @@ async fn the_submitter_or_last_editor_cannot_approve_and_a_second_person_can() {
     assert_eq!(c["approve_comment"], "fits the budget");
     assert_eq!(c["submitted_by"], "t-lead");
     assert_eq!(c["submit_comment"], "ready for review");
-    let at = c["approved_at"].as_str().unwrap();
-    assert!(time::OffsetDateTime::parse(at, &time::format_description::well_known::Rfc3339).is_ok(), "{at}");
+    // Stamped with the clock's time (the fixed test clock, helpers::TEST_NOW).
+    assert_eq!(c["approved_at"], "2026-11-15T10:00:00Z");
     assert_eq!(
         audit(&t, "case.approve").await,
         [("t-admin".to_string(), "second_person: fits the budget".to_string())]

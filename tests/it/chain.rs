@@ -212,7 +212,7 @@ async fn tampered_totals_are_named_and_the_server_refuses_to_start() {
     .unwrap();
     // Positive control: the kept totals agree, and the server's preparation passes.
     assert_eq!(db::totals_problem(&t.pool).await.unwrap(), None);
-    pilot_ledger::cli::prepare(&format!("sqlite://{path}"), true).await.unwrap();
+    pilot_ledger::cli::prepare(&format!("sqlite://{path}"), true, t.now()).await.unwrap();
 
     // The app's own connection cannot edit, delete or replace a totals row.
     for sql in [
@@ -310,9 +310,10 @@ async fn user_ids_are_never_reused_even_after_a_delete_behind_the_apps_back() {
     let mut raw = intruder(&db_path(&t)).await;
     exec(&mut raw, "DROP TRIGGER users_no_delete").await.unwrap();
     exec(&mut raw, &format!("DELETE FROM users WHERE id = {last}")).await.unwrap();
-    let new_id = pilot_ledger::app::users::add_user(&t.pool, "test", "newcomer", Role::Admin, crate::helpers::PASSWORD)
-        .await
-        .unwrap();
+    let new_id =
+        pilot_ledger::app::users::add_user(&t.pool, "test", "newcomer", Role::Admin, crate::helpers::PASSWORD, t.now())
+            .await
+            .unwrap();
     assert_eq!(new_id.0, last + 1, "the next id, not the freed one");
     // A name taken (in any case) is still a clear conflict, not the trigger's raw error.
     let mut tx = db::begin_write(&t.pool).await.unwrap();

@@ -255,9 +255,16 @@ async fn ids_of_users_deleted_before_the_upgrade_are_never_given_again() {
     let sessions: Vec<String> = sqlx::query_scalar("SELECT id_hash FROM sessions").fetch_all(&pool).await.unwrap();
     assert_eq!(sessions, ["s1"]);
     // The next user created gets id 5: no token or session names it.
-    let id = pilot_ledger::app::users::add_user(&pool, "test", "newcomer", Role::Admin, crate::helpers::PASSWORD)
-        .await
-        .unwrap();
+    let id = pilot_ledger::app::users::add_user(
+        &pool,
+        "test",
+        "newcomer",
+        Role::Admin,
+        crate::helpers::PASSWORD,
+        crate::helpers::TEST_NOW,
+    )
+    .await
+    .unwrap();
     assert_eq!(id.0, 5);
 }
 

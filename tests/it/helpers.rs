@@ -18,6 +18,11 @@ use tower::ServiceExt;
 /// The password of every test account.
 pub const PASSWORD: &str = "correct horse battery staple";
 
+/// Where every test's clock starts: a fixed instant, so that no test depends on the day it
+/// runs (months "in the future", elapsed months, token expiry). Tests move it with
+/// `t.clock.advance` or start elsewhere with [`test_app_at`].
+pub const TEST_NOW: time::OffsetDateTime = time::macros::datetime!(2026-11-15 10:00:00 UTC);
+
 /// An application on its own temporary SQLite file, with one account per role (`t-lead`,
 /// `t-controller`, `t-viewer`, `t-admin`); requests go out as `as_role` says (lead by default).
 #[derive(Clone)]
@@ -30,23 +35,28 @@ pub struct TestApp {
     _dir: Arc<TempDir>,
 }
 
-/// A fresh database, migrated, with the demo plant when `demo`.
+/// A fresh database, migrated, with the demo plant when `demo`, on the clock at [`TEST_NOW`].
 pub async fn test_app(demo: bool) -> TestApp {
+    test_app_at(demo, TEST_NOW).await
+}
+
+/// [`test_app`] with the clock (and the demo's load) at `now`.
+pub async fn test_app_at(demo: bool, now: time::OffsetDateTime) -> TestApp {
     let dir = tempfile::tempdir().unwrap();
     let url = format!("sqlite://{}", dir.path().join("test.db").display());
-    let pool = cli::prepare(&url, demo).await.unwrap();
+    let pool = cli::prepare(&url, demo, now).await.unwrap();
     if !demo {
         // Tests without the demo use a 10 % hurdle rate.
         let site = r#"{"format":"pilot-ledger-scenario","version":1,
             "site":{"plant_name":"Test works","currency":"EUR","hurdle_rate":"0.1"},"zones":[]}"#;
-        cli::load_text(&pool, site).await.unwrap();
+        cli::load_text(&pool, site, now).await.unwrap();
     }
-    let clock = Arc::new(ManualClock::new(time::OffsetDateTime::now_utc()));
+    let clock = Arc::new(ManualClock::new(now));
     let router = app(AppState::new(pool.clone(), clock.clone(), false));
     let mut t = TestApp { pool, router, clock, cookies: HashMap::new(), cookie: None, _dir: Arc::new(dir) };
     for role in Role::ALL {
         let name = format!("t-{role}");
-        pilot_ledger::app::users::add_user(&t.pool, "test", &name, role, PASSWORD).await.unwrap();
+        pilot_ledger::app::users::add_user(&t.pool, "test", &name, role, PASSWORD, now).await.unwrap();
         let cookie = t.sign_in(&name, PASSWORD).await.expect("test account signs in");
         t.cookies.insert(role, cookie);
     }
@@ -91,7 +101,7 @@ impl TestApp {
 
     /// The same app as a new account `name` with `role` (a second lead for four-eyes tests).
     pub async fn as_new_user(&self, name: &str, role: Role) -> TestApp {
-        pilot_ledger::app::users::add_user(&self.pool, "test", name, role, PASSWORD).await.unwrap();
+        pilot_ledger::app::users::add_user(&self.pool, "test", name, role, PASSWORD, self.now()).await.unwrap();
         let mut t = self.clone();
         t.cookie = Some(self.sign_in(name, PASSWORD).await.expect("new account signs in"));
         t

@@ -4,7 +4,7 @@
 
 use crate::helpers::{TestApp, test_app};
 use axum::http::StatusCode;
-use pilot_ledger::auth::{Clock, Role};
+use pilot_ledger::auth::Role;
 use pilot_ledger::domain::Month;
 use serde_json::{Value, json};
 
@@ -37,16 +37,17 @@ fn portfolio_row(p: &Value, code: &str) -> Value {
     p["zones"].as_array().unwrap().iter().find(|r| r["code"] == code).unwrap().clone()
 }
 
-/// The months a test can book: the case starts eight months before the clock's month, so the
-/// seven months 1 to 7 are in the past and month 8 (today) is bookable. Everything is relative
-/// to the start month, and the hand arithmetic does not depend on the calendar.
+/// The months a test can book: the case starts eight months before the fixed test clock's month
+/// (helpers::TEST_NOW, 2026-11), in 2026-03, so the seven months 1 to 7 (2026-04 to 2026-10)
+/// are in the past and month 8 (2026-11, today) is bookable.
 #[tokio::test]
 async fn a_rebaseline_keeps_seven_booked_months_and_measures_later_months_against_the_new_one() {
     let base = test_app(false).await;
     let (lead, admin, controller) =
         (base.as_role(Some(Role::Lead)), base.as_role(Some(Role::Admin)), base.as_role(Some(Role::Controller)));
-    let today = Month::of(base.clock.now().date());
-    let start = shift(today, -8);
+    let today = Month::parse("2026-11").unwrap();
+    let start = Month::parse("2026-03").unwrap();
+    assert_eq!(Month::of(base.now().date()), today, "the fixed test clock");
     let z = lead.post_json("/api/v1/zones", &json!({"code": "HIST-1", "name": "History zone"}).to_string()).await;
     let zone = z.json()["zone"]["id"].as_i64().unwrap();
     // Energy: 200,000 kWh a year at 0.20 EUR from go-live in month 1: 200,000 x 0.20 / 12 =
@@ -204,7 +205,7 @@ async fn a_rebaseline_keeps_seven_booked_months_and_measures_later_months_agains
 
     // Both baselines on the zone page, with approver, how and why.
     let zp = lead.get(&format!("/zones/{zone}")).await.text;
-    let v1_row = format!("<td>from {} to {}</td>\n    <td>by t-admin on ", start, shift(today, -1));
+    let v1_row = format!("<td>from {start} to 2026-10</td>\n    <td>by t-admin on ");
     assert!(zp.contains(&v1_row), "{zp}");
     assert!(zp.contains(&format!("<td>from {today} (current)</td>")), "{zp}");
     assert!(zp.contains("pilot funded") && zp.contains("meter data shows more idle running"), "{zp}");
@@ -318,7 +319,7 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
     // A copy of v2 carries its identities; Scrap added again takes its old identity, a second
     // Scrap its own id.
     let mut tx = db::begin_write(&pool).await.unwrap();
-    let v3 = db::copy_case(&mut tx, 2, "Copy", "lead").await.unwrap();
+    let v3 = db::copy_case(&mut tx, 2, "Copy", "lead", "2026-11-15T10:00:00Z").await.unwrap();
     let scrap = NewBenefitDriver {
         label: "Scrap".into(),
         kind: DriverKind::Scrap,
@@ -329,8 +330,8 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
         unit_value: 1.into(),
         escalation: 0.into(),
     };
-    let again = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
-    let second = db::add_driver(&mut tx, v3, &scrap, "lead").await.unwrap();
+    let again = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();
+    let second = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();
     tx.commit().await.unwrap();
     let v3_uids: Vec<i64> = sqlx::query_scalar("SELECT item_uid FROM benefit_drivers WHERE case_id = ? ORDER BY id")
         .bind(v3)
@@ -358,10 +359,12 @@ async fn a_month_booked_before_the_approval_keeps_its_baseline() {
     let t = test_app(false).await;
     let (admin, controller) = (t.as_role(Some(Role::Admin)), t.as_role(Some(Role::Controller)));
     let z = crate::ledger::zone_with_baseline(&t, "HIST-3").await;
-    let today = Month::of(t.clock.now().date());
+    // The fixed test clock's month (helpers::TEST_NOW), and its index in the case from 2025-01
+    // (36 months, so through 2027-12): 12 months of 2025, then 2026-01 is 12, 2026-11 is 22.
+    let today = Month::parse("2026-11").unwrap();
+    assert_eq!(Month::of(t.now().date()), today, "the fixed test clock");
     let start = Month::parse("2025-01").unwrap();
-    // Month index of today in the case from 2025-01 (36 months, so through 2027-12).
-    let idx = ((today.year - 2025) * 12 + i32::from(today.month) - 1) as usize;
+    let idx = 22;
     let body = json!({"kind": "saving", "method": "direct", "item": z.energy, "period": today.to_string(),
         "quantity": "15000", "evidence": "meter"});
     let a = controller.post_json(&format!("/api/v1/zones/{}/ledger", z.id), &body.to_string()).await;
@@ -376,11 +379,11 @@ async fn a_month_booked_before_the_approval_keeps_its_baseline() {
     assert_eq!(t.post_json(&format!("/api/v1/cases/{v2}/submit"), "{}").await.status, StatusCode::OK);
     let ok = admin.post_json(&format!("/api/v1/cases/{v2}/approve"), "{}").await;
     assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
-    assert_eq!(ok.json()["case"]["in_force_from"], shift(today, 1).to_string());
+    assert_eq!(ok.json()["case"]["in_force_from"], "2026-12");
     let l = ledger(&t, z.id).await;
     assert_eq!(l["baselines"][0]["in_force_from"], start.to_string());
     assert_eq!(l["baselines"][0]["in_force_until"], today.to_string());
-    assert_eq!(l["baselines"][1]["in_force_from"], shift(today, 1).to_string());
+    assert_eq!(l["baselines"][1]["in_force_from"], "2026-12");
     // Today's entry is measured against v1's expectation of 200,000 x 0.20 / 12 = 3,333.3333.
     assert_eq!(l["realized"]["drivers"][0]["expected"][idx], "3333.3333");
     assert_eq!(l["realized"]["drivers"][0]["measured"][idx], "3000");

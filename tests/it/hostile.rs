@@ -151,6 +151,29 @@ fn csv_importer_refuses_garbage_whole() {
         "hostile CSV: {CASES} files tried, {} accepted whole, the rest refused with nothing written",
         accepted.get()
     );
+    // An importer that refused everything would pass the property: a fifth of the generated
+    // files are valid rows, and some must have been booked.
+    assert!(accepted.get() > 0, "no generated file was accepted");
+    rt.block_on(async {
+        // Positive control: one valid row books exactly one entry at the driver's unit value
+        // (14.20 EUR a piece, seed/demo-plant.json): 7 x 14.20 = 99.40 EUR (hand arithmetic).
+        let before = ledger_rows(&t).await;
+        let good = format!("{COLUMNS}\n2026-10,saving,Split and wrinkled blanks,direct,7,,,,,control row\n");
+        let a = t.send(multipart(zone, &good)).await;
+        assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
+        assert_eq!(ledger_rows(&t).await, before + 1);
+        let amount: String = sqlx::query_scalar("SELECT amount FROM ledger_entries WHERE evidence = 'control row'")
+            .fetch_one(&t.pool)
+            .await
+            .unwrap();
+        assert_eq!(amount.parse::<rust_decimal::Decimal>().unwrap(), rust_decimal::Decimal::new(9940, 2));
+        // The same row with the quantity broken: refused naming its line and column, nothing written.
+        let bad = format!("{COLUMNS}\n2026-10,saving,Split and wrinkled blanks,direct,NaN,,,,,control row 2\n");
+        let a = t.send(multipart(zone, &bad)).await;
+        assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+        assert!(a.text.contains("line 2, column quantity: not a number: &#34;NaN&#34;; enter digits with a decimal point, grouped in threes by comma or space or not at all, e.g. 1,250.75 or 1250.75"), "{}", a.text);
+        assert_eq!(ledger_rows(&t).await, before + 1);
+    });
 }
 
 /// A JSON value with hostile leaves, nested up to a few levels.
@@ -265,12 +288,73 @@ fn json_api_never_answers_5xx_and_refusals_write_nothing() {
             assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "rate {rate}: {}", a.text);
             assert!(a.text.contains("\"field\":\"rate\""), "{}", a.text);
         }
+        // Positive controls beside the refusals: a valid body to each write endpoint is
+        // accepted and writes exactly its one row; the same body with one field broken is
+        // refused with that field's message and writes nothing.
+        let before = write_counts(&admin).await;
+        let a = admin.post_json("/api/v1/zones", r#"{"code": "CTRL-1", "name": "Control zone"}"#).await;
+        assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+        assert_eq!(a.json()["zone"]["code"], "CTRL-1");
+        let after = write_counts(&admin).await;
+        assert_eq!(after, [before[0] + 1, before[1], before[2], before[3], before[4]]);
+        let a = admin.post_json("/api/v1/zones", r#"{"code": "CTRL-2", "name": " "}"#).await;
+        assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+        assert_eq!(a.json()["fields"], serde_json::json!([{"field": "name", "message": "required: enter some text"}]));
+        assert_eq!(write_counts(&admin).await, after);
+        // A saving on PRESS-2's first driver (14.20 EUR a piece, seed/demo-plant.json):
+        // 7 x 14.20 = 99.40 EUR (hand arithmetic).
+        let driver: i64 = sqlx::query_scalar(
+            "SELECT d.id FROM benefit_drivers d JOIN case_versions c ON c.id = d.case_id
+             WHERE c.zone_id = ? AND c.state = 'approved' AND d.label = 'Split and wrinkled blanks'",
+        )
+        .bind(zone)
+        .fetch_one(&t.pool)
+        .await
+        .unwrap();
+        let body = serde_json::json!({"kind": "saving", "method": "direct", "item": driver, "period": "2026-10",
+            "quantity": "7", "evidence": "control"});
+        let a = admin.post_json(&format!("/api/v1/zones/{zone}/ledger"), &body.to_string()).await;
+        assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+        assert_eq!(a.json()["entry"]["amount"], "99.4");
+        assert_eq!(write_counts(&admin).await, [after[0], after[1], after[2], after[3], after[4] + 1]);
+        let mut broken = body.clone();
+        broken["quantity"] = "NaN".into();
+        let a = admin.post_json(&format!("/api/v1/zones/{zone}/ledger"), &broken.to_string()).await;
+        assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", a.text);
+        assert_eq!(a.json()["fields"], serde_json::json!([{"field": "quantity", "message": "not a number: \"NaN\"; enter a plain decimal: digits with a decimal point and no grouping, e.g. 1250.75"}]));
+        assert_eq!(write_counts(&admin).await, [after[0], after[1], after[2], after[3], after[4] + 1]);
+        // Metrics: -100 now and 110 in a period have an IRR of exactly 10 % (hand arithmetic).
+        let a = admin.post_json("/api/v1/metrics", r#"{"rate": "0.1", "flows": ["-100", "110"]}"#).await;
+        assert_eq!(a.status, StatusCode::OK, "{}", a.text);
+        let irr: f64 = a.json()["irr"].as_str().unwrap().parse().unwrap();
+        assert!((irr - 0.1).abs() < 1e-12, "{}", a.text);
     });
 }
 
 #[test]
 fn scenario_loader_refuses_mangled_files_whole() {
     let rt = runtime();
+    rt.block_on(async {
+        // Positive control: the unmangled demo file loads whole: 8 zones, 9 case versions and
+        // 176 ledger entries (counted in seed/demo-plant.json).
+        let fresh = test_app(false).await;
+        let summary =
+            pilot_ledger::cli::load_text(&fresh.pool, pilot_ledger::cli::DEMO_SCENARIO, fresh.now()).await.unwrap();
+        assert_eq!((summary.zones, summary.cases, summary.entries), (8, 9, 176));
+        // The same file with one value broken is refused naming it, and writes nothing.
+        let fresh = test_app(false).await;
+        let before = write_counts(&fresh).await;
+        let broken =
+            pilot_ledger::cli::DEMO_SCENARIO.replacen(r#""hurdle_rate": "0.09""#, r#""hurdle_rate": "NaN""#, 1);
+        assert_ne!(broken, pilot_ledger::cli::DEMO_SCENARIO);
+        let err = pilot_ledger::cli::load_text(&fresh.pool, &broken, fresh.now()).await.unwrap_err();
+        assert_eq!(
+            err.to_string(),
+            "the scenario is not valid; nothing was stored:\n  site.hurdle_rate: not a number: \"NaN\"; enter digits with a \
+             decimal point, grouped in threes by comma or space or not at all, e.g. 1,250.75 or 1250.75"
+        );
+        assert_eq!(write_counts(&fresh).await, before);
+    });
     let t = rt.block_on(test_app(false));
     let demo = pilot_ledger::cli::DEMO_SCENARIO.as_bytes().to_vec();
     // Mutations of the demo file: bytes replaced, cut short, or a value swapped for a nasty one.
@@ -306,7 +390,7 @@ fn scenario_loader_refuses_mangled_files_whole() {
                 let before = write_counts(&t).await;
                 // A harmless mutation loads once; later ones then collide on the zone codes,
                 // which must refuse the whole file just the same.
-                if pilot_ledger::cli::load_text(&t.pool, &text).await.is_err() {
+                if pilot_ledger::cli::load_text(&t.pool, &text, t.now()).await.is_err() {
                     prop_assert_eq!(before, write_counts(&t).await, "a refused load wrote rows");
                 }
                 Ok(())

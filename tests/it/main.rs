@@ -7,6 +7,7 @@ mod browser;
 mod chain;
 mod cli;
 mod contract;
+mod dates;
 mod exports;
 mod faults;
 mod finance;

@@ -32,7 +32,7 @@ async fn demo_plant_is_loaded_once_and_every_page_renders() {
 
     // A second start on the same database does not load the demo again.
     let url = t.pool.connect_options().get_filename().display().to_string();
-    let again = pilot_ledger::cli::prepare(&format!("sqlite://{url}"), true).await.unwrap();
+    let again = pilot_ledger::cli::prepare(&format!("sqlite://{url}"), true, t.now()).await.unwrap();
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM zones").fetch_one(&again).await.unwrap();
     assert_eq!(n as usize, zones.len());
 }
@@ -44,9 +44,17 @@ async fn forms_create_edit_and_refuse_with_field_errors() {
     assert_eq!(created.status, StatusCode::SEE_OTHER);
     let zone_url = created.location.unwrap();
 
-    let bad = t.post_form("/zones", "code=EOL-3&name=&status=candidate").await;
+    // Two refusals, each with its own message beside its field, and nothing written.
+    let before = t.counts().await;
+    let bad = t.post_form("/zones", "code=EOL-4&name=&status=candidate").await;
     assert_eq!(bad.status, StatusCode::UNPROCESSABLE_ENTITY);
-    assert!(bad.text.contains("already exists") || bad.text.contains("required"), "{}", bad.text);
+    assert!(bad.text.contains("Error: required: enter some text</p>"), "{}", bad.text);
+    assert!(!bad.text.contains("already exists"), "{}", bad.text);
+    let taken = t.post_form("/zones", "code=EOL-3&name=Another+bay&status=candidate").await;
+    assert_eq!(taken.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(taken.text.contains("Error: a zone with code EOL-3 already exists</p>"), "{}", taken.text);
+    assert!(!taken.text.contains("required: enter some text"), "{}", taken.text);
+    assert_eq!(t.counts().await, before);
 
     let case = t.post_form(&format!("{zone_url}/cases"), "").await;
     let edit_url = case.location.unwrap();

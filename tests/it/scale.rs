@@ -194,7 +194,7 @@ async fn the_page_shows_the_head_of_a_long_ranking_and_says_so() {
         })
         .collect();
     let scenario = serde_json::json!({"format": "pilot-ledger-scenario", "version": 1, "zones": zones});
-    pilot_ledger::cli::load_text(&t.pool, &scenario.to_string()).await.unwrap();
+    pilot_ledger::cli::load_text(&t.pool, &scenario.to_string(), t.now()).await.unwrap();
     let page = t.get("/portfolio?budget=50000").await;
     assert_eq!(page.status, StatusCode::OK);
     assert!(page.text.contains("The charts and the table show the first 250 of 251 zones in ranking\norder"));

@@ -190,7 +190,7 @@ async fn tokens_carry_the_role_and_revocation_is_immediate() {
         .body(Body::from(r#"{"code":"TOK-1","name":"By token"}"#))
         .unwrap();
     assert_eq!(anon.send(write).await.status, StatusCode::FORBIDDEN, "a viewer's token cannot write");
-    pilot_ledger::app::users::withdraw_token(&t.pool, "test", id).await.unwrap();
+    pilot_ledger::app::users::withdraw_token(&t.pool, "test", id, t.now()).await.unwrap();
     assert_eq!(anon.send(bearer("/api/v1/zones", &token)).await.status, StatusCode::UNAUTHORIZED);
     let stored: String =
         sqlx::query_scalar("SELECT token_hash FROM api_tokens WHERE id = ?").bind(id).fetch_one(&t.pool).await.unwrap();

@@ -116,12 +116,21 @@ async fn a_name_under_attack_from_one_address_still_signs_in_from_another() {
 async fn every_name_costs_one_password_check_and_gets_the_same_answer() {
     let t = test_app(false).await;
     let (state, router) = own_router(&t, Vec::new());
-    let off = pilot_ledger::app::users::add_user(&t.pool, "test", "t-gone", Role::Viewer, PASSWORD).await.unwrap();
+    let off =
+        pilot_ledger::app::users::add_user(&t.pool, "test", "t-gone", Role::Viewer, PASSWORD, t.now()).await.unwrap();
     let me: i64 = sqlx::query_scalar("SELECT id FROM users WHERE name = 't-admin'").fetch_one(&t.pool).await.unwrap();
-    pilot_ledger::app::users::update_user(&t.pool, "test", pilot_ledger::domain::UserId(me), off, Role::Viewer, false)
-        .await
-        .unwrap();
-    pilot_ledger::app::users::add_user(&t.pool, "test", "t-broken", Role::Viewer, PASSWORD).await.unwrap();
+    pilot_ledger::app::users::update_user(
+        &t.pool,
+        "test",
+        pilot_ledger::domain::UserId(me),
+        off,
+        Role::Viewer,
+        false,
+        t.now(),
+    )
+    .await
+    .unwrap();
+    pilot_ledger::app::users::add_user(&t.pool, "test", "t-broken", Role::Viewer, PASSWORD, t.now()).await.unwrap();
     sqlx::query("UPDATE users SET password_hash = '$argon2id$broken' WHERE name = 't-broken'")
         .execute(&t.pool)
         .await
