@@ -71,10 +71,7 @@ async fn make<R: Render>(
     subject: &str,
     render: &R,
 ) -> Result<i64, R::Error> {
-    let made_at = now
-        .to_offset(time::UtcOffset::UTC)
-        .format(&time::format_description::well_known::Rfc3339)
-        .map_err(|e| Error::Internal(e.into()))?;
+    let made_at = db::timestamp(now);
     for _ in 0..ATTEMPTS {
         let state = db::packs::state(pool).await.map_err(Error::from)?;
         let rendered = render.render(Making { made_at: made_at.clone(), state: state.clone() }).await?;

@@ -57,7 +57,7 @@ async fn check(c: &Client, url: &str) -> (u64, u64, Vec<String>, Vec<String>, u6
 #[tokio::test]
 async fn pages_fit_1440_px_without_overlapping_labels() {
     let t = test_app(true).await;
-    pilot_ledger::cli::load_text(&t.pool, HUGE).await.unwrap();
+    pilot_ledger::cli::load_text(&t.pool, HUGE, crate::helpers::TEST_NOW).await.unwrap();
     let Some(b) = browser().await else { return };
     let c = &b.client;
     c.set_window_size(1440, 900).await.unwrap();
