@@ -257,10 +257,10 @@ async fn controller_books_imports_and_reverses() {
     let demo_rows = c.find_all(Locator::Css("#ledger tbody tr")).await.unwrap().len();
 
     // A direct measurement by form: the first driver is selected by default.
-    fill(c, "period", "2025-08").await;
-    fill(c, "quantity", "150").await;
-    fill(c, "evidence", "scrap count from the quality report").await;
-    click_button(c, "Book entry").await;
+    fill(c, "direct-period", "2025-08").await;
+    fill(c, "direct-quantity", "150").await;
+    fill(c, "direct-evidence", "scrap count from the quality report").await;
+    click_button(c, "Book direct saving").await;
     let booked: i64 = sqlx::query_scalar("SELECT MAX(id) FROM ledger_entries WHERE zone_id = ?")
         .bind(zone)
         .fetch_one(&t.pool)
@@ -365,10 +365,10 @@ async fn controller_books_in_decimal_comma() {
 
     sign_in(c, &base, "t-controller").await;
     c.goto(&format!("{base}/zones/{}/ledger", z.id)).await.unwrap();
-    fill(c, "period", "2025-03").await;
-    fill(c, "quantity", "1.250,75").await;
-    fill(c, "evidence", "sub-meter M3").await;
-    click_button(c, "Book entry").await;
+    fill(c, "direct-period", "2025-03").await;
+    fill(c, "direct-quantity", "1.250,75").await;
+    fill(c, "direct-evidence", "sub-meter M3").await;
+    click_button(c, "Book direct saving").await;
     assert!(c.find(Locator::XPath("//table[@id='ledger']//td[normalize-space()='1.250,75']")).await.is_ok());
     let measured = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
     assert_eq!(measured.trim(), "250,15");

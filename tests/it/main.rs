@@ -10,6 +10,7 @@ mod contract;
 mod exports;
 mod faults;
 mod finance;
+mod forms;
 mod hardening;
 mod helpers;
 mod history;
