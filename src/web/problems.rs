@@ -47,6 +47,12 @@ impl Problems {
         Self(vec![FormProblem { anchor: anchor.into(), title: title.into(), errors, notice }])
     }
 
+    /// These problems and `other`'s (a page with two refused forms).
+    pub fn and(mut self, other: Self) -> Self {
+        self.0.extend(other.0);
+        self
+    }
+
     /// Nothing was refused.
     pub fn is_empty(&self) -> bool {
         self.0.is_empty()

@@ -72,6 +72,10 @@ async fn draft_case(t: &TestApp, code: &str) -> (i64, i64) {
     (zone, c.json()["case"]["id"].as_i64().unwrap())
 }
 
+/// A form's values to fill in, and what the booked entry stores (kind, method, amount).
+type Fields<'a> = &'a [(&'a str, &'a str)];
+type Stored<'a> = (&'a str, &'a str, &'a str);
+
 async fn count(t: &TestApp, sql: &'static str) -> i64 {
     sqlx::query_scalar(sql).fetch_one(&t.pool).await.unwrap()
 }
@@ -82,7 +86,7 @@ async fn each_kind_of_booking_books_on_the_first_submit_of_its_own_form() {
     let z = zone_with_baseline(&lead, "FRM-1").await;
     let t = lead.as_role(Some(Role::Controller));
     let path = format!("/zones/{}/ledger", z.id);
-    let forms: [(&str, &[(&str, &str)], (&str, &str, &str)); 3] = [
+    let forms: [(&str, Fields, Stored); 3] = [
         (
             "book-direct",
             &[("period", "2025-03"), ("quantity", "1240"), ("evidence", "sub-meter M3")],
@@ -396,4 +400,20 @@ async fn pages_show_the_plant_time_and_exports_keep_the_stored_value() {
     assert!(
         a.text.contains("id=\"time_zone-error\">Error: &#34;Nowhere&#34; is not a time zone name of the IANA database")
     );
+}
+
+#[tokio::test]
+async fn the_zone_forms_show_errors_beside_the_form_with_a_summary() {
+    let t = test_app(false).await;
+    let a = t.post_form("/zones", "code=&name=New+zone").await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("<li><a href=\"#new-zone-form-problems\">Add a zone: code: 1 to 16 letters, digits or dashes, e.g. PRESS-2</a></li>"), "{}", a.text);
+    assert!(a.text.contains("id=\"new-zone-form-problems\""));
+    // Positive control.
+    assert_eq!(t.post_form("/zones", "code=FRM-6&name=New+zone").await.status, StatusCode::SEE_OTHER);
+    let id: i64 = sqlx::query_scalar("SELECT id FROM zones WHERE code = 'FRM-6'").fetch_one(&t.pool).await.unwrap();
+    let a = t.post_form(&format!("/zones/{id}/readiness"), "score_data_reach=9").await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(a.text.contains("<li><a href=\"#readiness-form-problems\">Readiness scores: score_data_reach: &#34;9&#34; is outside 1 to 5: enter a whole number from 1 to 5; or leave it empty</a></li>"), "{}", a.text);
+    assert!(!a.text.contains("zone-form-problems\""), "only the readiness form");
 }
