@@ -224,7 +224,12 @@ pub async fn prepare(url: &str, demo: bool, now: time::OffsetDateTime) -> anyhow
 
 /// Parse, validate and store a scenario document, stamped `now` (and no booking after it).
 pub async fn load_text(pool: &SqlitePool, text: &str, now: time::OffsetDateTime) -> anyhow::Result<db::LoadSummary> {
-    let scenario = match Scenario::parse(text, db::number_format(pool).await?) {
+    let multiplier = match db::get_site(pool).await {
+        Ok(site) => site.expert_multiplier,
+        Err(db::DbError::NotFound(_)) => crate::domain::SiteSettings::DEFAULT_EXPERT_MULTIPLIER,
+        Err(e) => return Err(e.into()),
+    };
+    let scenario = match Scenario::parse_with(text, db::number_format(pool).await?, multiplier) {
         Ok(s) => s,
         Err(errors) => {
             let lines: Vec<String> = errors.0.iter().map(|e| format!("  {}: {}", e.field, e.message)).collect();

@@ -26,7 +26,7 @@ pub fn slots() -> usize {
 }
 
 /// Run `work` on the blocking pool once a slot is free, with the request's number format as
-/// [`NumberFormat::current`] inside it.
+/// [`NumberFormat::current`] and its time zone as `PlantZone::current` inside it.
 pub async fn run<T, F>(work: F) -> AppResult<T>
 where
     F: FnOnce() -> T + Send + 'static,
@@ -51,9 +51,10 @@ where
 {
     let slot = slots.clone().acquire_owned().await.map_err(|e| Error::Internal(e.into()))?;
     let numbers = NumberFormat::current();
+    let zone = crate::domain::PlantZone::current();
     tokio::task::spawn_blocking(move || {
         let _slot = slot;
-        numbers.sync_scope(work)
+        numbers.sync_scope(|| zone.sync_scope(work))
     })
     .await
     .map_err(|e| Error::Internal(e.into()))

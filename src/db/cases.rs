@@ -3,8 +3,8 @@
 use super::{DbError, DbResult, count, decimal, parsed};
 use crate::domain::{
     ApprovalKind, ApprovalSettings, BaselineHistory, BenefitDriver, CaseHeader, CaseParts, CaseSpec, CaseState,
-    CostCategory, CostItem, CostKind, DriverKind, InForce, Month, NewBenefitDriver, NewCostItem, Review, SiteSettings,
-    ZoneStatus,
+    CostCategory, CostItem, CostKind, DriverKind, ExpertHours, InForce, Month, NewBenefitDriver, NewCostItem, Review,
+    SiteSettings, ZoneStatus,
 };
 use serde::Serialize;
 use sqlx::sqlite::SqliteRow;
@@ -250,7 +250,8 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     })
     .collect::<DbResult<Vec<_>>>()?;
     let drivers = sqlx::query(
-        "SELECT id, item_uid, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation
+        "SELECT id, item_uid, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation, hours_spent,
+                hours_multiplier
          FROM benefit_drivers WHERE case_id = ? ORDER BY id",
     )
     .bind(id)
@@ -270,6 +271,13 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
                 qty_high: decimal("qty_high", r.try_get("qty_high")?)?,
                 unit_value: decimal("unit_value", r.try_get("unit_value")?)?,
                 escalation: decimal("escalation", r.try_get("escalation")?)?,
+                expert_hours: match (r.try_get("hours_spent")?, r.try_get("hours_multiplier")?) {
+                    (Some(h), Some(m)) => Some(ExpertHours {
+                        hours_spent: decimal("hours_spent", h)?,
+                        hours_multiplier: decimal("hours_multiplier", m)?,
+                    }),
+                    _ => None,
+                },
             },
         })
     })
@@ -706,12 +714,12 @@ async fn insert_driver_row(
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO benefit_drivers (case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation,
-                                      created_at, created_by, item_uid)
+                                      created_at, created_by, item_uid, hours_spent, hours_multiplier)
          VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, COALESCE(?12, (
              SELECT x.item_uid FROM benefit_drivers x JOIN case_versions xv ON xv.id = x.case_id
              WHERE xv.zone_id = (SELECT zone_id FROM case_versions WHERE id = ?1) AND x.label = ?2 AND x.case_id <> ?1
                AND x.item_uid NOT IN (SELECT item_uid FROM benefit_drivers WHERE case_id = ?1 AND item_uid IS NOT NULL)
-             ORDER BY xv.version DESC, x.id DESC LIMIT 1)))
+             ORDER BY xv.version DESC, x.id DESC LIMIT 1)), ?13, ?14)
          RETURNING id",
     )
     .bind(case_id)
@@ -726,6 +734,8 @@ async fn insert_driver_row(
     .bind(at)
     .bind(actor)
     .bind(uid)
+    .bind(d.expert_hours.map(|x| x.hours_spent.to_string()))
+    .bind(d.expert_hours.map(|x| x.hours_multiplier.to_string()))
     .fetch_one(conn)
     .await?)
 }

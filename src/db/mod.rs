@@ -291,7 +291,7 @@ pub use cases::{
 };
 pub use portfolio::{Snapshot, generation, snapshot};
 pub use scenario::{LoadSummary, database_is_empty, load_scenario};
-pub use site::{get_site, number_format, put_site};
+pub use site::{get_site, number_format, page_settings, put_site};
 pub use users::{
     NewToken, SessionRow, TokenRow, TokenUse, User, count_users, delete_session, get_session, get_user, insert_session,
     insert_token, insert_user, list_tokens, list_users, revoke_token, revoke_user_tokens, set_password, token_use,

@@ -1,7 +1,7 @@
 //! Site settings (one row).
 
 use super::{DbError, DbResult, count, decimal, parsed};
-use crate::domain::{FieldErrors, NumberFormat, SiteSettings};
+use crate::domain::{FieldErrors, NumberFormat, PlantZone, SiteSettings};
 use sqlx::{Row, SqliteConnection, SqlitePool};
 
 /// The site settings; `NotFound` before the first load.
@@ -13,7 +13,7 @@ pub async fn get_site(pool: &SqlitePool) -> DbResult<SiteSettings> {
 pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSettings> {
     let row = sqlx::query(
         "SELECT plant_name, currency, hurdle_rate, tax_rate, depreciation_years, default_horizon_months, expert_multiplier,
-                number_format, one_person_approval
+                number_format, one_person_approval, time_zone
          FROM site_settings WHERE id = 1",
     )
     .fetch_optional(conn)
@@ -32,14 +32,26 @@ pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSet
         expert_multiplier: decimal("expert_multiplier", row.try_get("expert_multiplier")?)?,
         number_format: parsed("number_format", row.try_get("number_format")?, NumberFormat::parse)?,
         one_person_approval: row.try_get::<i64, _>("one_person_approval")? != 0,
+        time_zone: parsed("time_zone", row.try_get("time_zone")?, PlantZone::parse)?,
     })
 }
 
 /// The site's number format; the default before the first load.
 pub async fn number_format(pool: &SqlitePool) -> DbResult<NumberFormat> {
-    let text: Option<String> =
-        sqlx::query_scalar("SELECT number_format FROM site_settings WHERE id = 1").fetch_optional(pool).await?;
-    text.map_or(Ok(NumberFormat::default()), |t| parsed("number_format", t, NumberFormat::parse))
+    Ok(page_settings(pool).await?.0)
+}
+
+/// What every page needs to write figures and timestamps: the site's number format and time
+/// zone, in one read; the defaults (decimal point, UTC) before the first load.
+pub async fn page_settings(pool: &SqlitePool) -> DbResult<(NumberFormat, PlantZone)> {
+    let row: Option<(String, String)> =
+        sqlx::query_as("SELECT number_format, time_zone FROM site_settings WHERE id = 1").fetch_optional(pool).await?;
+    match row {
+        None => Ok((NumberFormat::default(), PlantZone::default())),
+        Some((numbers, zone)) => {
+            Ok((parsed("number_format", numbers, NumberFormat::parse)?, parsed("time_zone", zone, PlantZone::parse)?))
+        }
+    }
 }
 
 /// Insert or replace the site settings. The currency is refused (a field error) once any case
@@ -67,14 +79,14 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     sqlx::query(
         "INSERT INTO site_settings (id, plant_name, currency, hurdle_rate, tax_rate, depreciation_years,
                                     default_horizon_months, expert_multiplier, number_format, one_person_approval,
-                                    updated_at, updated_by)
-         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                    time_zone, updated_at, updated_by)
+         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          ON CONFLICT (id) DO UPDATE SET plant_name = excluded.plant_name, currency = excluded.currency,
              hurdle_rate = excluded.hurdle_rate, tax_rate = excluded.tax_rate,
              depreciation_years = excluded.depreciation_years,
              default_horizon_months = excluded.default_horizon_months,
              expert_multiplier = excluded.expert_multiplier, number_format = excluded.number_format,
-             one_person_approval = excluded.one_person_approval,
+             one_person_approval = excluded.one_person_approval, time_zone = excluded.time_zone,
              updated_at = excluded.updated_at, updated_by = excluded.updated_by",
     )
     .bind(&site.plant_name)
@@ -86,6 +98,7 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     .bind(site.expert_multiplier.to_string())
     .bind(site.number_format.as_str())
     .bind(i64::from(site.one_person_approval))
+    .bind(site.time_zone.as_str())
     .bind(at)
     .bind(actor)
     .execute(conn)

@@ -451,6 +451,45 @@ pub struct DriverInput {
     /// Yearly escalation of the unit value.
     #[serde(deserialize_with = "string_or_number")]
     pub escalation: String,
+    /// Expert time only: hours a year spent with the analytics; empty for a driver whose
+    /// quantities are given directly.
+    #[serde(deserialize_with = "string_or_number")]
+    pub hours_spent: String,
+    /// Expert time only: expert hours freed per hour spent with the analytics; empty takes the
+    /// site's multiplier.
+    #[serde(deserialize_with = "string_or_number")]
+    pub hours_multiplier: String,
+}
+
+/// An expert-time estimate by the rule of thumb of the trade (common practice, no published
+/// source): every hour spent with the analytics frees `multiplier` expert hours at most, so
+/// `hours_spent x multiplier` is an upper bound, taken as the driver's likely quantity.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct ExpertHours {
+    /// Hours a year spent with the analytics.
+    pub hours_spent: Decimal,
+    /// Expert hours freed per hour spent (the site's multiplier unless the driver says).
+    pub hours_multiplier: Decimal,
+}
+
+impl ExpertHours {
+    /// The expected expert hours freed a year: hours spent x multiplier, in `Decimal`.
+    pub fn expected(self) -> Decimal {
+        self.hours_spent * self.hours_multiplier
+    }
+}
+
+/// The largest expert-time multiplier accepted (the site's and a driver's).
+pub const MAX_EXPERT_MULTIPLIER: Decimal = Decimal::from_parts(100, 0, 0, false, 0);
+
+/// Read an expert-time multiplier: more than 0, at most [`MAX_EXPERT_MULTIPLIER`].
+pub fn parse_expert_multiplier(value: &str, f: NumberFormat) -> Result<Decimal, String> {
+    let m = f.read(value)?;
+    if m > Decimal::ZERO && m <= MAX_EXPERT_MULTIPLIER {
+        Ok(m)
+    } else {
+        Err(format!("more than 0 and at most {}, e.g. 3 expert hours freed per hour spent", MAX_EXPERT_MULTIPLIER))
+    }
 }
 
 /// A valid benefit driver, not yet stored.
@@ -472,11 +511,18 @@ pub struct NewBenefitDriver {
     pub unit_value: Decimal,
     /// Yearly escalation fraction.
     pub escalation: Decimal,
+    /// The two inputs of an expert-time driver estimated as hours spent x multiplier (its
+    /// likely quantity is their product); `None` for quantities given directly.
+    #[serde(flatten)]
+    pub expert_hours: Option<ExpertHours>,
 }
 
 impl NewBenefitDriver {
-    /// Validate a driver; quantities must satisfy 0 <= low <= likely <= high.
-    pub fn parse(input: &DriverInput, style: RateStyle) -> Result<Self, FieldErrors> {
+    /// Validate a driver; quantities must satisfy 0 <= low <= likely <= high. An expert-time
+    /// driver with `hours_spent` takes its likely quantity from [`ExpertHours::expected`]
+    /// (the multiplier defaults to `site_multiplier`), and an empty low or high quantity is
+    /// that product too.
+    pub fn parse(input: &DriverInput, style: RateStyle, site_multiplier: Decimal) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let label = e.take("label", required_text(&input.label, 120));
         let kind = e.take("kind", DriverKind::parse(&input.kind));
@@ -486,9 +532,34 @@ impl NewBenefitDriver {
             e.take("unit", required_text(&input.unit, 20))
         };
         let f = style.numbers();
-        let low = e.take("qty_low", f.read(&input.qty_low).and_then(bounded(MAX_QUANTITY, f)));
-        let likely = e.take("qty_likely", f.read(&input.qty_likely).and_then(bounded(MAX_QUANTITY, f)));
-        let high = e.take("qty_high", f.read(&input.qty_high).and_then(bounded(MAX_QUANTITY, f)));
+        let quantity = |v: &str| f.read(v).and_then(bounded(MAX_QUANTITY, f));
+        let expert = Self::parse_expert_hours(input, kind, site_multiplier, f, &mut e);
+        let (low, likely, high) = match expert {
+            Some(Some(x)) => {
+                let product = x.expected();
+                let given = |e: &mut FieldErrors, field: &str, v: &str| {
+                    if v.trim().is_empty() { Some(product) } else { e.take(field, quantity(v)) }
+                };
+                let likely = e.take("qty_likely", bounded(MAX_QUANTITY, f)(product));
+                if !input.qty_likely.trim().is_empty() && f.read(&input.qty_likely).ok() != Some(product) {
+                    e.push(
+                        "qty_likely",
+                        format!(
+                            "leave empty: the likely quantity is hours spent x multiplier ({})",
+                            f.write_quantity(product)
+                        ),
+                    );
+                }
+                (given(&mut e, "qty_low", &input.qty_low), likely, given(&mut e, "qty_high", &input.qty_high))
+            }
+            // Hours given but unreadable: the quantities wait for them.
+            Some(None) => (None, None, None),
+            None => (
+                e.take("qty_low", quantity(&input.qty_low)),
+                e.take("qty_likely", quantity(&input.qty_likely)),
+                e.take("qty_high", quantity(&input.qty_high)),
+            ),
+        };
         if let (Some(l), Some(m)) = (low, likely)
             && l > m
         {
@@ -511,8 +582,50 @@ impl NewBenefitDriver {
                 Some(qty_high),
                 Some(unit_value),
                 Some(escalation),
-            ) if e.is_empty() => Ok(Self { label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation }),
+            ) if e.is_empty() => Ok(Self {
+                label,
+                kind,
+                unit,
+                qty_low,
+                qty_likely,
+                qty_high,
+                unit_value,
+                escalation,
+                expert_hours: expert.flatten(),
+            }),
             _ => Err(e),
+        }
+    }
+
+    /// The expert-hours inputs: `None` when no hours are given (quantities given directly),
+    /// `Some(None)` when they are refused (errors pushed), `Some(Some(_))` when valid.
+    fn parse_expert_hours(
+        input: &DriverInput,
+        kind: Option<DriverKind>,
+        site_multiplier: Decimal,
+        f: NumberFormat,
+        e: &mut FieldErrors,
+    ) -> Option<Option<ExpertHours>> {
+        if input.hours_spent.trim().is_empty() {
+            if !input.hours_multiplier.trim().is_empty() {
+                e.push("hours_spent", "required with a multiplier: the hours a year spent with the analytics");
+                return Some(None);
+            }
+            return None;
+        }
+        if kind.is_some_and(|k| k != DriverKind::ExpertTime) {
+            e.push("hours_spent", "only for an expert time driver (kind expert_time)");
+            return Some(None);
+        }
+        let hours = e.take("hours_spent", f.read(&input.hours_spent).and_then(bounded(MAX_QUANTITY, f)));
+        let multiplier = if input.hours_multiplier.trim().is_empty() {
+            Some(site_multiplier)
+        } else {
+            e.take("hours_multiplier", parse_expert_multiplier(&input.hours_multiplier, f))
+        };
+        match (hours, multiplier) {
+            (Some(hours_spent), Some(hours_multiplier)) => Some(Some(ExpertHours { hours_spent, hours_multiplier })),
+            _ => Some(None),
         }
     }
 }
@@ -561,7 +674,8 @@ pub struct CaseSpec {
 impl CaseSpec {
     /// Validate header, every cost and every driver; field names carry their list position
     /// (`costs[1].amount`).
-    pub fn parse(input: &CaseSpecInput, style: RateStyle) -> Result<Self, FieldErrors> {
+    /// `site_multiplier` is the expert-time multiplier a driver without one takes.
+    pub fn parse(input: &CaseSpecInput, style: RateStyle, site_multiplier: Decimal) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let header = CaseHeader::parse(&input.header, style).map_err(|err| e.extend_prefixed("", err)).ok();
         let state = e.take("state", CaseState::parse(&input.state));
@@ -575,7 +689,7 @@ impl CaseSpec {
         }
         let mut drivers = Vec::with_capacity(input.drivers.len());
         for (i, d) in input.drivers.iter().enumerate() {
-            match NewBenefitDriver::parse(d, style) {
+            match NewBenefitDriver::parse(d, style, site_multiplier) {
                 Ok(d) => drivers.push(d),
                 Err(err) => e.extend_prefixed(&format!("drivers[{i}]."), err),
             }
@@ -668,6 +782,7 @@ fn optional_rate(value: &str, style: RateStyle) -> Result<Decimal, String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::domain::FieldError;
 
     #[test]
     fn months_add_across_years() {
@@ -688,9 +803,77 @@ mod tests {
             unit_value: "3".into(),
             ..Default::default()
         };
-        let err =
-            NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::DecimalPoint)).err().unwrap_or_default();
+        let err = NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::DecimalPoint), Decimal::from(3))
+            .err()
+            .unwrap_or_default();
         assert_eq!(err.get("qty_low"), Some("must not exceed the likely quantity"));
+    }
+
+    fn expert(hours: &str, multiplier: &str) -> DriverInput {
+        DriverInput {
+            label: "Analysis hours".into(),
+            kind: "expert_time".into(),
+            hours_spent: hours.into(),
+            hours_multiplier: multiplier.into(),
+            unit_value: "68".into(),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn expert_time_is_hours_spent_times_the_multiplier() -> Result<(), FieldErrors> {
+        // Common practice (a rule of thumb of the trade, an upper bound): 40 h spent with the
+        // analytics x 3 = 120 expert hours freed a year; 12.5 h x 2.4 = 30 h (by hand).
+        let point = RateStyle::Percent(NumberFormat::DecimalPoint);
+        let d = NewBenefitDriver::parse(&expert("40", ""), point, Decimal::from(3))?;
+        assert_eq!((d.qty_low, d.qty_likely, d.qty_high), (Decimal::from(120), Decimal::from(120), Decimal::from(120)));
+        assert_eq!(
+            d.expert_hours,
+            Some(ExpertHours { hours_spent: Decimal::from(40), hours_multiplier: Decimal::from(3) })
+        );
+        assert_eq!(d.unit, "h");
+        let comma = RateStyle::Percent(NumberFormat::DecimalComma);
+        let mut input = expert("12,5", "2,4");
+        input.qty_low = "10".into();
+        input.qty_high = "45".into();
+        let d = NewBenefitDriver::parse(&input, comma, Decimal::from(3))?;
+        assert_eq!(d.qty_likely.to_string(), "30.00");
+        assert_eq!((d.qty_low, d.qty_high), (Decimal::from(10), Decimal::from(45)));
+        // Quantities given directly (positive control for the old drivers): no hours kept.
+        let direct =
+            DriverInput { qty_low: "1".into(), qty_likely: "2".into(), qty_high: "3".into(), ..expert("", "") };
+        assert_eq!(NewBenefitDriver::parse(&direct, point, Decimal::from(3))?.expert_hours, None);
+        Ok(())
+    }
+
+    #[test]
+    fn expert_hours_refusals_name_their_field() {
+        let point = RateStyle::Percent(NumberFormat::DecimalPoint);
+        let refused =
+            |input: DriverInput| NewBenefitDriver::parse(&input, point, Decimal::from(3)).err().unwrap_or_default().0;
+        let one = |field: &str, message: &str| vec![FieldError { field: field.into(), message: message.into() }];
+        assert_eq!(
+            refused(expert("40", "0")),
+            one("hours_multiplier", "more than 0 and at most 100, e.g. 3 expert hours freed per hour spent")
+        );
+        assert_eq!(
+            refused(expert("", "2")),
+            one("hours_spent", "required with a multiplier: the hours a year spent with the analytics")
+        );
+        assert_eq!(
+            refused(DriverInput { kind: "scrap".into(), ..expert("40", "") }),
+            one("hours_spent", "only for an expert time driver (kind expert_time)")
+        );
+        assert_eq!(
+            refused(DriverInput { qty_likely: "100".into(), ..expert("40", "") }),
+            one("qty_likely", "leave empty: the likely quantity is hours spent x multiplier (120)")
+        );
+        // The product sent back as the likely quantity (as the API answers it) is accepted.
+        assert_eq!(refused(DriverInput { qty_likely: "120".into(), ..expert("40", "") }), vec![]);
+        assert_eq!(
+            refused(DriverInput { qty_high: "100".into(), ..expert("40", "") }),
+            one("qty_high", "must be at least the likely quantity")
+        );
     }
 
     #[test]
@@ -725,7 +908,9 @@ mod tests {
             }],
             ..Default::default()
         };
-        let err = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain)).err().unwrap_or_default();
+        let err = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain), Decimal::from(3))
+            .err()
+            .unwrap_or_default();
         assert_eq!(err.0.len(), 1);
         assert_eq!(err.0[0].field, "costs[0].amount");
     }

@@ -211,6 +211,7 @@ mod tests {
             qty_high: Decimal::from(likely * 2),
             unit_value: Decimal::ONE,
             escalation: Decimal::ZERO,
+            expert_hours: None,
         };
         InForce {
             from: m(from),
@@ -252,6 +253,7 @@ mod tests {
             expert_multiplier: Decimal::ONE,
             number_format: crate::domain::NumberFormat::default(),
             one_person_approval: false,
+            time_zone: crate::domain::PlantZone::default(),
         };
         let e = h.expected(&site).unwrap();
         assert_eq!((e.start, e.net.len()), (m("2025-01"), 12));

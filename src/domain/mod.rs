@@ -5,6 +5,7 @@
 //! field. Nothing in here knows about HTTP or SQL.
 
 mod approval;
+mod audit;
 mod case;
 pub mod chain;
 mod csv_cell;
@@ -13,6 +14,7 @@ mod history;
 mod ids;
 mod ledger;
 pub mod ledger_csv;
+mod local_time;
 mod money;
 mod numbers;
 pub mod pack;
@@ -26,9 +28,11 @@ mod user;
 mod zone;
 
 pub use approval::{ApprovalKind, ApprovalSettings, Review, parse_comment, parse_return_comment};
+pub use audit::{ACTIONS, AuditFacts, EntryFacts, audit_sentence};
 pub use case::{
     BenefitDriver, CaseHeader, CaseHeaderInput, CaseSpec, CaseSpecInput, CaseState, CostCategory, CostInput, CostItem,
-    CostKind, DriverInput, DriverKind, Month, NewBenefitDriver, NewCostItem, RateStyle, finance_input,
+    CostKind, DriverInput, DriverKind, ExpertHours, MAX_EXPERT_MULTIPLIER, Month, NewBenefitDriver, NewCostItem,
+    RateStyle, finance_input, parse_expert_multiplier,
 };
 pub use csv_cell::{FORMULA_STARTS, csv_safe, csv_unquote};
 pub use figures::{CaseFigures, View, case_figures};
@@ -38,6 +42,7 @@ pub use ledger::{
     BaselineCost, BaselineDriver, Booking, BookingBaseline, BookingInput, EntryKind, IDEMPOTENCY_KEY_MAX, LedgerEntry,
     LedgerItem, Measurement, Method, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key,
 };
+pub use local_time::{LocalTime, PlantZone};
 pub use money::{Money, Percent, money, pct, quantity};
 pub use numbers::{NumberFormat, read, read_count, read_percent, read_whole};
 pub use portfolio::{

@@ -62,19 +62,6 @@ pub fn quarter_of(at: time::OffsetDateTime) -> String {
     format!("{}-Q{}", at.year(), (u8::from(at.month()) - 1) / 3 + 1)
 }
 
-/// A stored timestamp as a pack shows it: `2026-12-03 11:40 UTC` (to the minute), or the text
-/// as stored when it is not RFC 3339. The one place to swap for the plant's local time.
-pub fn made_at_text(rfc3339: &str) -> String {
-    use time::format_description::well_known::Rfc3339;
-    match time::OffsetDateTime::parse(rfc3339, &Rfc3339) {
-        Ok(t) => {
-            let t = t.to_offset(time::UtcOffset::UTC);
-            format!("{:04}-{:02}-{:02} {:02}:{:02} UTC", t.year(), u8::from(t.month()), t.day(), t.hour(), t.minute())
-        }
-        Err(_) => rfc3339.to_string(),
-    }
-}
-
 /// The database state a pack was made from: the ledger chain's tip and length, and the
 /// change generation (`db::generation`, the sum of the change counters).
 #[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
@@ -240,13 +227,6 @@ mod tests {
         assert_eq!(quarter_of(datetime!(2026-03-31 23:59 UTC)), "2026-Q1");
         assert_eq!(quarter_of(datetime!(2026-04-01 00:00 UTC)), "2026-Q2");
         assert_eq!(quarter_of(datetime!(2026-12-03 11:40 UTC)), "2026-Q4");
-    }
-
-    #[test]
-    fn made_at_shows_the_minute_in_utc() {
-        assert_eq!(made_at_text("2026-12-02T13:56:45.932483589Z"), "2026-12-02 13:56 UTC");
-        assert_eq!(made_at_text("2026-12-02T14:56:45+01:00"), "2026-12-02 13:56 UTC");
-        assert_eq!(made_at_text("yesterday"), "yesterday");
     }
 
     #[test]

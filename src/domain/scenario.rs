@@ -6,6 +6,7 @@ use super::{
     Booking, BookingInput, CaseSpec, CaseSpecInput, EntryKind, FieldErrors, NewZone, NumberFormat, RateStyle,
     SCORE_RANGE, SiteSettings, SiteSettingsInput, ZoneInput,
 };
+use rust_decimal::Decimal;
 use serde::Deserialize;
 use std::collections::BTreeMap;
 
@@ -86,6 +87,13 @@ impl Scenario {
     /// Numbers given as strings are read in the format the file's `site.number_format` declares
     /// (`stored`, the database's, when the file has no `site`); JSON numbers are plain.
     pub fn parse(text: &str, stored: NumberFormat) -> Result<Self, FieldErrors> {
+        Self::parse_with(text, stored, SiteSettings::DEFAULT_EXPERT_MULTIPLIER)
+    }
+
+    /// [`parse`](Self::parse) on a database whose expert-time multiplier is
+    /// `stored_multiplier`: an expert-time driver without a multiplier takes the file's
+    /// `site.expert_multiplier`, else this one.
+    pub fn parse_with(text: &str, stored: NumberFormat, stored_multiplier: Decimal) -> Result<Self, FieldErrors> {
         let mut e = FieldErrors::default();
         let at = |err: serde_json::Error| {
             let mut e = FieldErrors::default();
@@ -134,7 +142,8 @@ impl Scenario {
             }
             let mut cases = Vec::with_capacity(z.cases.len());
             for (j, c) in z.cases.iter().enumerate() {
-                match CaseSpec::parse(c, RateStyle::Fraction(numbers)) {
+                let multiplier = site.as_ref().map_or(stored_multiplier, |s| s.expert_multiplier);
+                match CaseSpec::parse(c, RateStyle::Fraction(numbers), multiplier) {
                     Ok(c) => cases.push(c),
                     Err(err) => e.extend_prefixed(&format!("zones[{i}].cases[{j}]."), err),
                 }

@@ -1,7 +1,7 @@
 //! Site settings: currency, hurdle rate, tax view and defaults.
 
 use super::de::string_or_number;
-use super::{FieldErrors, NumberFormat, read_count, required_text};
+use super::{FieldErrors, NumberFormat, PlantZone, read_count, required_text};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 
@@ -20,12 +20,20 @@ pub struct SiteSettings {
     pub depreciation_years: Option<u32>,
     /// Horizon proposed for a new case.
     pub default_horizon_months: u32,
-    /// Multiplier from analytics usage hours to saved expert hours (rule of thumb, see DESIGN).
+    /// Multiplier from hours spent with the analytics to expert hours freed (a rule of thumb of
+    /// the trade, an upper bound): the default of an expert-time driver's `hours_multiplier`.
     pub expert_multiplier: Decimal,
     /// How forms, CSV and scenario files write numbers, and how pages and exports show them.
     pub number_format: NumberFormat,
     /// Whether one person may submit and approve a version (a small plant); off by default.
     pub one_person_approval: bool,
+    /// The plant's time zone (IANA name): pages show timestamps in its local time.
+    #[serde(serialize_with = "zone_name")]
+    pub time_zone: PlantZone,
+}
+
+fn zone_name<S: serde::Serializer>(zone: &PlantZone, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(zone.as_str())
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
@@ -56,9 +64,15 @@ pub struct SiteSettingsInput {
     /// One-person approval allowed; absent for no.
     #[serde(deserialize_with = "super::de::flexible_bool")]
     pub one_person_approval: bool,
+    /// IANA time zone name; empty for UTC.
+    pub time_zone: String,
 }
 
 impl SiteSettings {
+    /// The expert-time multiplier of a site that names none (common practice: a rule of thumb
+    /// of the trade, an upper bound, no published source).
+    pub const DEFAULT_EXPERT_MULTIPLIER: Decimal = Decimal::from_parts(3, 0, 0, false, 0);
+
     /// Validate every field, reading numbers in `numbers` (a scenario file's are in the format
     /// it declares, the settings form's in the format the page showed).
     pub fn parse(input: &SiteSettingsInput, numbers: NumberFormat) -> Result<Self, FieldErrors> {
@@ -67,6 +81,11 @@ impl SiteSettings {
             Some(NumberFormat::default())
         } else {
             e.take("number_format", NumberFormat::parse(&input.number_format))
+        };
+        let time_zone = if input.time_zone.trim().is_empty() {
+            Some(PlantZone::default())
+        } else {
+            e.take("time_zone", PlantZone::parse(&input.time_zone))
         };
         let f = numbers;
         let plant_name = e.take("plant_name", required_text(&input.plant_name, 120));
@@ -88,9 +107,9 @@ impl SiteSettings {
             e.take("default_horizon_months", read_count(&input.default_horizon_months, 1, 240))
         };
         let expert_multiplier = if input.expert_multiplier.trim().is_empty() {
-            Some(Decimal::from(3))
+            Some(Self::DEFAULT_EXPERT_MULTIPLIER)
         } else {
-            e.take("expert_multiplier", f.read(&input.expert_multiplier))
+            e.take("expert_multiplier", super::parse_expert_multiplier(&input.expert_multiplier, f))
         };
         match (
             plant_name,
@@ -101,6 +120,7 @@ impl SiteSettings {
             default_horizon_months,
             expert_multiplier,
             number_format,
+            time_zone,
         ) {
             (
                 Some(plant_name),
@@ -111,6 +131,7 @@ impl SiteSettings {
                 Some(default_horizon_months),
                 Some(expert_multiplier),
                 Some(number_format),
+                Some(time_zone),
             ) if e.is_empty() => Ok(Self {
                 plant_name,
                 currency,
@@ -121,6 +142,7 @@ impl SiteSettings {
                 expert_multiplier,
                 number_format,
                 one_person_approval: input.one_person_approval,
+                time_zone,
             }),
             _ => Err(e),
         }
@@ -139,6 +161,7 @@ impl SiteSettings {
             expert_multiplier: self.expert_multiplier.to_string(),
             number_format: self.number_format.as_str().to_string(),
             one_person_approval: self.one_person_approval,
+            time_zone: self.time_zone.as_str().to_string(),
         }
     }
 

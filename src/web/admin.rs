@@ -1,6 +1,7 @@
 //! Admin pages: users and roles, API tokens, site settings and the audit trail.
 
 use super::auth::{CurrentUser, Nav, Principal};
+use super::problems::Problems;
 use super::{AppError, AppState, FormBody};
 use crate::app::{self, users::Account};
 use crate::auth::Role;
@@ -24,20 +25,18 @@ struct AdminPage {
     token_days: u32,
     site: SiteSettings,
     roles: [Role; 4],
-    errors: FieldErrors,
-    notice: Option<String>,
+    /// What a refused form said, beside it and in the summary at the top.
+    problems: Problems,
     new_token: Option<String>,
     criteria: Vec<Criterion>,
     formats: [NumberFormat; 2],
 }
 
-/// A token as the list shows it: expiry and last use to the minute (UTC), and whether it
-/// has expired by the clock.
+/// A token as the list shows it: expiry and last use (in the plant's local time, through the
+/// `stamp` macro), and whether it has expired by the clock.
 struct TokenLine {
     t: TokenRow,
-    expires: String,
     expired: bool,
-    last_used: String,
     /// Made by someone other than its owner: entries it books say so.
     on_behalf: bool,
 }
@@ -45,27 +44,38 @@ struct TokenLine {
 impl TokenLine {
     fn new(t: TokenRow, now: time::OffsetDateTime) -> Self {
         use time::format_description::well_known::Rfc3339;
-        let parse = |s: &Option<String>| s.as_deref().and_then(|s| time::OffsetDateTime::parse(s, &Rfc3339).ok());
-        let minute = time::macros::format_description!("[year]-[month]-[day] [hour]:[minute] UTC");
-        let show = |at: Option<time::OffsetDateTime>, none: &str| {
-            at.and_then(|at| at.to_offset(time::UtcOffset::UTC).format(&minute).ok()).unwrap_or_else(|| none.into())
-        };
-        let expires_at = parse(&t.expires_at);
+        let expires_at = t.expires_at.as_deref().and_then(|s| time::OffsetDateTime::parse(s, &Rfc3339).ok());
         Self {
-            expires: show(expires_at, "unknown (refused)"),
             expired: expires_at.is_none_or(|at| now >= at),
-            last_used: show(parse(&t.last_used_at), "never"),
             on_behalf: crate::domain::issued_on_behalf(&t.created_by, &t.user_name).is_some(),
             t,
         }
     }
 }
 
+/// The admin page's forms: anchor id and title, for [`Problems`].
+const ADD_USER: (&str, &str) = ("add-user-form", "Add a user");
+const ADD_TOKEN: (&str, &str) = ("add-token-form", "Create a token");
+const SETTINGS: (&str, &str) = ("settings-form", "Site settings");
+const WEIGHTS: (&str, &str) = ("weights-form", "Readiness weights");
+
+/// The problems of the form `(anchor, title)`.
+fn at(form: (&str, &str), errors: FieldErrors, notice: Option<String>) -> Problems {
+    Problems::of(form.0, form.1, errors, notice)
+}
+
+/// The form of one user's row: role and access, or a new password.
+fn user_form(id: i64, password: bool) -> (String, String) {
+    match password {
+        false => (format!("user-{id}-form"), format!("Role and access of user {id}")),
+        true => (format!("password-{id}-form"), format!("New password of user {id}")),
+    }
+}
+
 async fn admin_page(
     state: &AppState,
     nav: Nav,
-    errors: FieldErrors,
-    notice: Option<String>,
+    problems: Problems,
     new_token: Option<String>,
 ) -> Result<Response, AppError> {
     let page = AdminPage {
@@ -78,19 +88,24 @@ async fn admin_page(
         token_days: crate::domain::TOKEN_DAYS_DEFAULT,
         site: db::get_site(&state.pool).await?,
         roles: Role::ALL,
-        errors,
-        notice,
+        problems,
         new_token,
         criteria: db::readiness::criteria(&state.pool).await?,
         formats: NumberFormat::SITE,
     };
-    let status = if page.errors.is_empty() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
+    let status = if !page.problems.all_errors().is_empty() {
+        StatusCode::UNPROCESSABLE_ENTITY
+    } else if page.problems.has_notice() {
+        StatusCode::CONFLICT
+    } else {
+        StatusCode::OK
+    };
     Ok((status, Html(page.render()?)).into_response())
 }
 
 /// GET /admin
 pub async fn page(State(state): State<AppState>, CurrentUser(me): CurrentUser) -> Result<Response, AppError> {
-    admin_page(&state, Nav::from(&me), FieldErrors::default(), None, None).await
+    admin_page(&state, Nav::from(&me), Problems::default(), None).await
 }
 
 /// The add-user form.
@@ -102,13 +117,13 @@ pub struct AddUserForm {
     password: String,
 }
 
-/// A refused action on the admin page: field errors and conflicts show on the page (422),
-/// anything else is the error page.
-async fn refused(state: &AppState, me: &Principal, e: app::Error) -> Result<Response, AppError> {
+/// A refused action on the admin page: field errors (422) and conflicts (409) show beside the
+/// form `(anchor, title)` and in the summary; anything else is the error page.
+async fn refused(state: &AppState, me: &Principal, form: (&str, &str), e: app::Error) -> Result<Response, AppError> {
     match e {
-        app::Error::Invalid(fields) => admin_page(state, Nav::from(me), fields, None, None).await,
+        app::Error::Invalid(fields) => admin_page(state, Nav::from(me), at(form, fields, None), None).await,
         app::Error::Conflict(msg) => {
-            admin_page(state, Nav::from(me), FieldErrors::one("user", msg.clone()), Some(msg), None).await
+            admin_page(state, Nav::from(me), at(form, FieldErrors::default(), Some(msg)), None).await
         }
         other => Err(other.into()),
     }
@@ -122,11 +137,13 @@ pub async fn add_user(
 ) -> Result<Response, AppError> {
     let role = match Role::parse(&form.role) {
         Ok(role) => role,
-        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
+        Err(msg) => {
+            return admin_page(&state, Nav::from(&me), at(ADD_USER, FieldErrors::one("role", msg), None), None).await;
+        }
     };
     match app::users::add_user(&state.pool, me.name(), &form.name, role, &form.password, state.clock.now()).await {
         Ok(_) => Ok(Redirect::to("/admin").into_response()),
-        Err(e) => refused(&state, &me, e).await,
+        Err(e) => refused(&state, &me, ADD_USER, e).await,
     }
 }
 
@@ -146,9 +163,13 @@ pub async fn update_user(
     Path(id): Path<i64>,
     FormBody(form): FormBody<UpdateUserForm>,
 ) -> Result<Response, AppError> {
+    let (anchor, title) = user_form(id, false);
     let role = match Role::parse(&form.role) {
         Ok(role) => role,
-        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("role", msg), None, None).await,
+        Err(msg) => {
+            let problems = at((&anchor, &title), FieldErrors::one("role", msg), None);
+            return admin_page(&state, Nav::from(&me), problems, None).await;
+        }
     };
     match app::users::update_user(
         &state.pool,
@@ -162,10 +183,7 @@ pub async fn update_user(
     .await
     {
         Ok(()) => Ok(Redirect::to("/admin").into_response()),
-        Err(app::Error::Conflict(msg)) => {
-            admin_page(&state, Nav::from(&me), FieldErrors::default(), Some(msg), None).await
-        }
-        Err(e) => refused(&state, &me, e).await,
+        Err(e) => refused(&state, &me, (&anchor, &title), e).await,
     }
 }
 
@@ -183,11 +201,12 @@ pub async fn reset_password(
     Path(id): Path<i64>,
     FormBody(form): FormBody<PasswordForm>,
 ) -> Result<Response, AppError> {
+    let (anchor, title) = user_form(id, true);
     match app::users::set_password(&state.pool, me.name(), Account::Id(UserId(id)), &form.password, state.clock.now())
         .await
     {
         Ok(_) => Ok(Redirect::to("/admin").into_response()),
-        Err(e) => refused(&state, &me, e).await,
+        Err(e) => refused(&state, &me, (&anchor, &title), e).await,
     }
 }
 
@@ -209,12 +228,14 @@ pub async fn create_token(
 ) -> Result<Response, AppError> {
     let days = match parse_token_days(&form.days) {
         Ok(days) => days,
-        Err(msg) => return admin_page(&state, Nav::from(&me), FieldErrors::one("days", msg), None, None).await,
+        Err(msg) => {
+            return admin_page(&state, Nav::from(&me), at(ADD_TOKEN, FieldErrors::one("days", msg), None), None).await;
+        }
     };
     let now = state.clock.now();
     match app::users::issue_token(&state.pool, me.name(), form.user.trim(), &form.label, days, now).await {
-        Ok((_, token)) => admin_page(&state, Nav::from(&me), FieldErrors::default(), None, Some(token)).await,
-        Err(e) => refused(&state, &me, e).await,
+        Ok((_, token)) => admin_page(&state, Nav::from(&me), Problems::default(), Some(token)).await,
+        Err(e) => refused(&state, &me, ADD_TOKEN, e).await,
     }
 }
 
@@ -242,6 +263,7 @@ pub struct SettingsForm {
     number_format: String,
     #[serde(deserialize_with = "crate::domain::de::flexible_bool")]
     one_person_approval: bool,
+    time_zone: String,
 }
 
 /// POST /admin/settings: numbers are read in the format the form was shown in (the current one).
@@ -268,22 +290,25 @@ pub async fn update_settings(
         expert_multiplier: f.expert_multiplier,
         number_format: f.number_format,
         one_person_approval: f.one_person_approval,
+        time_zone: f.time_zone,
     };
     let site = match SiteSettings::parse(&input, shown) {
         Ok(site) if e.is_empty() => site,
-        Ok(_) => return admin_page(&state, Nav::from(&me), e, None, None).await,
+        Ok(_) => return admin_page(&state, Nav::from(&me), at(SETTINGS, e, None), None).await,
         Err(more) => {
             for x in more.0 {
                 if e.get(&x.field).is_none() {
                     e.push(x.field, x.message);
                 }
             }
-            return admin_page(&state, Nav::from(&me), e, None, None).await;
+            return admin_page(&state, Nav::from(&me), at(SETTINGS, e, None), None).await;
         }
     };
     match crate::app::site::change_settings(&state.pool, me.name(), &site, state.clock.now()).await {
         Ok(()) => Ok(Redirect::to("/admin").into_response()),
-        Err(crate::app::Error::Invalid(fields)) => admin_page(&state, Nav::from(&me), fields, None, None).await,
+        Err(e @ (crate::app::Error::Invalid(_) | crate::app::Error::Conflict(_))) => {
+            refused(&state, &me, SETTINGS, e).await
+        }
         Err(other) => Err(other.into()),
     }
 }
@@ -297,13 +322,13 @@ pub async fn update_weights(
     let criteria = db::readiness::criteria(&state.pool).await?;
     let weights = match parse_weights(&criteria, &form) {
         Ok(w) => w,
-        Err(e) => return admin_page(&state, Nav::from(&me), e, None, None).await,
+        Err(e) => return admin_page(&state, Nav::from(&me), at(WEIGHTS, e, None), None).await,
     };
-    let at = db::timestamp(state.clock.now());
+    let stamp = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
-    db::readiness::set_weights(&mut tx, &weights, me.name(), &at).await?;
+    db::readiness::set_weights(&mut tx, &weights, me.name(), &stamp).await?;
     let detail: Vec<String> = criteria.iter().zip(&weights).map(|(c, (_, w))| format!("{}={w}", c.key)).collect();
-    db::audit::record(&mut tx, &at, me.name(), "readiness.weights", "readiness", &detail.join(" ")).await?;
+    db::audit::record(&mut tx, &stamp, me.name(), "readiness.weights", "readiness", &detail.join(" ")).await?;
     tx.commit().await?;
     Ok(Redirect::to("/admin#readiness-weights").into_response())
 }

@@ -67,7 +67,8 @@ pub async fn create_case(
     ApiPath(zone_id): ApiPath<i64>,
     JsonBody(input): JsonBody<CaseSpecInput>,
 ) -> Result<impl IntoResponse, ApiError> {
-    let mut spec = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain))?;
+    let multiplier = db::get_site(&state.pool).await?.expert_multiplier;
+    let mut spec = CaseSpec::parse(&input, RateStyle::Fraction(NumberFormat::Plain), multiplier)?;
     spec.state = CaseState::Draft;
     let at = db::timestamp(state.clock.now());
     let mut tx = db::begin_write(&state.pool).await?;
@@ -292,6 +293,7 @@ fn site_json(site: &SiteSettings) -> Value {
         "expert_multiplier": site.expert_multiplier.to_string(),
         "one_person_approval": site.one_person_approval,
         "number_format": site.number_format.as_str(),
+        "time_zone": site.time_zone.as_str(),
     }})
 }
 
@@ -319,6 +321,7 @@ pub struct SitePatch {
     expert_multiplier: Option<String>,
     one_person_approval: Option<bool>,
     number_format: Option<String>,
+    time_zone: Option<String>,
 }
 
 /// A field that is present: its text (a number as written, `null` as empty).
@@ -342,6 +345,7 @@ impl SitePatch {
         set(&mut input.default_horizon_months, self.default_horizon_months);
         set(&mut input.expert_multiplier, self.expert_multiplier);
         set(&mut input.number_format, self.number_format);
+        set(&mut input.time_zone, self.time_zone);
         if let Some(v) = self.one_person_approval {
             input.one_person_approval = v;
         }

@@ -315,6 +315,11 @@ struct EditPage {
     cost_errors: FieldErrors,
     driver: DriverInput,
     driver_errors: FieldErrors,
+    /// The expert-time form (hours spent x multiplier): its values and errors.
+    expert: DriverInput,
+    expert_errors: FieldErrors,
+    /// Every refused form of the page, for the summary at the top and the box beside it.
+    problems: super::problems::Problems,
     categories: [CostCategory; 6],
     kinds: [DriverKind; 5],
     editable: bool,
@@ -359,6 +364,13 @@ async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Resul
         cost_errors: FieldErrors::default(),
         driver: DriverInput { kind: "scrap".into(), ..Default::default() },
         driver_errors: FieldErrors::default(),
+        expert: DriverInput {
+            kind: "expert_time".into(),
+            hours_multiplier: NumberFormat::current().write_quantity(site.expert_multiplier),
+            ..Default::default()
+        },
+        expert_errors: FieldErrors::default(),
+        problems: super::problems::Problems::default(),
         categories: CostCategory::ALL,
         kinds: DriverKind::ALL,
         editable,
@@ -372,14 +384,25 @@ async fn edit_page(state: &AppState, nav: Nav, id: i64, failed: Failed) -> Resul
     let status = match failed {
         Failed::Nothing => StatusCode::OK,
         Failed::Header(input, e) => {
+            page.problems = super::problems::Problems::of("case-form", "Case", e.clone(), None);
             (page.header, page.header_errors) = (input, e);
             StatusCode::UNPROCESSABLE_ENTITY
         }
         Failed::Cost(input, e) => {
+            page.problems = super::problems::Problems::of("add-cost-form", "Add a cost item", e.clone(), None);
             (page.cost, page.cost_errors) = (input, e);
             StatusCode::UNPROCESSABLE_ENTITY
         }
+        // The expert-time form always sends its hours or multiplier; the general form neither.
+        Failed::Driver(input, e)
+            if !(input.hours_spent.trim().is_empty() && input.hours_multiplier.trim().is_empty()) =>
+        {
+            page.problems = super::problems::Problems::of("add-expert-form", "Add expert time", e.clone(), None);
+            (page.expert, page.expert_errors) = (input, e);
+            StatusCode::UNPROCESSABLE_ENTITY
+        }
         Failed::Driver(input, e) => {
+            page.problems = super::problems::Problems::of("add-driver-form", "Add a benefit driver", e.clone(), None);
             (page.driver, page.driver_errors) = (input, e);
             StatusCode::UNPROCESSABLE_ENTITY
         }
@@ -472,7 +495,8 @@ pub async fn add_driver(
     Path(id): Path<i64>,
     FormBody(input): FormBody<DriverInput>,
 ) -> Result<Response, AppError> {
-    match NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::current())) {
+    let site = db::get_site(&state.pool).await?;
+    match NewBenefitDriver::parse(&input, RateStyle::Percent(NumberFormat::current()), site.expert_multiplier) {
         Ok(d) => {
             write_then_edit(&state, &user, id, "driver.add", async |conn, at| {
                 db::add_driver(conn, id, &d, user.name(), at).await.map(|n| format!("driver {n}: {}", d.label))
@@ -666,8 +690,10 @@ pub struct BaselineLine {
     pub never_in_force: bool,
     /// Who approved it and when (date).
     pub approved_by: String,
-    /// Approval date.
+    /// Approval date (UTC), as the ledger API gives it.
     pub approved_on: String,
+    /// The approval's stored timestamp, for the page (shown in the plant's local time).
+    pub approved_at: String,
     /// How: "second person", or the self-approval or scenario note.
     pub how: String,
     /// The approver's comment: why.
@@ -710,6 +736,7 @@ pub fn baseline_lines(history: &[CaseFull]) -> Vec<BaselineLine> {
                 never_in_force: next.is_some_and(|n| n <= froms[i]),
                 approved_by: r.approved_by.clone().unwrap_or_default(),
                 approved_on: r.approved_at.as_deref().map_or("", |a| a.get(..10).unwrap_or(a)).to_string(),
+                approved_at: r.approved_at.clone().unwrap_or_default(),
                 how: r.approval_note().unwrap_or_else(|| "four eyes: approved by a second person".into()),
                 comment: r.approve_comment.clone(),
             }

@@ -4,6 +4,7 @@
 
 use super::auth::{CurrentUser, Nav, Principal};
 use super::chart::PairChart;
+use super::problems::Problems;
 use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, FormBody, JsonBody, NoQuery};
 use crate::app;
 use crate::db::{self, CaseFull, ledger::Booked};
@@ -85,6 +86,8 @@ pub struct EntryRow {
     inputs: String,
     /// One-time token of its reversal form.
     token: String,
+    /// The anchor of its reversal form (`reverse-177`).
+    anchor: String,
 }
 
 #[derive(Template)]
@@ -100,9 +103,10 @@ struct LedgerPage {
     can_book: bool,
     figures: Option<Figures>,
     entries: Vec<EntryRow>,
-    form: BookingInput,
-    errors: FieldErrors,
-    notice: Option<String>,
+    /// The values of each booking form: those a refused form was sent with, else empty.
+    forms: BookForms,
+    /// What a refused form said, beside it and in the summary at the top.
+    problems: Problems,
     /// A form submitted twice: what its first submit booked.
     info: Option<String>,
     period_hint: String,
@@ -113,6 +117,53 @@ struct LedgerPage {
     import_token: String,
     /// Show the plausibility confirmation (after a refusal, or when already ticked).
     ask_confirm: bool,
+}
+
+/// The page's three booking forms, one per kind of booking, each with only the fields it needs
+/// (anchors `book-direct`, `book-adjusted`, `book-spending`).
+#[derive(Default)]
+pub struct BookForms {
+    direct: BookingInput,
+    adjusted: BookingInput,
+    spending: BookingInput,
+}
+
+/// The anchor and title of the form a booking was sent from: its kind and method say which.
+pub fn booking_form(input: &BookingInput) -> (&'static str, &'static str) {
+    match (input.kind.trim(), input.method.trim()) {
+        ("spending", _) => ("book-spending", "Book spending"),
+        (_, "normalized" | "volume_adjusted") => ("book-adjusted", "Book a saving adjusted to the period's volume"),
+        _ => ("book-direct", "Book a saving by direct measurement"),
+    }
+}
+
+impl BookForms {
+    /// Empty forms, but the one `input` was sent from keeps its values.
+    fn keeping(input: Option<BookingInput>) -> Self {
+        let mut forms = Self::default();
+        if let Some(input) = input {
+            match booking_form(&input).0 {
+                "book-spending" => forms.spending = input,
+                "book-adjusted" => forms.adjusted = input,
+                _ => forms.direct = input,
+            }
+        }
+        forms
+    }
+}
+
+/// The anchor and title of the import form.
+const IMPORT_FORM: (&str, &str) = ("import", "Import a month from CSV");
+
+/// The refusal of a reversal, beside the entry's reversal form: every message names the entry
+/// (`entry 177: ...`).
+fn reversal_problems(entry: i64, errors: FieldErrors, notice: Option<String>) -> Problems {
+    let named = |m: String| if m.starts_with(&format!("entry {entry} ")) { m } else { format!("entry {entry}: {m}") };
+    let mut e = FieldErrors::default();
+    for x in errors.0 {
+        e.push(x.field, named(x.message));
+    }
+    Problems::of(&format!("reverse-{entry}"), "Reversal", e, notice.map(named))
 }
 
 /// The realized figures of the page.
@@ -232,20 +283,42 @@ async fn page(
     state: &AppState,
     me: &Principal,
     zone_id: i64,
-    form: BookingInput,
+    problems: Problems,
+    sent: Option<BookingInput>,
+) -> Result<Response, AppError> {
+    page_with(state, me, zone_id, problems, sent, None).await
+}
+
+/// A refused booking: the page with the form it came from holding its values and errors.
+async fn refused_booking(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    input: BookingInput,
     errors: FieldErrors,
     notice: Option<String>,
 ) -> Result<Response, AppError> {
-    page_with(state, me, zone_id, form, errors, notice, None).await
+    let (anchor, title) = booking_form(&input);
+    page(state, me, zone_id, Problems::of(anchor, title, errors, notice), Some(input)).await
+}
+
+/// A refused import: the page with the errors beside the import form.
+async fn refused_import(
+    state: &AppState,
+    me: &Principal,
+    zone_id: i64,
+    errors: FieldErrors,
+    notice: Option<String>,
+) -> Result<Response, AppError> {
+    page(state, me, zone_id, Problems::of(IMPORT_FORM.0, IMPORT_FORM.1, errors, notice), None).await
 }
 
 async fn page_with(
     state: &AppState,
     me: &Principal,
     zone_id: i64,
-    form: BookingInput,
-    errors: FieldErrors,
-    notice: Option<String>,
+    problems: Problems,
+    sent: Option<BookingInput>,
     info: Option<String>,
 ) -> Result<Response, AppError> {
     let (site, zone, history, entries, view) = load(state, zone_id).await?;
@@ -259,12 +332,19 @@ async fn page_with(
                 }
                 _ => String::new(),
             };
-            EntryRow { item: item_name(&history, &e), amount: Money(e.amount), inputs, e, token: form_token() }
+            EntryRow {
+                item: item_name(&history, &e),
+                amount: Money(e.amount),
+                inputs,
+                anchor: format!("reverse-{}", e.id),
+                e,
+                token: form_token(),
+            }
         })
         .collect();
-    let status = if !errors.is_empty() {
+    let status = if !problems.all_errors().is_empty() {
         StatusCode::UNPROCESSABLE_ENTITY
-    } else if notice.is_some() {
+    } else if problems.has_notice() {
         StatusCode::CONFLICT
     } else {
         StatusCode::OK
@@ -285,15 +365,15 @@ async fn page_with(
         info,
         book_token: form_token(),
         import_token: form_token(),
-        ask_confirm: form.confirm_implausible || Plausibility::refused(&errors),
+        ask_confirm: sent.as_ref().is_some_and(|f| f.confirm_implausible)
+            || Plausibility::refused(&problems.all_errors()),
         site,
         zone,
         baseline,
         baselines,
         entries: rows,
-        form,
-        errors,
-        notice,
+        forms: BookForms::keeping(sent),
+        problems,
     };
     Ok((status, Html(page.render()?)).into_response())
 }
@@ -322,16 +402,7 @@ pub async fn show(
         };
         Some(format!("that form was already submitted: it booked {what} #{n}; nothing was booked again."))
     });
-    page_with(
-        &state,
-        &me,
-        id,
-        BookingInput { kind: "saving".into(), method: "direct".into(), ..Default::default() },
-        FieldErrors::default(),
-        None,
-        info,
-    )
-    .await
+    page_with(&state, &me, id, Problems::default(), None, info).await
 }
 
 /// POST /zones/{id}/ledger?form=TOKEN: book from the form.
@@ -344,12 +415,12 @@ pub async fn book(
 ) -> Result<Response, AppError> {
     let token = match q.token() {
         Ok(t) => t,
-        Err(AppError::Invalid(e)) => return page(&state, &me, id, input, e, None).await,
+        Err(AppError::Invalid(e)) => return refused_booking(&state, &me, id, input, e, None).await,
         Err(other) => return Err(other),
     };
     let booking = match Booking::parse(&input, NumberFormat::current()) {
         Ok(b) => b,
-        Err(e) => return page(&state, &me, id, input, e, None).await,
+        Err(e) => return refused_booking(&state, &me, id, input, e, None).await,
     };
     let now = state.clock.now();
     match app::ledger::book(&state.pool, who(&me), ZoneId(id), &booking, (today(&state), now), None, Some(token))
@@ -358,8 +429,10 @@ pub async fn book(
     {
         Ok(app::ledger::Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
         Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
-        Err(AppError::Invalid(e)) => page(&state, &me, id, input, e, None).await,
-        Err(AppError::Conflict(msg)) => page(&state, &me, id, input, FieldErrors::default(), Some(msg)).await,
+        Err(AppError::Invalid(e)) => refused_booking(&state, &me, id, input, e, None).await,
+        Err(AppError::Conflict(msg)) => {
+            refused_booking(&state, &me, id, input, FieldErrors::default(), Some(msg)).await
+        }
         Err(other) => Err(other),
     }
 }
@@ -392,9 +465,9 @@ pub async fn reverse(
         Ok(app::ledger::Once::Done(_)) => Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response()),
         Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
         Err(AppError::Conflict(msg)) => {
-            page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
+            page(&state, &me, id, reversal_problems(entry, FieldErrors::default(), Some(msg)), None).await
         }
-        Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
+        Err(AppError::Invalid(e)) => page(&state, &me, id, reversal_problems(entry, e, None), None).await,
         Err(other) => Err(other),
     }
 }
@@ -440,12 +513,11 @@ pub async fn import(
     }
     let token = match q.token() {
         Ok(t) => t,
-        Err(AppError::Invalid(e)) => return page(&state, &me, id, BookingInput::default(), e, None).await,
+        Err(AppError::Invalid(e)) => return refused_import(&state, &me, id, e, None).await,
         Err(other) => return Err(other),
     };
     let Some((name, bytes)) = file else {
-        return page(&state, &me, id, BookingInput::default(), FieldErrors::one("file", "choose a CSV file"), None)
-            .await;
+        return refused_import(&state, &me, id, FieldErrors::one("file", "choose a CSV file"), None).await;
     };
     match app::ledger::import(
         &state.pool,
@@ -463,10 +535,8 @@ pub async fn import(
             Ok(Redirect::to(&format!("/zones/{id}/ledger#entries")).into_response())
         }
         Ok(app::ledger::Once::Already(outcome)) => Ok(already(id, &outcome)),
-        Err(AppError::Invalid(e)) => page(&state, &me, id, BookingInput::default(), e, None).await,
-        Err(AppError::Conflict(msg)) => {
-            page(&state, &me, id, BookingInput::default(), FieldErrors::default(), Some(msg)).await
-        }
+        Err(AppError::Invalid(e)) => refused_import(&state, &me, id, e, None).await,
+        Err(AppError::Conflict(msg)) => refused_import(&state, &me, id, FieldErrors::default(), Some(msg)).await,
         Err(other) => Err(other),
     }
 }

@@ -14,6 +14,7 @@ mod metrics;
 mod packs;
 mod pages;
 mod portfolio;
+pub mod problems;
 mod uncertainty;
 mod zones;
 
@@ -366,8 +367,10 @@ pub fn answer_panics(router: Router) -> Router {
 }
 
 /// Answer a page or export with the site's number format as [`NumberFormat::current`], which
-/// `Display` of money and percentages and every form reader use. The API reads and writes plain
-/// decimals whatever the site's format, so its requests skip the lookup.
+/// `Display` of money and percentages and every form reader use, and the plant's time zone as
+/// [`crate::domain::PlantZone::current`], in which pages show timestamps. The API reads and
+/// writes plain decimals and stored UTC timestamps whatever the site's settings, so its
+/// requests skip the lookup.
 async fn site_numbers(
     axum::extract::State(state): axum::extract::State<AppState>,
     req: Request,
@@ -377,24 +380,23 @@ async fn site_numbers(
     if req.uri().path().starts_with("/api/") {
         return next.run(req).await;
     }
-    let numbers = match crate::db::number_format(&state.pool).await {
-        Ok(f) => f,
+    let (numbers, zone) = match crate::db::page_settings(&state.pool).await {
+        Ok(settings) => settings,
         Err(e) => {
             // Guessing a format could misread a figure by a factor of 1000; refuse instead.
             tracing::error!(error = ?e, "number format unreadable; answering 503");
             return numbers_unavailable().into_response();
         }
     };
-    numbers
-        .scope(async move {
-            // A GET form (the portfolio query) carries its shown format in the query string.
-            let shown = axum::extract::Query::<ShownFormat>::try_from_uri(req.uri()).ok();
-            match shown.map_or(Ok(()), |q| q.0.check()) {
-                Ok(()) => next.run(req).await,
-                Err(e) => e.into_response(),
-            }
-        })
-        .await
+    let answer = async move {
+        // A GET form (the portfolio query) carries its shown format in the query string.
+        let shown = axum::extract::Query::<ShownFormat>::try_from_uri(req.uri()).ok();
+        match shown.map_or(Ok(()), |q| q.0.check()) {
+            Ok(()) => next.run(req).await,
+            Err(e) => e.into_response(),
+        }
+    };
+    numbers.scope(zone.scope(answer)).await
 }
 
 /// The answer when the site's number format cannot be read: no figure can be read or written

@@ -11,7 +11,8 @@ use super::uncertainty::UncertaintyView;
 use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, FormBody, JsonBody, NoQuery};
 use crate::app::packs::{Making, Render, Rendered};
 use crate::db::{self, CaseFull};
-use crate::domain::pack::{Pack, PackKind, PackZone, Snapshot, changes_since, made_at_text};
+use crate::domain::LocalTime;
+use crate::domain::pack::{Pack, PackKind, PackZone, Snapshot, changes_since};
 use crate::domain::{
     CaseId, Money, NumberFormat, Percent, PortfolioParams, PortfolioQuery, PortfolioRow, Readiness, SiteSettings,
     Standing, Trials, Zone, build_portfolio, calibration_of, pct,
@@ -33,9 +34,9 @@ const STYLE: &str = concat!(include_str!("../../static/style.css"), include_str!
 const A4_PORTRAIT: &str = "@page { size: A4 portrait; margin: 12mm; }\n";
 const A4_LANDSCAPE: &str = "@page { size: A4 landscape; margin: 10mm; }\n";
 
-/// The timestamp of a pack as it shows it, and the exact value for its title attribute.
-fn when(rfc3339: &str) -> (String, String) {
-    (made_at_text(rfc3339), rfc3339.to_string())
+/// A timestamp as a pack shows it: the plant's local minute, the exact value in its title.
+fn when(stamp: &str) -> LocalTime {
+    LocalTime::of(stamp)
 }
 
 /// One input of the case with where its value comes from.
@@ -57,7 +58,7 @@ pub struct ReadinessRow {
 pub struct Step {
     step: &'static str,
     by: String,
-    on: (String, String),
+    on: LocalTime,
     comment: String,
 }
 
@@ -65,7 +66,7 @@ pub struct Step {
 #[template(path = "packs/case.html")]
 struct CasePack {
     style: String,
-    made_at: (String, String),
+    made_at: LocalTime,
     made_by: String,
     db_state: String,
     site: SiteSettings,
@@ -129,10 +130,10 @@ fn assumptions(full: &CaseFull, site: &SiteSettings, made_at: &str) -> Vec<Assum
         _ => (c.created_by.clone(), c.created_at.clone()),
     };
     let editors = if r.editors.is_empty() { by.clone() } else { r.editors.join(", ") };
-    let entered = format!("case v{} by {editors}; last edit {} by {by}", c.version, made_at_text(&at));
+    let entered = format!("case v{} by {editors}; last edit {} by {by}", c.version, LocalTime::of(&at).local);
     let settings = match (&c.frozen_settings, &r.approved_at) {
-        (Some(_), Some(at)) => format!("site settings frozen at approval ({})", made_at_text(at)),
-        _ => format!("site settings when the pack was made ({})", made_at_text(made_at)),
+        (Some(_), Some(at)) => format!("site settings frozen at approval ({})", LocalTime::of(at).local),
+        _ => format!("site settings when the pack was made ({})", LocalTime::of(made_at).local),
     };
     let row = |input: String, value: String, source: &str| Assumption { input, value, source: source.to_string() };
     let mut out = vec![
@@ -261,7 +262,7 @@ async fn render_case(state: &AppState, id: i64, made: Making, made_by: &str) -> 
                     label: c.label.clone(),
                     weight: c.weight,
                     score: given.map_or_else(|| "not scored".into(), |(s, _, _)| format!("{s} of 5")),
-                    rated: given.map_or_else(String::new, |(_, at, by)| format!("{} by {by}", made_at_text(at))),
+                    rated: given.map_or_else(String::new, |(_, at, by)| format!("{} by {by}", LocalTime::of(at).local)),
                 }
             })
             .collect();
@@ -357,7 +358,7 @@ pub struct ChoiceLines {
 #[template(path = "packs/portfolio.html")]
 struct PortfolioPack {
     style: String,
-    made_at: (String, String),
+    made_at: LocalTime,
     made_by: String,
     db_state: String,
     quarter: String,
@@ -369,7 +370,7 @@ struct PortfolioPack {
     rows: Vec<RankLine>,
     choice: Option<ChoiceLines>,
     realization: Vec<RealizationLine>,
-    previous: Option<(i64, (String, String))>,
+    previous: Option<(i64, LocalTime)>,
     changes: Vec<String>,
 }
 
@@ -595,7 +596,18 @@ impl Render for PortfolioRender<'_> {
 
 async fn make_case(state: &AppState, user: &str, id: i64) -> Result<i64, AppError> {
     let now = state.clock.now();
-    crate::app::packs::make_case_pack(&state.pool, user, now, CaseId(id), &CaseRender { state, id, user }).await
+    let render = CaseRender { state, id, user };
+    in_site_settings(state, crate::app::packs::make_case_pack(&state.pool, user, now, CaseId(id), &render)).await
+}
+
+/// A pack reads as the plant's pages do, whoever asked for it (a page or the API, whose
+/// requests run without the site's number format and time zone): run `work` inside them.
+async fn in_site_settings<T>(
+    state: &AppState,
+    work: impl std::future::Future<Output = Result<T, AppError>>,
+) -> Result<T, AppError> {
+    let (numbers, zone) = db::page_settings(&state.pool).await?;
+    numbers.scope(zone.scope(work)).await
 }
 
 async fn make_portfolio(state: &AppState, user: &str, q: &PortfolioQuery, f: NumberFormat) -> Result<i64, AppError> {
@@ -603,7 +615,7 @@ async fn make_portfolio(state: &AppState, user: &str, q: &PortfolioQuery, f: Num
     let now = state.clock.now();
     let quarter = crate::domain::pack::quarter_of(now);
     let render = PortfolioRender { state, params, quarter, user };
-    crate::app::packs::make_portfolio_pack(&state.pool, user, now, &render).await
+    in_site_settings(state, crate::app::packs::make_portfolio_pack(&state.pool, user, now, &render)).await
 }
 
 /// POST /cases/{id}/packs: make a case pack, then show it.
@@ -650,7 +662,7 @@ impl ListQuery {
 /// One pack of the list, formatted.
 pub struct ListLine {
     pack: Pack,
-    made_at: (String, String),
+    made_at: LocalTime,
     state: String,
 }
 

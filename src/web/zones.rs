@@ -29,6 +29,8 @@ struct ListPage {
     rows: Vec<ZoneRow>,
     form: ZoneInput,
     errors: FieldErrors,
+    /// The refused form, beside it and in the summary at the top.
+    problems: super::problems::Problems,
     /// The states a new zone may start in.
     statuses: [ZoneStatus; 2],
 }
@@ -46,7 +48,8 @@ async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErr
         };
         rows.push(ZoneRow { zone, latest });
     }
-    Ok(ListPage { nav, site, rows, form, errors, statuses: [ZoneStatus::Candidate, ZoneStatus::Shelved] })
+    let problems = super::problems::Problems::of("new-zone-form", "Add a zone", errors.clone(), None);
+    Ok(ListPage { nav, site, rows, form, errors, problems, statuses: [ZoneStatus::Candidate, ZoneStatus::Shelved] })
 }
 
 /// A taken zone code is the user's to fix beside the code field, a refused status move
@@ -109,13 +112,16 @@ struct DetailPage {
     readiness: Vec<ReadinessLine>,
     readiness_score: Option<Readiness>,
     readiness_errors: FieldErrors,
+    /// The refused form, beside it and in the summary at the top.
+    problems: super::problems::Problems,
 }
 
 /// One criterion on the zone page: its score and who gave it.
 pub struct ReadinessLine {
     criterion: Criterion,
     score: Option<u8>,
-    rated: String,
+    /// When and by whom it was scored (shown in the plant's time).
+    rated: Option<(String, String)>,
 }
 
 async fn detail_page(
@@ -168,14 +174,17 @@ async fn detail_with(
             let given = scores.get(&c.id);
             ReadinessLine {
                 score: given.map(|(s, _, _)| *s),
-                rated: given.map_or_else(String::new, |(_, at, by)| format!("{at} by {by}")),
+                rated: given.map(|(_, at, by)| (at.clone(), by.clone())),
                 criterion: c,
             }
         })
         .collect();
     let statuses = std::iter::once(zone.status).chain(zone.status.next().iter().copied()).collect();
     let baselines = super::cases::baseline_lines(&db::baseline_history(&state.pool, id).await?);
+    let problems = super::problems::Problems::of("zone-form", "Zone details", errors.clone(), None)
+        .and(super::problems::Problems::of("readiness-form", "Readiness scores", readiness_errors.clone(), None));
     Ok(DetailPage {
+        problems,
         nav,
         baselines,
         site,

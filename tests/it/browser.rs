@@ -257,10 +257,10 @@ async fn controller_books_imports_and_reverses() {
     let demo_rows = c.find_all(Locator::Css("#ledger tbody tr")).await.unwrap().len();
 
     // A direct measurement by form: the first driver is selected by default.
-    fill(c, "period", "2025-08").await;
-    fill(c, "quantity", "150").await;
-    fill(c, "evidence", "scrap count from the quality report").await;
-    click_button(c, "Book entry").await;
+    fill(c, "direct-period", "2025-08").await;
+    fill(c, "direct-quantity", "150").await;
+    fill(c, "direct-evidence", "scrap count from the quality report").await;
+    click_button(c, "Book direct saving").await;
     let booked: i64 = sqlx::query_scalar("SELECT MAX(id) FROM ledger_entries WHERE zone_id = ?")
         .bind(zone)
         .fetch_one(&t.pool)
@@ -365,10 +365,10 @@ async fn controller_books_in_decimal_comma() {
 
     sign_in(c, &base, "t-controller").await;
     c.goto(&format!("{base}/zones/{}/ledger", z.id)).await.unwrap();
-    fill(c, "period", "2025-03").await;
-    fill(c, "quantity", "1.250,75").await;
-    fill(c, "evidence", "sub-meter M3").await;
-    click_button(c, "Book entry").await;
+    fill(c, "direct-period", "2025-03").await;
+    fill(c, "direct-quantity", "1.250,75").await;
+    fill(c, "direct-evidence", "sub-meter M3").await;
+    click_button(c, "Book direct saving").await;
     assert!(c.find(Locator::XPath("//table[@id='ledger']//td[normalize-space()='1.250,75']")).await.is_ok());
     let measured = c.find(Locator::Id("savings-measured")).await.unwrap().text().await.unwrap();
     assert_eq!(measured.trim(), "250,15");
@@ -418,10 +418,10 @@ async fn lead_prints_a_decision_pack_that_a_booking_leaves_unchanged() {
     sign_in(c, &base, "t-controller").await;
     click_and_wait(c, Locator::LinkText("PRESS-2")).await;
     click_and_wait(c, Locator::LinkText("Measured savings and spending (ledger)")).await;
-    fill(c, "period", "2025-08").await;
-    fill(c, "quantity", "900").await;
-    fill(c, "evidence", "scrap count from the quality report").await;
-    click_button(c, "Book entry").await;
+    fill(c, "direct-period", "2025-08").await;
+    fill(c, "direct-quantity", "900").await;
+    fill(c, "direct-evidence", "scrap count from the quality report").await;
+    click_button(c, "Book direct saving").await;
     let booked: i64 = sqlx::query_scalar(
         "SELECT COUNT(*) FROM ledger_entries WHERE evidence = 'scrap count from the quality report'",
     )

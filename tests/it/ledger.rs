@@ -673,13 +673,15 @@ async fn an_implausible_booking_needs_an_explicit_confirmation() {
 
     // The form: the first refusal shows the confirmation checkbox; ticked, it books.
     let page = t.get(&format!("/zones/{}/ledger", z.id)).await;
-    assert!(!page.text.contains("id=\"confirm_implausible\""), "no checkbox before a refusal");
+    assert!(!page.text.contains("name=\"confirm_implausible\""), "no checkbox before a refusal");
     let action = format!("/zones/{}/ledger?form=", z.id);
     let form =
         format!("kind=saving&method=direct&item={}&period=2025-05&quantity=99999999999&evidence=meter", z.energy);
     let a = t.post_form(&format!("{action}{}", token_in(&page.text, &action)), &form).await;
     assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
-    assert!(a.text.contains("id=\"confirm_implausible\"") && a.text.contains("208,333.33 kWh"), "{}", a.text);
+    // Beside the direct form that was refused, and only there.
+    assert!(a.text.contains("id=\"direct-confirm\"") && a.text.contains("208,333.33 kWh"), "{}", a.text);
+    assert_eq!(a.text.matches("name=\"confirm_implausible\"").count(), 1);
     let again = format!("{action}{}", token_in(&a.text, &action));
     let a = t.post_form(&again, &format!("{form}&confirm_implausible=on")).await;
     assert_eq!(a.status, StatusCode::SEE_OTHER, "{}", a.text);
@@ -891,7 +893,14 @@ async fn a_csv_file_is_the_same_file_whatever_its_line_ends_spaces_or_column_ord
     for (what, copy) in [("CRLF", crlf.as_str()), ("trailing spaces", spaces.as_str()), ("reordered", reordered)] {
         let a = import_with(&t, z.id, &crate::helpers::form_token(), copy, false).await;
         assert_eq!(a.status, StatusCode::CONFLICT, "{what}");
-        assert!(a.text.contains(&format!("Not booked: {}", message.replace('"', "&#34;"))), "{what}: {}", a.text);
+        // Beside the import form, and in the summary at the top that links to it.
+        let shown = message.replace('"', "&#34;");
+        assert!(a.text.contains(&format!("<li>{shown}</li>")), "{what}: {}", a.text);
+        assert!(
+            a.text.contains(&format!("<a href=\"#import-problems\">Import a month from CSV: {shown}</a>")),
+            "{what}: {}",
+            a.text
+        );
         assert_eq!(count().await, 2, "{what}");
     }
     // Positive control: one row different is another file.

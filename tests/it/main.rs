@@ -11,6 +11,7 @@ mod dates;
 mod exports;
 mod faults;
 mod finance;
+mod forms;
 mod glossary;
 mod hardening;
 mod helpers;

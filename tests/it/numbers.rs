@@ -91,7 +91,7 @@ async fn a_form_booking_reads_back_in_the_site_format() {
     let a = c.post_form(&path(), &form("1.250%2C75")).await;
     refused_beside(
         &a,
-        "quantity",
+        "direct-quantity",
         "&#34;1.250,75&#34; is written with a decimal comma; this site writes digits with a decimal point, \
          grouped in threes by comma or space or not at all, e.g. 1,250.75 or 1250.75</p>",
     );
@@ -100,7 +100,11 @@ async fn a_form_booking_reads_back_in_the_site_format() {
     set_number_format(&t, "decimal_comma").await;
     // Decimal-comma site: a decimal point with comma grouping is refused (the control follows).
     let a = c.post_form(&path(), &form("1%2C250.75")).await;
-    refused_beside(&a, "quantity", "&#34;1,250.75&#34; is written with a decimal point; this site writes digits");
+    refused_beside(
+        &a,
+        "direct-quantity",
+        "&#34;1,250.75&#34; is written with a decimal point; this site writes digits",
+    );
     assert_eq!(entries(&t).await, 0);
     let booked = c.post_form(&path(), &form("1.250%2C75")).await;
     assert_eq!(booked.status, StatusCode::SEE_OTHER, "{}", booked.text);

@@ -56,10 +56,14 @@ async fn case_pack_keeps_its_figures_after_an_approval_and_a_booking() {
     assert_eq!(first.status, StatusCode::OK);
     let npv_card = format!("<dd class=\"num\" id=\"npv\"><a href=\"/cases/{case}/flows\">19,435.14</a>");
     assert!(first.text.contains(&npv_card), "the page shows the NPV to the cent");
-    // Made at, to the minute in UTC, with the exact value in the title attribute.
-    let shown = pilot_ledger::domain::pack::made_at_text(&made_at);
-    assert_eq!(shown.len(), "2026-12-03 11:40 UTC".len());
-    assert!(first.text.contains(&format!("<time datetime=\"{made_at}\" title=\"{made_at}\">{shown}</time>")));
+    // Made at the test clock's instant (helpers::TEST_NOW), shown to the minute in the plant's
+    // time zone (UTC on this site), the exact value in the title attribute.
+    assert_eq!(made_at, "2026-11-15T10:00:00Z");
+    assert!(
+        first
+            .text
+            .contains("<time datetime=\"2026-11-15T10:00:00Z\" title=\"2026-11-15T10:00:00Z\">2026-11-15 10:00</time>")
+    );
     assert!(first.text.contains("@page { size: A4 portrait; margin: 12mm; }"));
     assert!(first.text.contains("break-inside: avoid"));
     assert!(
@@ -226,4 +230,30 @@ async fn a_portfolio_pack_lists_the_changes_since_the_last() {
     assert_eq!(bad.status, StatusCode::UNPROCESSABLE_ENTITY);
     let good = t.post_form("/portfolio/packs", "budget=50000").await;
     assert_eq!(good.status, StatusCode::SEE_OTHER);
+}
+
+/// A pack made through the API reads as the plant's pages do: the demo plant's number format
+/// and time zone (Europe/Berlin, UTC+1 in November: the tz database's EU rule, from memory),
+/// not the API's plain numbers and UTC.
+#[tokio::test]
+async fn a_pack_made_through_the_api_reads_in_the_plants_format_and_time() {
+    let t = test_app(true).await;
+    let api = t.get("/api/v1/portfolio").await.json();
+    let paint = api["zones"].as_array().unwrap().iter().find(|z| z["code"] == "PAINT-1").unwrap();
+    let case = paint["case"]["id"].as_i64().unwrap();
+    let pack = make_case_pack(&t, case).await;
+    assert_eq!(pack["made_at"], "2026-11-15T10:00:00Z");
+    let page = t.get(&format!("/packs/{}", pack["id"])).await;
+    assert_eq!(page.status, StatusCode::OK);
+    assert!(
+        page.text
+            .contains("<time datetime=\"2026-11-15T10:00:00Z\" title=\"2026-11-15T10:00:00Z\">2026-11-15 11:00</time>"),
+        "{}",
+        page.text
+    );
+    // The case page, read as a page, shows the NPV card the pack froze (same format).
+    let live = t.get(&format!("/cases/{case}")).await;
+    let card = |text: &str| text.split("id=\"npv\"").nth(1).and_then(|s| s.split("</dd>").next()).map(str::to_string);
+    assert_eq!(card(&page.text), card(&live.text));
+    assert!(card(&page.text).is_some());
 }

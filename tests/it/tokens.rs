@@ -106,13 +106,22 @@ async fn the_admin_page_shows_expiry_and_last_use_to_the_minute() {
     let t = test_app(false).await;
     let made = t.now();
     let token = token_from_page(&t, "user=t-viewer&label=report&days=7").await;
-    let minute = time::macros::format_description!("[year]-[month]-[day] [hour]:[minute] UTC");
+    // The test site's time zone is UTC (the default): local time is the stored minute.
+    let minute = time::macros::format_description!("[year]-[month]-[day] [hour]:[minute]");
+    let stamp = |at: time::OffsetDateTime| {
+        format!(
+            "<time datetime=\"{}\" title=\"{}\">{}</time>",
+            at.format(time::macros::format_description!("[year]-[month]-[day]T[hour]:[minute]:[second]Z")).unwrap(),
+            rfc3339(at),
+            at.format(&minute).unwrap()
+        )
+    };
     let admin = t.as_role(Some(Role::Admin));
     let row = |page: &str| {
         let at = page.find("<td>report</td>").expect("the token's row");
         page[at..page[at..].find("</tr>").unwrap() + at].to_string()
     };
-    let expires = (made + Duration::days(7)).format(&minute).unwrap();
+    let expires = stamp(made + Duration::days(7));
     let page = admin.get("/admin").await.text;
     assert!(row(&page).contains(&format!("<td>{expires}</td><td>never</td>")), "{}", row(&page));
 
@@ -128,7 +137,7 @@ async fn the_admin_page_shows_expiry_and_last_use_to_the_minute() {
     let used = t.now();
     assert_eq!(scalar::<String>(&t, "SELECT last_used_at FROM api_tokens").await, rfc3339(used));
     let page = admin.get("/admin").await.text;
-    let shown = used.format(&minute).unwrap();
+    let shown = stamp(used);
     assert!(row(&page).contains(&format!("<td>{expires}</td><td>{shown}</td>")), "{}", row(&page));
     assert!(!row(&page).contains("(expired)"));
     // Past its expiry the list says so.
