@@ -11,7 +11,7 @@ use super::{LocalTime, Money, NumberFormat, quantity};
 use rust_decimal::Decimal;
 
 /// Every action code the application writes, in the order the sentences below handle them.
-pub const ACTIONS: [&str; 28] = [
+pub const ACTIONS: [&str; 29] = [
     "sign_in",
     "sign_in_failed",
     "sign_out",
@@ -40,6 +40,7 @@ pub const ACTIONS: [&str; 28] = [
     "ledger.reverse",
     "ledger.import",
     "chain.seal",
+    "pack.make",
 ];
 
 /// What the trail knows about a row's subject, read with it (all optional: a subject that
@@ -130,6 +131,7 @@ pub fn audit_sentence(actor: &str, action: &str, subject: &str, detail: &str, fa
             }
         }
         "chain.seal" => format!("the upgrade sealed the hash chains{}", colon(detail)),
+        "pack.make" => format!("{actor} made decision {subject}, a {detail}"),
         other => format!("{actor}: {other} {subject}{}", colon(detail)),
     }
 }
@@ -470,6 +472,14 @@ mod tests {
                 "42 ledger rows, 7 audit rows",
                 &none,
                 "the upgrade sealed the hash chains: 42 ledger rows, 7 audit rows",
+            ),
+            (
+                "lead",
+                "pack.make",
+                "pack 1",
+                "case pack of 1: PRESS-2 v1 Base (176 ledger entries)",
+                &none,
+                "lead made decision pack 1, a case pack of 1: PRESS-2 v1 Base (176 ledger entries)",
             ),
         ];
         for (actor, action, subject, detail, f, expected) in &rows {

@@ -43,7 +43,7 @@ pub use ledger::{
     LedgerItem, Measurement, Method, NewEntry, PLAUSIBLE_FACTOR, Plausibility, idempotency_key,
 };
 pub use local_time::{LocalTime, PlantZone};
-pub use money::{Money, Percent, money, pct, quantity};
+pub use money::{Money, Percent, count, money, pct, quantity};
 pub use numbers::{NumberFormat, read, read_count, read_percent, read_whole};
 pub use portfolio::{
     BaseFigures, BudgetChoice, CaseParts, LedgerTotals, Portfolio, PortfolioParams, PortfolioQuery, PortfolioRow,

@@ -45,6 +45,11 @@ pub fn quantity(value: &Decimal) -> String {
     NumberFormat::current().write_quantity(*value)
 }
 
+/// A count (trials, entries) with thousands separators (`10000` -> `10,000`).
+pub fn count(n: &usize) -> String {
+    quantity(&Decimal::from(*n))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -59,6 +64,8 @@ mod tests {
         assert_eq!(Percent(0.0825).to_string(), "8.25 %");
         assert_eq!(quantity(&dec!(42000)), "42,000");
         assert_eq!(quantity(&dec!(1234.50)), "1,234.5");
+        assert_eq!(count(&10_000), "10,000");
+        assert_eq!(count(&0), "0");
     }
 
     #[tokio::test]

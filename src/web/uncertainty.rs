@@ -124,7 +124,7 @@ impl UncertaintyView {
             &s.histogram.iter().map(|b| (b.from, b.to, b.count)).collect::<Vec<_>>(),
             format!(
                 "{} trials of NPV in {currency}: 10th percentile {}, median {}, 90th percentile {}; {} of trials below zero (shaded differently).",
-                s.trials,
+                crate::domain::count(&s.trials),
                 m(s.p10.round()),
                 m(s.p50.round()),
                 m(s.p90.round()),
