@@ -533,6 +533,13 @@ pub struct Portfolio {
     pub params: PortfolioParams,
 }
 
+impl Portfolio {
+    /// The codes of the zones `pick` takes, in rank order (the budget choice's sets).
+    pub fn codes_where(&self, pick: impl Fn(&PortfolioRow) -> bool) -> Vec<String> {
+        self.rows.iter().filter(|r| pick(r)).map(|r| r.zone().code.clone()).collect()
+    }
+}
+
 fn cents(d: Decimal) -> i64 {
     (d * Decimal::ONE_HUNDRED).round().to_i64().unwrap_or(i64::MAX)
 }

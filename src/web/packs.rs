@@ -7,6 +7,7 @@ use super::auth::{CurrentUser, Nav};
 use super::cases::{MetricsView, figures_on_pool, uncertainty_of};
 use super::chart::LineChart;
 use super::metrics::{money_text, rate_text};
+use super::portfolio::choice_core;
 use super::uncertainty::UncertaintyView;
 use super::{ApiError, ApiPath, ApiQuery, AppError, AppState, FormBody, JsonBody, NoQuery};
 use crate::app::packs::{Making, Render, Rendered};
@@ -33,11 +34,6 @@ use std::collections::HashMap;
 const STYLE: &str = concat!(include_str!("../../static/style.css"), include_str!("../../templates/packs/pack.css"));
 const A4_PORTRAIT: &str = "@page { size: A4 portrait; margin: 12mm; }\n";
 const A4_LANDSCAPE: &str = "@page { size: A4 landscape; margin: 10mm; }\n";
-
-/// A timestamp as a pack shows it: the plant's local minute, the exact value in its title.
-fn when(stamp: &str) -> LocalTime {
-    LocalTime::of(stamp)
-}
 
 /// One input of the case with where its value comes from.
 pub struct Assumption {
@@ -103,12 +99,12 @@ fn approval_steps(full: &CaseFull) -> Vec<Step> {
     let mut steps = vec![Step {
         step: "written",
         by: full.case.created_by.clone(),
-        on: when(&full.case.created_at),
+        on: LocalTime::of(&full.case.created_at),
         comment: String::new(),
     }];
     let mut push = |step, by: &Option<String>, at: &Option<String>, comment: &str| {
         if let (Some(by), Some(at)) = (by, at) {
-            steps.push(Step { step, by: by.clone(), on: when(at), comment: comment.to_string() });
+            steps.push(Step { step, by: by.clone(), on: LocalTime::of(at), comment: comment.to_string() });
         }
     };
     push("last edited", &r.edited_by, &r.edited_at, "");
@@ -286,7 +282,7 @@ async fn render_case(state: &AppState, id: i64, made: Making, made_by: &str) -> 
         );
         let page = CasePack {
             style: format!("{A4_PORTRAIT}{STYLE}"),
-            made_at: when(&made_at),
+            made_at: LocalTime::of(&made_at),
             made_by,
             db_state,
             notes: full.case.notes(&today),
@@ -431,22 +427,19 @@ async fn render_portfolio(
                     zones: Vec<PackZone>,
                 }
                 let before: Before = serde_json::from_str(figures).map_err(render_error)?;
-                (Some((pack.id, when(&pack.made_at))), changes_since(&before.zones, &zones))
+                (Some((pack.id, LocalTime::of(&pack.made_at))), changes_since(&before.zones, &zones))
             }
             None => (None, Vec::new()),
-        };
-        let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
-            p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()
         };
         let listed = |v: Vec<String>| if v.is_empty() { "none".to_string() } else { v.join(", ") };
         let choice = p.choice.as_ref().map(|c| ChoiceLines {
             budget: Money(c.budget),
             committed: Money(c.committed),
             available: Money(c.available),
-            recommended: listed(codes(&|r| r.standing == Standing::Recommended)),
+            recommended: listed(p.codes_where(|r| r.standing == Standing::Recommended)),
             recommended_cost: Money(c.recommended_cost),
             recommended_value: Money(c.recommended_value),
-            taken_by_profitability_index: listed(codes(&|r| r.taken_by_profitability_index)),
+            taken_by_profitability_index: listed(p.codes_where(|r| r.taken_by_profitability_index)),
             taken_by_profitability_index_cost: Money(c.taken_by_profitability_index_cost),
             taken_by_profitability_index_value: Money(c.taken_by_profitability_index_value),
             next_in_line: c.next_in_line.as_ref().map(|(code, lack)| (code.clone(), Money(*lack))),
@@ -507,21 +500,14 @@ async fn render_portfolio(
             "basis": p.params.basis.as_str(),
             "seed": p.params.trials.seed.to_string(),
             "trials": p.params.trials.count,
-            "choice": p.choice.as_ref().map(|c| json!({
-                "budget": money_text(c.budget),
-                "committed": money_text(c.committed),
-                "recommended": codes(&|r| r.standing == Standing::Recommended),
-                "recommended_investment": money_text(c.recommended_cost),
-                "recommended_value": money_text(c.recommended_value),
-                "taken_by_profitability_index": codes(&|r| r.taken_by_profitability_index),
-            })),
+            "choice": p.choice.as_ref().map(|c| choice_core(&p, c)),
             "changes_since_pack": previous.as_ref().map(|(id, _)| *id),
             "changes": changes,
             "zones": zones_json,
         });
         let page = PortfolioPack {
             style: format!("{A4_LANDSCAPE}{STYLE}"),
-            made_at: when(&made_at),
+            made_at: LocalTime::of(&made_at),
             made_by,
             db_state,
             quarter: quarter.clone(),
@@ -685,7 +671,7 @@ pub async fn list(
     let packs = db::packs::list(&state.pool, kind, subject)
         .await?
         .into_iter()
-        .map(|pack| ListLine { made_at: when(&pack.made_at), state: pack.state.describe(), pack })
+        .map(|pack| ListLine { made_at: LocalTime::of(&pack.made_at), state: pack.state.describe(), pack })
         .collect();
     let page =
         ListPage { nav: Nav::from(&me), kind: q.kind.trim().to_string(), subject: q.subject.trim().to_string(), packs };

@@ -691,32 +691,46 @@ fn api_text(computed: &Computed, pieces: &super::answers::RowPieces) -> Result<S
     Ok(out)
 }
 
+/// The budget choice's fields that the API answers and a portfolio pack stores alike: the
+/// budget, what is committed, and the two sets with the recommended one's cost and value.
+pub(super) fn choice_core(p: &Portfolio, c: &BudgetChoice) -> serde_json::Map<String, serde_json::Value> {
+    object(json!({
+        "budget": money_text(c.budget),
+        "committed": money_text(c.committed),
+        "recommended": p.codes_where(|r| r.standing == Standing::Recommended),
+        "recommended_investment": money_text(c.recommended_cost),
+        "recommended_value": money_text(c.recommended_value),
+        "taken_by_profitability_index": p.codes_where(|r| r.taken_by_profitability_index),
+    }))
+}
+
+/// The fields of a `json!({...})` object literal.
+fn object(v: serde_json::Value) -> serde_json::Map<String, serde_json::Value> {
+    match v {
+        serde_json::Value::Object(m) => m,
+        _ => serde_json::Map::new(),
+    }
+}
+
 fn api_head(computed: &Computed) -> ApiAnswer<'_> {
     let p = &computed.portfolio;
     let choice = p.choice.as_ref().map(|c| {
-        let codes = |f: &dyn Fn(&PortfolioRow) -> bool| -> Vec<String> {
-            p.rows.iter().filter(|r| f(r)).map(|r| r.zone().code.clone()).collect()
-        };
-        json!({
-            "budget": money_text(c.budget),
-            "committed": money_text(c.committed),
+        let mut answer = choice_core(p, c);
+        answer.extend(object(json!({
             "available": money_text(c.available),
-            "recommended": codes(&|r| r.standing == Standing::Recommended),
-            "recommended_investment": money_text(c.recommended_cost),
-            "recommended_value": money_text(c.recommended_value),
-            "taken_by_profitability_index": codes(&|r| r.taken_by_profitability_index),
             "taken_by_profitability_index_investment": money_text(c.taken_by_profitability_index_cost),
             "taken_by_profitability_index_value": money_text(c.taken_by_profitability_index_value),
             "only_recommended": c.only_recommended,
             "only_taken_by_profitability_index": c.only_taken_by_profitability_index,
             // Deprecated in 0.2.0 (the four fields above under their old names), removed in 0.3.0.
-            "pi_order": codes(&|r| r.taken_by_profitability_index),
+            "pi_order": p.codes_where(|r| r.taken_by_profitability_index),
             "pi_order_investment": money_text(c.taken_by_profitability_index_cost),
             "pi_order_value": money_text(c.taken_by_profitability_index_value),
             "only_pi_order": c.only_taken_by_profitability_index,
             "next_in_line": c.next_in_line.as_ref().map(|(code, lack)| json!({ "code": code, "budget_lacking": money_text(*lack) })),
             "proven_optimal": c.proven,
-        })
+        })));
+        serde_json::Value::Object(answer)
     });
     ApiAnswer {
         currency: &computed.site.currency,
