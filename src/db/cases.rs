@@ -226,7 +226,7 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
     let row = sqlx::query(select_case!("FROM case_versions WHERE id = ?")).bind(id).fetch_optional(&mut *conn).await?;
     let case = row.as_ref().map(case_from).transpose()?.ok_or(DbError::NotFound("business case"))?;
     let costs = sqlx::query(
-        "SELECT id, item_uid, label, category, kind, amount, month_offset, escalation, capex FROM cost_items
+        "SELECT id, item_uid, label, category, kind, amount, month_offset, escalation, capex, source FROM cost_items
          WHERE case_id = ? ORDER BY id",
     )
     .bind(id)
@@ -245,13 +245,14 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
                 month_offset: count("month_offset", r.try_get("month_offset")?)?,
                 escalation: decimal("escalation", r.try_get("escalation")?)?,
                 capex: r.try_get::<i64, _>("capex")? != 0,
+                source: r.try_get("source")?,
             },
         })
     })
     .collect::<DbResult<Vec<_>>>()?;
     let drivers = sqlx::query(
         "SELECT id, item_uid, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation, hours_spent,
-                hours_multiplier
+                hours_multiplier, source
          FROM benefit_drivers WHERE case_id = ? ORDER BY id",
     )
     .bind(id)
@@ -278,6 +279,7 @@ pub(super) async fn case_full_in(conn: &mut SqliteConnection, id: i64) -> DbResu
                     }),
                     _ => None,
                 },
+                source: r.try_get("source")?,
             },
         })
     })
@@ -681,8 +683,8 @@ async fn insert_cost_row(
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO cost_items (case_id, label, category, kind, amount, month_offset, escalation, capex, created_at,
-                                 created_by, item_uid)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, COALESCE(?11, (
+                                 created_by, source, item_uid)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?12, COALESCE(?11, (
              SELECT x.item_uid FROM cost_items x JOIN case_versions xv ON xv.id = x.case_id
              WHERE xv.zone_id = (SELECT zone_id FROM case_versions WHERE id = ?1) AND x.label = ?2 AND x.case_id <> ?1
                AND x.item_uid NOT IN (SELECT item_uid FROM cost_items WHERE case_id = ?1 AND item_uid IS NOT NULL)
@@ -700,6 +702,7 @@ async fn insert_cost_row(
     .bind(at)
     .bind(actor)
     .bind(uid)
+    .bind(&c.source)
     .fetch_one(conn)
     .await?)
 }
@@ -714,12 +717,12 @@ async fn insert_driver_row(
 ) -> DbResult<i64> {
     Ok(sqlx::query_scalar(
         "INSERT INTO benefit_drivers (case_id, label, kind, unit, qty_low, qty_likely, qty_high, unit_value, escalation,
-                                      created_at, created_by, item_uid, hours_spent, hours_multiplier)
+                                      created_at, created_by, item_uid, hours_spent, hours_multiplier, source)
          VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, COALESCE(?12, (
              SELECT x.item_uid FROM benefit_drivers x JOIN case_versions xv ON xv.id = x.case_id
              WHERE xv.zone_id = (SELECT zone_id FROM case_versions WHERE id = ?1) AND x.label = ?2 AND x.case_id <> ?1
                AND x.item_uid NOT IN (SELECT item_uid FROM benefit_drivers WHERE case_id = ?1 AND item_uid IS NOT NULL)
-             ORDER BY xv.version DESC, x.id DESC LIMIT 1)), ?13, ?14)
+             ORDER BY xv.version DESC, x.id DESC LIMIT 1)), ?13, ?14, ?15)
          RETURNING id",
     )
     .bind(case_id)
@@ -736,6 +739,7 @@ async fn insert_driver_row(
     .bind(uid)
     .bind(d.expert_hours.map(|x| x.hours_spent.to_string()))
     .bind(d.expert_hours.map(|x| x.hours_multiplier.to_string()))
+    .bind(&d.source)
     .fetch_one(conn)
     .await?)
 }

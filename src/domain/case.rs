@@ -2,7 +2,7 @@
 //! the translation into the finance engine's pure input.
 
 use super::de::{flexible_bool, string_or_number};
-use super::{FieldErrors, NumberFormat, read_count, required_text};
+use super::{FieldErrors, NumberFormat, optional_text, read_count, required_text};
 use crate::finance::schedule::{CaseInput, CostInput as FinCost, CostTiming, DriverInput as FinDriver, TaxInput};
 use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
@@ -301,6 +301,8 @@ pub struct CostInput {
     /// Capital expenditure (depreciated in the after-tax view) rather than operating expense.
     #[serde(deserialize_with = "flexible_bool")]
     pub capex: bool,
+    /// Where the figure comes from (a quote, a measurement, an estimate by whom); optional.
+    pub source: String,
 }
 
 /// A valid cost item, not yet stored.
@@ -320,7 +322,12 @@ pub struct NewCostItem {
     pub escalation: Decimal,
     /// Capex or opex.
     pub capex: bool,
+    /// Where the figure comes from; empty when not given.
+    pub source: String,
 }
+
+/// Longest source note of a cost item or driver, in characters.
+pub const SOURCE_MAX: usize = 300;
 
 impl NewCostItem {
     /// Validate a cost item of a case with `horizon` months.
@@ -341,11 +348,18 @@ impl NewCostItem {
             .map_err(|_| format!("a month offset inside the horizon: 0 to {}", horizon.saturating_sub(1))),
         );
         let escalation = e.take("escalation", optional_rate(&input.escalation, style));
-        match (label, category, kind, amount, month, escalation) {
-            (Some(label), Some(category), Some(kind), Some(amount), Some(month_offset), Some(escalation))
-                if e.is_empty() =>
-            {
-                Ok(Self { label, category, kind, amount, month_offset, escalation, capex: input.capex })
+        let source = e.take("source", optional_text(&input.source, SOURCE_MAX));
+        match (label, category, kind, amount, month, escalation, source) {
+            (
+                Some(label),
+                Some(category),
+                Some(kind),
+                Some(amount),
+                Some(month_offset),
+                Some(escalation),
+                Some(source),
+            ) if e.is_empty() => {
+                Ok(Self { label, category, kind, amount, month_offset, escalation, capex: input.capex, source })
             }
             _ => Err(e),
         }
@@ -459,6 +473,8 @@ pub struct DriverInput {
     /// site's multiplier.
     #[serde(deserialize_with = "string_or_number")]
     pub hours_multiplier: String,
+    /// Where the figures come from; optional.
+    pub source: String,
 }
 
 /// An expert-time estimate by the rule of thumb of the trade (common practice, no published
@@ -515,6 +531,8 @@ pub struct NewBenefitDriver {
     /// likely quantity is their product); `None` for quantities given directly.
     #[serde(flatten)]
     pub expert_hours: Option<ExpertHours>,
+    /// Where the figures come from; empty when not given.
+    pub source: String,
 }
 
 impl NewBenefitDriver {
@@ -572,6 +590,8 @@ impl NewBenefitDriver {
         }
         let unit_value = e.take("unit_value", f.read(&input.unit_value).and_then(bounded(MAX_UNIT_VALUE, f)));
         let escalation = e.take("escalation", optional_rate(&input.escalation, style));
+        // An error is pushed to `e`, which the guard below checks.
+        let source = e.take("source", optional_text(&input.source, SOURCE_MAX)).unwrap_or_default();
         match (label, kind, unit, low, likely, high, unit_value, escalation) {
             (
                 Some(label),
@@ -592,6 +612,7 @@ impl NewBenefitDriver {
                 unit_value,
                 escalation,
                 expert_hours: expert.flatten(),
+                source,
             }),
             _ => Err(e),
         }

@@ -212,6 +212,7 @@ mod tests {
             unit_value: Decimal::ONE,
             escalation: Decimal::ZERO,
             expert_hours: None,
+            source: String::new(),
         };
         InForce {
             from: m(from),

@@ -132,6 +132,10 @@ fn assumptions(full: &CaseFull, site: &SiteSettings, made_at: &str) -> Vec<Assum
         _ => format!("site settings when the pack was made ({})", LocalTime::of(made_at).local),
     };
     let row = |input: String, value: String, source: &str| Assumption { input, value, source: source.to_string() };
+    // An input's own note first, then who entered it; a missing note is said, not hidden.
+    let noted = |note: &str| {
+        if note.is_empty() { format!("no source note; {entered}") } else { format!("{note}; {entered}") }
+    };
     let mut out = vec![
         row("Hurdle rate".into(), format!("{} a year", pct(&site.hurdle_rate)), &settings),
         row("Currency".into(), site.currency.clone(), &settings),
@@ -154,7 +158,7 @@ fn assumptions(full: &CaseFull, site: &SiteSettings, made_at: &str) -> Vec<Assum
             format!("{} in month {}", Money(i.amount), i.month_offset)
         };
         let book = if i.capex { "capex" } else { "opex" };
-        out.push(row(format!("Cost: {} ({}, {book})", i.label, i.category.as_str()), when, &entered));
+        out.push(row(format!("Cost: {} ({}, {book})", i.label, i.category.as_str()), when, &noted(&i.source)));
     }
     for d in &full.drivers {
         let x = &d.driver;
@@ -172,7 +176,7 @@ fn assumptions(full: &CaseFull, site: &SiteSettings, made_at: &str) -> Vec<Assum
                 x.unit,
                 pct(&x.escalation)
             ),
-            &entered,
+            &noted(&x.source),
         ));
     }
     out

@@ -249,6 +249,23 @@ async fn the_admin_and_case_forms_show_errors_beside_the_form_with_a_summary() {
         a.text
     );
     assert!(a.text.contains("id=\"add-cost-form-problems\""));
+    // The source field: too long is named beside the form; a note that fits is stored.
+    let long = "n".repeat(301);
+    let form = |source: &str| {
+        format!("label=Gateway&category=hardware&kind=one_off&amount=100&month_offset=0&source={source}")
+    };
+    let a = t.post_form(&format!("/cases/{id}/costs"), &form(&long)).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(
+        a.text.contains("<p class=\"error\" id=\"cost-source-error\">Error: at most 300 characters</p>"),
+        "{}",
+        a.text
+    );
+    let a = t.post_form(&format!("/cases/{id}/costs"), &form("quote+Q-7")).await;
+    assert_eq!(a.status, StatusCode::SEE_OTHER);
+    let read = t.get(&format!("/api/v1/cases/{id}")).await.json();
+    let costs = read["case"]["costs"].as_array().unwrap();
+    assert_eq!(costs.last().unwrap()["source"], "quote Q-7");
 }
 
 /// Common practice (a rule of thumb of the trade, an upper bound, no published source): expert

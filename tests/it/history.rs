@@ -330,6 +330,7 @@ async fn migration_0011_gives_old_items_their_identity_and_old_baselines_their_m
         unit_value: 1.into(),
         escalation: 0.into(),
         expert_hours: None,
+        source: String::new(),
     };
     let again = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();
     let second = db::add_driver(&mut tx, v3, &scrap, "lead", "2026-11-15T10:00:00Z").await.unwrap();

@@ -257,3 +257,55 @@ async fn a_pack_made_through_the_api_reads_in_the_plants_format_and_time() {
     assert_eq!(card(&page.text), card(&live.text));
     assert!(card(&page.text).is_some());
 }
+
+#[tokio::test]
+async fn every_input_carries_its_source_note_into_the_pack() {
+    let t = test_app(false).await;
+    let z = t.post_json("/api/v1/zones", &json!({"code": "SRC-1", "name": "Source notes"}).to_string()).await;
+    let zone = z.json()["zone"]["id"].as_i64().unwrap();
+    let mut case = crate::api::simple_case();
+    case["costs"][0]["source"] = json!("  supplier quote Q-118 of 2026-10 ");
+    case["costs"].as_array_mut().unwrap().push(json!({"label": "Gateway", "category": "hardware",
+        "kind": "one_off", "amount": "800", "month_offset": 0}));
+    case["drivers"][0]["source"] = json!("scrap log 2026-01 to 2026-06");
+
+    // Refused: a note one character too long; nothing is written.
+    let before = t.counts().await;
+    let mut long = case.clone();
+    long["costs"][1]["source"] = json!("n".repeat(301));
+    let a = t.post_json(&format!("/api/v1/zones/{zone}/cases"), &long.to_string()).await;
+    assert_eq!(a.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(a.json()["fields"], json!([{"field": "costs[1].source", "message": "at most 300 characters"}]));
+    assert_eq!(t.counts().await, before);
+    // Positive control: 300 characters are taken.
+    long["costs"][1]["source"] = json!("n".repeat(300));
+    let a = t.post_json(&format!("/api/v1/zones/{zone}/cases"), &long.to_string()).await;
+    assert_eq!(a.status, StatusCode::CREATED, "{}", a.text);
+
+    let c = t.post_json(&format!("/api/v1/zones/{zone}/cases"), &case.to_string()).await;
+    assert_eq!(c.status, StatusCode::CREATED, "{}", c.text);
+    let id = c.json()["case"]["id"].as_i64().unwrap();
+    let read = t.get(&format!("/api/v1/cases/{id}")).await.json();
+    let costs = &read["case"]["costs"];
+    assert_eq!((&costs[0]["source"], &costs[1]["source"]), (&json!("supplier quote Q-118 of 2026-10"), &json!("")));
+    assert_eq!(read["case"]["drivers"][0]["source"], "scrap log 2026-01 to 2026-06");
+    // A copy keeps the notes.
+    let copy = t.post_json(&format!("/api/v1/cases/{id}/copy"), r#"{"label":"Lean"}"#).await;
+    assert_eq!(copy.status, StatusCode::CREATED, "{}", copy.text);
+    assert_eq!(copy.json()["case"]["costs"][0]["source"], "supplier quote Q-118 of 2026-10");
+
+    let page = t.get(&format!("/cases/{id}")).await;
+    assert!(page.text.contains("<br><small class=\"meta\">Source: supplier quote Q-118 of 2026-10</small>"));
+    let pack = make_case_pack(&t, id).await;
+    let text = t.get(&format!("/packs/{}", pack["id"])).await.text;
+    let entered = "case v2 by t-lead; last edit 2026-11-15 10:00 by t-lead";
+    for row in [
+        format!(
+            "<td>Cost: Sensors (hardware, capex)</td><td>12,000.00 in month 0</td><td>supplier quote Q-118 of 2026-10; {entered}</td>"
+        ),
+        format!("<td>Cost: Gateway (hardware, opex)</td><td>800.00 in month 0</td><td>no source note; {entered}</td>"),
+    ] {
+        assert!(text.contains(&row), "missing {row}");
+    }
+    assert!(text.contains(&format!("escalating 0 % a year</td><td>scrap log 2026-01 to 2026-06; {entered}</td>")));
+}
