@@ -33,6 +33,8 @@ pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSet
         number_format: parsed("number_format", row.try_get("number_format")?, NumberFormat::parse)?,
         one_person_approval: row.try_get::<i64, _>("one_person_approval")? != 0,
         time_zone: parsed("time_zone", row.try_get("time_zone")?, PlantZone::parse)?,
+        // Read from its column once the migration that adds it is in.
+        introduction_capacity: crate::domain::DEFAULT_INTRODUCTION_CAPACITY,
     })
 }
 

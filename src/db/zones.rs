@@ -27,6 +27,9 @@ fn zone_from(row: &SqliteRow) -> DbResult<Zone> {
         created_by: row.try_get("created_by")?,
         updated_at: row.try_get("updated_at")?,
         updated_by: row.try_get("updated_by")?,
+        // Filled from the zone's columns by the migration that adds them.
+        area: String::new(),
+        needs: Vec::new(),
     })
 }
 

@@ -30,7 +30,13 @@ pub struct SiteSettings {
     /// The plant's time zone (IANA name): pages show timestamps in its local time.
     #[serde(serialize_with = "zone_name")]
     pub time_zone: PlantZone,
+    /// Introductions at a time: at most this many zones inside their introduction window in
+    /// any month (the roadmap's capacity).
+    pub introduction_capacity: u32,
 }
+
+/// Introductions at a time when the site has not set it.
+pub const DEFAULT_INTRODUCTION_CAPACITY: u32 = 2;
 
 fn zone_name<S: serde::Serializer>(zone: &PlantZone, s: S) -> Result<S::Ok, S::Error> {
     s.serialize_str(zone.as_str())
@@ -143,6 +149,7 @@ impl SiteSettings {
                 number_format,
                 one_person_approval: input.one_person_approval,
                 time_zone,
+                introduction_capacity: DEFAULT_INTRODUCTION_CAPACITY,
             }),
             _ => Err(e),
         }

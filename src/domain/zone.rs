@@ -214,6 +214,10 @@ pub struct Zone {
     pub updated_at: String,
     /// Who changed it last.
     pub updated_by: String,
+    /// Area of the plant (e.g. press shop); empty for none. One introduction at a time per area.
+    pub area: String,
+    /// Codes of the zones that must be live before this one starts, by code.
+    pub needs: Vec<String>,
 }
 
 #[cfg(test)]
