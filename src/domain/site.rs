@@ -38,6 +38,10 @@ pub struct SiteSettings {
 /// Introductions at a time when the site has not set it.
 pub const DEFAULT_INTRODUCTION_CAPACITY: u32 = 2;
 
+/// The most introductions at a time a site may set (every month of a plan is one capacity
+/// row for the solver; a plant absorbing more than this at once is not the case we model).
+pub const MAX_INTRODUCTION_CAPACITY: u32 = 20;
+
 fn zone_name<S: serde::Serializer>(zone: &PlantZone, s: S) -> Result<S::Ok, S::Error> {
     s.serialize_str(zone.as_str())
 }
@@ -72,6 +76,9 @@ pub struct SiteSettingsInput {
     pub one_person_approval: bool,
     /// IANA time zone name; empty for UTC.
     pub time_zone: String,
+    /// Introductions at a time, 1 to 20; empty for 2.
+    #[serde(deserialize_with = "string_or_number")]
+    pub introduction_capacity: String,
 }
 
 impl SiteSettings {
@@ -117,6 +124,14 @@ impl SiteSettings {
         } else {
             e.take("expert_multiplier", super::parse_expert_multiplier(&input.expert_multiplier, f))
         };
+        let introduction_capacity = if input.introduction_capacity.trim().is_empty() {
+            Some(DEFAULT_INTRODUCTION_CAPACITY)
+        } else {
+            e.take(
+                "introduction_capacity",
+                read_count(&input.introduction_capacity, 1, MAX_INTRODUCTION_CAPACITY),
+            )
+        };
         match (
             plant_name,
             currency,
@@ -127,6 +142,7 @@ impl SiteSettings {
             expert_multiplier,
             number_format,
             time_zone,
+            introduction_capacity,
         ) {
             (
                 Some(plant_name),
@@ -138,6 +154,7 @@ impl SiteSettings {
                 Some(expert_multiplier),
                 Some(number_format),
                 Some(time_zone),
+                Some(introduction_capacity),
             ) if e.is_empty() => Ok(Self {
                 plant_name,
                 currency,
@@ -149,7 +166,7 @@ impl SiteSettings {
                 number_format,
                 one_person_approval: input.one_person_approval,
                 time_zone,
-                introduction_capacity: DEFAULT_INTRODUCTION_CAPACITY,
+                introduction_capacity,
             }),
             _ => Err(e),
         }
@@ -169,6 +186,7 @@ impl SiteSettings {
             number_format: self.number_format.as_str().to_string(),
             one_person_approval: self.one_person_approval,
             time_zone: self.time_zone.as_str().to_string(),
+            introduction_capacity: self.introduction_capacity.to_string(),
         }
     }
 
