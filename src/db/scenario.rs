@@ -74,6 +74,15 @@ async fn load_zone_extras(
     Ok(z.ledger.len())
 }
 
+/// The site settings and every zone with its area and needs as a scenario document
+/// ([`crate::domain::layout_document`]): loading it into an empty database gives the same
+/// settings and zones.
+pub async fn export_layout(pool: &SqlitePool) -> DbResult<serde_json::Value> {
+    let site = super::get_site(pool).await?;
+    let zones = super::list_zones(pool).await?;
+    Ok(crate::domain::layout_document(&site, &zones))
+}
+
 /// Whether the database has never been loaded (no site settings yet).
 pub async fn database_is_empty(pool: &SqlitePool) -> DbResult<bool> {
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM site_settings").fetch_one(pool).await?;

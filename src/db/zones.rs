@@ -2,9 +2,9 @@
 
 use super::{DbError, DbResult, parsed, unique_as};
 use crate::domain::{FieldErrors, NewZone, Zone, ZoneStatus, cycle_message, cycle_through};
-use std::collections::{BTreeSet, HashMap};
 use sqlx::sqlite::SqliteRow;
 use sqlx::{Row, SqliteConnection, SqlitePool};
+use std::collections::{BTreeSet, HashMap};
 
 /// `SELECT <zone columns> <rest>` as one static string.
 macro_rules! select_zone {
@@ -75,7 +75,12 @@ pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &st
 
 /// Insert a zone's row without its needs (a scenario file sets them once every zone of the
 /// file is stored, so a zone may need one defined later).
-pub(super) async fn insert_zone_row(conn: &mut SqliteConnection, zone: &NewZone, actor: &str, ts: &str) -> DbResult<i64> {
+pub(super) async fn insert_zone_row(
+    conn: &mut SqliteConnection,
+    zone: &NewZone,
+    actor: &str,
+    ts: &str,
+) -> DbResult<i64> {
     let id = sqlx::query_scalar(
         "INSERT INTO zones (code, name, description, owner, status, area, created_at, created_by, updated_at,
                             updated_by)

@@ -47,7 +47,7 @@ fn zone_name<S: serde::Serializer>(zone: &PlantZone, s: S) -> Result<S::Ok, S::E
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
 #[serde(default)]
 pub struct SiteSettingsInput {
     /// Plant name.
@@ -127,10 +127,7 @@ impl SiteSettings {
         let introduction_capacity = if input.introduction_capacity.trim().is_empty() {
             Some(DEFAULT_INTRODUCTION_CAPACITY)
         } else {
-            e.take(
-                "introduction_capacity",
-                read_count(&input.introduction_capacity, 1, MAX_INTRODUCTION_CAPACITY),
-            )
+            e.take("introduction_capacity", read_count(&input.introduction_capacity, 1, MAX_INTRODUCTION_CAPACITY))
         };
         match (
             plant_name,
@@ -234,4 +231,35 @@ fn parse_rate(value: &str, format: NumberFormat) -> Result<Decimal, String> {
 
 fn fraction_0_1(d: Decimal) -> Result<Decimal, String> {
     if (Decimal::ZERO..=Decimal::ONE).contains(&d) { Ok(d) } else { Err("a fraction from 0 to 1, e.g. 0.25".into()) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn with_capacity(k: &str) -> SiteSettingsInput {
+        SiteSettingsInput {
+            plant_name: "Test works".into(),
+            currency: "EUR".into(),
+            hurdle_rate: "0.09".into(),
+            introduction_capacity: k.into(),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn introductions_at_a_time_are_1_to_20_and_2_when_empty() {
+        let read =
+            |k: &str| SiteSettings::parse(&with_capacity(k), NumberFormat::Plain).map(|s| s.introduction_capacity);
+        assert_eq!(read(""), Ok(2));
+        assert_eq!(read("1"), Ok(1));
+        assert_eq!(read("20"), Ok(20));
+        let refused = |k: &str| read(k).err().unwrap_or_default().get("introduction_capacity").map(str::to_string);
+        assert_eq!(refused("0"), Some("\"0\" is outside 1 to 20: enter a whole number from 1 to 20".into()));
+        assert_eq!(refused("21"), Some("\"21\" is outside 1 to 20: enter a whole number from 1 to 20".into()));
+        // The input written back parses to the same settings.
+        let site = SiteSettings::parse(&with_capacity("7"), NumberFormat::Plain);
+        let again = site.as_ref().map(|s| SiteSettings::parse(&s.input(), NumberFormat::Plain));
+        assert_eq!(again.ok().and_then(Result::ok), site.ok());
+    }
 }

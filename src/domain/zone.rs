@@ -222,8 +222,9 @@ impl NewZone {
 fn parse_needs(values: &[String], own: Option<&str>) -> Result<Vec<String>, String> {
     let mut codes = std::collections::BTreeSet::new();
     for value in values {
-        let code = parse_code(value)
-            .map_err(|_| format!("{:?} is not a zone code (1 to 16 letters, digits or dashes, e.g. PRESS-2)", value.trim()))?;
+        let code = parse_code(value).map_err(|_| {
+            format!("{:?} is not a zone code (1 to 16 letters, digits or dashes, e.g. PRESS-2)", value.trim())
+        })?;
         if Some(code.as_str()) == own {
             return Err(format!("{code} cannot need itself"));
         }
@@ -337,6 +338,21 @@ pub struct Zone {
     pub needs: Vec<String>,
 }
 
+impl Zone {
+    /// The raw fields this zone parses back from (a scenario file's zone, a form's defaults).
+    pub fn input(&self) -> ZoneInput {
+        ZoneInput {
+            code: self.code.clone(),
+            name: self.name.clone(),
+            description: self.description.clone(),
+            owner: self.owner.clone(),
+            status: self.status.as_str().to_string(),
+            area: self.area.clone(),
+            needs: self.needs.clone(),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -384,5 +400,48 @@ mod tests {
         let input = ZoneInput { code: "weld-1".into(), name: "Weld cell".into(), ..Default::default() };
         let zone = NewZone::parse(&input).map(|z| z.code);
         assert_eq!(zone, Ok("WELD-1".to_string()));
+    }
+
+    #[test]
+    fn area_and_needs_are_read_and_checked() -> Result<(), FieldErrors> {
+        let input = ZoneInput {
+            code: "paint-1".into(),
+            name: "Paint line".into(),
+            area: "  paint shop ".into(),
+            needs: ZoneInput::split_needs(" press-2, PRESS-1,,press-2 "),
+            ..Default::default()
+        };
+        let zone = NewZone::parse(&input)?;
+        // Trimmed; codes upper-cased, each once, sorted.
+        assert_eq!((zone.area.as_str(), zone.needs), ("paint shop", vec!["PRESS-1".to_string(), "PRESS-2".into()]));
+        let long = ZoneInput { area: "a".repeat(61), ..input.clone() };
+        assert_eq!(NewZone::parse(&long).err().unwrap_or_default().get("area"), Some("at most 60 characters"));
+        // Positive control at the bound.
+        assert!(NewZone::parse(&ZoneInput { area: "a".repeat(60), ..input.clone() }).is_ok());
+        let own = ZoneInput { needs: vec!["Paint-1".into()], ..input.clone() };
+        assert_eq!(NewZone::parse(&own).err().unwrap_or_default().get("needs"), Some("PAINT-1 cannot need itself"));
+        let bad = ZoneInput { needs: vec!["press 2".into()], ..input };
+        assert_eq!(
+            NewZone::parse(&bad).err().unwrap_or_default().get("needs"),
+            Some("\"press 2\" is not a zone code (1 to 16 letters, digits or dashes, e.g. PRESS-2)")
+        );
+        Ok(())
+    }
+
+    #[test]
+    fn a_cycle_is_found_and_named() {
+        use std::collections::HashMap;
+        // 2 needs 3, 3 needs 4; 5 needs nothing.
+        let needs_of: HashMap<u8, Vec<u8>> = [(2, vec![3]), (3, vec![4])].into_iter().collect();
+        assert_eq!(cycle_through(4, &[5], &needs_of), None);
+        assert_eq!(cycle_through(4, &[2], &needs_of), Some(vec![4, 2, 3, 4]));
+        assert_eq!(cycle_through(3, &[2], &needs_of), Some(vec![3, 2, 3]));
+        // The shortest cycle when two close: 4 -> 3 -> 4 beats 4 -> 2 -> 3 -> 4.
+        assert_eq!(cycle_through(4, &[2, 3], &needs_of), Some(vec![4, 3, 4]));
+        assert_eq!(cycle_message(&["PRESS-2", "PAINT-1", "PRESS-2"]), "PRESS-2 and PAINT-1 would need each other");
+        assert_eq!(
+            cycle_message(&["A-1", "B-1", "C-1", "A-1"]),
+            "A-1, B-1 and C-1 would need each other in a circle: A-1 needs B-1, B-1 needs C-1, C-1 needs A-1"
+        );
     }
 }

@@ -6,8 +6,8 @@ use super::{AppError, AppState, FormBody};
 use crate::app;
 use crate::db::{self, CaseVersion};
 use crate::domain::{
-    CaseHeader, CaseSpec, CaseState, Criterion, FieldErrors, Month, NewZone, Readiness, SiteSettings, Zone, ZoneInput,
-    ZoneId, ZoneStatus, parse_scores,
+    CaseHeader, CaseSpec, CaseState, Criterion, FieldErrors, Month, NewZone, Readiness, SiteSettings, Zone, ZoneId,
+    ZoneInput, ZoneStatus, parse_scores,
 };
 use askama::Template;
 use axum::extract::{Path, State};
@@ -191,15 +191,7 @@ async fn detail_with(
         }
         versions.push((case, MetricsView::from(&figures.pre_tax.metrics), rate));
     }
-    let form = form.unwrap_or_else(|| ZoneInput {
-        code: zone.code.clone(),
-        name: zone.name.clone(),
-        description: zone.description.clone(),
-        owner: zone.owner.clone(),
-        status: zone.status.as_str().to_string(),
-        area: zone.area.clone(),
-        needs: zone.needs.clone(),
-    });
+    let form = form.unwrap_or_else(|| zone.input());
     let criteria = db::readiness::criteria(&state.pool).await?;
     let scores = db::readiness::zone_scores(&state.pool, id).await?;
     let readiness_score =
