@@ -7,6 +7,7 @@ pub mod cases;
 pub mod cpu;
 pub mod ledger;
 pub mod packs;
+pub mod roadmap;
 pub mod site;
 pub mod users;
 pub mod zones;

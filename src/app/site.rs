@@ -17,14 +17,15 @@ pub async fn change_settings(
     let mut tx = db::begin_write(pool).await?;
     db::put_site(&mut tx, site, actor, &at).await?;
     let detail = format!(
-        "currency {}, hurdle {}, tax {}, depreciation {}, one-person approval {}, numbers {}, time zone {}",
+        "currency {}, hurdle {}, tax {}, depreciation {}, one-person approval {}, numbers {}, time zone {}, introductions at a time {}",
         site.currency,
         site.hurdle_rate,
         site.tax_rate.map_or_else(|| "none".into(), |t| t.to_string()),
         site.depreciation_years.map_or_else(|| "none".into(), |y| y.to_string()),
         site.one_person_approval,
         site.number_format.as_str(),
-        site.time_zone.as_str()
+        site.time_zone.as_str(),
+        site.introduction_capacity
     );
     db::audit::record(&mut tx, &at, actor, "settings.update", "site", &detail).await?;
     tx.commit().await?;

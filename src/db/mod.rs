@@ -290,7 +290,7 @@ pub use cases::{
     delete_driver, history_of, insert_case, list_cases, reject_case, submit_case, update_header,
 };
 pub use portfolio::{Snapshot, generation, snapshot};
-pub use scenario::{LoadSummary, database_is_empty, load_scenario};
+pub use scenario::{LoadSummary, database_is_empty, export_layout, load_scenario};
 pub use site::{get_site, number_format, page_settings, put_site};
 pub use users::{
     NewToken, SessionRow, TokenRow, TokenUse, User, count_users, delete_session, get_session, get_user, insert_session,

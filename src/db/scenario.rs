@@ -1,6 +1,7 @@
 //! Loading a whole scenario file in one transaction.
 
-use super::{DbError, DbResult, begin_write, insert_case, insert_zone, ledger, put_site};
+use super::zones::{insert_zone_row, set_needs};
+use super::{DbError, DbResult, begin_write, insert_case, ledger, put_site};
 use crate::domain::{EntryKind, FieldErrors, Scenario};
 use sqlx::{SqliteConnection, SqlitePool};
 
@@ -73,6 +74,15 @@ async fn load_zone_extras(
     Ok(z.ledger.len())
 }
 
+/// The site settings and every zone with its area and needs as a scenario document
+/// ([`crate::domain::layout_document`]): loading it into an empty database gives the same
+/// settings and zones.
+pub async fn export_layout(pool: &SqlitePool) -> DbResult<serde_json::Value> {
+    let site = super::get_site(pool).await?;
+    let zones = super::list_zones(pool).await?;
+    Ok(crate::domain::layout_document(&site, &zones))
+}
+
 /// Whether the database has never been loaded (no site settings yet).
 pub async fn database_is_empty(pool: &SqlitePool) -> DbResult<bool> {
     let n: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM site_settings").fetch_one(pool).await?;
@@ -105,14 +115,27 @@ pub async fn load_scenario(
         ));
     }
     let (mut cases, mut entries) = (0, 0);
+    let mut ids = Vec::with_capacity(scenario.zones.len());
     for (i, z) in scenario.zones.iter().enumerate() {
-        let zone_id = insert_zone(&mut tx, &z.zone, actor, &at).await?;
+        let zone_id = insert_zone_row(&mut tx, &z.zone, actor, &at).await?;
+        ids.push(zone_id);
         for c in &z.cases {
             insert_case(&mut tx, zone_id, c, actor, &at).await?;
             cases += 1;
         }
         entries += load_zone_extras(&mut tx, i, zone_id, z, (actor, now)).await?;
         progress(i + 1);
+    }
+    // Needs once every zone of the file is stored: a zone may need one defined after it.
+    for (i, (z, id)) in scenario.zones.iter().zip(&ids).enumerate() {
+        set_needs(&mut tx, *id, &z.zone.needs, actor, &at).await.map_err(|e| match e {
+            DbError::Invalid(fields) => {
+                let mut named = FieldErrors::default();
+                named.extend_prefixed(&format!("zones[{i}]."), fields);
+                DbError::Invalid(named)
+            }
+            other => other,
+        })?;
     }
     tx.commit().await?;
     Ok(LoadSummary { zones: scenario.zones.len(), cases, entries })

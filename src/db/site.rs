@@ -13,7 +13,7 @@ pub async fn get_site(pool: &SqlitePool) -> DbResult<SiteSettings> {
 pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSettings> {
     let row = sqlx::query(
         "SELECT plant_name, currency, hurdle_rate, tax_rate, depreciation_years, default_horizon_months, expert_multiplier,
-                number_format, one_person_approval, time_zone
+                number_format, one_person_approval, time_zone, introduction_capacity
          FROM site_settings WHERE id = 1",
     )
     .fetch_optional(conn)
@@ -33,6 +33,7 @@ pub(super) async fn get_site_in(conn: &mut SqliteConnection) -> DbResult<SiteSet
         number_format: parsed("number_format", row.try_get("number_format")?, NumberFormat::parse)?,
         one_person_approval: row.try_get::<i64, _>("one_person_approval")? != 0,
         time_zone: parsed("time_zone", row.try_get("time_zone")?, PlantZone::parse)?,
+        introduction_capacity: count("introduction_capacity", row.try_get("introduction_capacity")?)?,
     })
 }
 
@@ -79,14 +80,15 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     sqlx::query(
         "INSERT INTO site_settings (id, plant_name, currency, hurdle_rate, tax_rate, depreciation_years,
                                     default_horizon_months, expert_multiplier, number_format, one_person_approval,
-                                    time_zone, updated_at, updated_by)
-         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                    time_zone, introduction_capacity, updated_at, updated_by)
+         VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          ON CONFLICT (id) DO UPDATE SET plant_name = excluded.plant_name, currency = excluded.currency,
              hurdle_rate = excluded.hurdle_rate, tax_rate = excluded.tax_rate,
              depreciation_years = excluded.depreciation_years,
              default_horizon_months = excluded.default_horizon_months,
              expert_multiplier = excluded.expert_multiplier, number_format = excluded.number_format,
              one_person_approval = excluded.one_person_approval, time_zone = excluded.time_zone,
+             introduction_capacity = excluded.introduction_capacity,
              updated_at = excluded.updated_at, updated_by = excluded.updated_by",
     )
     .bind(&site.plant_name)
@@ -99,6 +101,7 @@ pub async fn put_site(conn: &mut SqliteConnection, site: &SiteSettings, actor: &
     .bind(site.number_format.as_str())
     .bind(i64::from(site.one_person_approval))
     .bind(site.time_zone.as_str())
+    .bind(i64::from(site.introduction_capacity))
     .bind(at)
     .bind(actor)
     .execute(conn)

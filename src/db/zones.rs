@@ -1,15 +1,18 @@
 //! Zones.
 
 use super::{DbError, DbResult, parsed, unique_as};
-use crate::domain::{FieldErrors, NewZone, Zone, ZoneStatus};
+use crate::domain::{FieldErrors, NewZone, Zone, ZoneStatus, cycle_message, cycle_through};
 use sqlx::sqlite::SqliteRow;
 use sqlx::{Row, SqliteConnection, SqlitePool};
+use std::collections::{BTreeSet, HashMap};
 
 /// `SELECT <zone columns> <rest>` as one static string.
 macro_rules! select_zone {
     ($rest:literal) => {
         concat!(
-            "SELECT id, code, name, description, owner, status, created_at, created_by, updated_at, updated_by ",
+            "SELECT id, code, name, description, owner, status, created_at, created_by, updated_at, updated_by, area,
+                    (SELECT group_concat(n.code, ' ') FROM zone_needs d JOIN zones n ON n.id = d.needs_id
+                     WHERE d.zone_id = zones.id) AS needs ",
             $rest
         )
     };
@@ -27,7 +30,17 @@ fn zone_from(row: &SqliteRow) -> DbResult<Zone> {
         created_by: row.try_get("created_by")?,
         updated_at: row.try_get("updated_at")?,
         updated_by: row.try_get("updated_by")?,
+        area: row.try_get("area")?,
+        needs: needs_from(row.try_get("needs")?),
     })
+}
+
+/// The needs' codes from their space-separated list, sorted (SQLite's group_concat keeps no
+/// order).
+fn needs_from(list: Option<String>) -> Vec<String> {
+    let mut codes: Vec<String> = list.unwrap_or_default().split_whitespace().map(str::to_string).collect();
+    codes.sort();
+    codes
 }
 
 /// Every zone, by code.
@@ -52,17 +65,33 @@ pub(super) async fn get_zone_in(conn: &mut SqliteConnection, id: i64) -> DbResul
     row.as_ref().map(zone_from).transpose()?.ok_or(DbError::NotFound("zone"))
 }
 
-/// Insert a zone; a taken code is a conflict the user can fix.
+/// Insert a zone with its needs ([`set_needs`]'s rules); a taken code is a conflict the user
+/// can fix.
 pub async fn insert_zone(conn: &mut SqliteConnection, zone: &NewZone, actor: &str, ts: &str) -> DbResult<i64> {
+    let id = insert_zone_row(conn, zone, actor, ts).await?;
+    set_needs(conn, id, &zone.needs, actor, ts).await?;
+    Ok(id)
+}
+
+/// Insert a zone's row without its needs (a scenario file sets them once every zone of the
+/// file is stored, so a zone may need one defined later).
+pub(super) async fn insert_zone_row(
+    conn: &mut SqliteConnection,
+    zone: &NewZone,
+    actor: &str,
+    ts: &str,
+) -> DbResult<i64> {
     let id = sqlx::query_scalar(
-        "INSERT INTO zones (code, name, description, owner, status, created_at, created_by, updated_at, updated_by)
-         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
+        "INSERT INTO zones (code, name, description, owner, status, area, created_at, created_by, updated_at,
+                            updated_by)
+         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?) RETURNING id",
     )
     .bind(&zone.code)
     .bind(&zone.name)
     .bind(&zone.description)
     .bind(&zone.owner)
     .bind(zone.status.as_str())
+    .bind(&zone.area)
     .bind(ts)
     .bind(actor)
     .bind(ts)
@@ -119,7 +148,8 @@ pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, a
         other => other,
     })?;
     let done = sqlx::query(
-        "UPDATE zones SET code = ?, name = ?, description = ?, owner = ?, status = ?, updated_at = ?, updated_by = ?
+        "UPDATE zones SET code = ?, name = ?, description = ?, owner = ?, status = ?, area = ?, updated_at = ?,
+                          updated_by = ?
          WHERE id = ?",
     )
     .bind(&zone.code)
@@ -127,14 +157,84 @@ pub async fn update_zone(conn: &mut SqliteConnection, id: i64, zone: &NewZone, a
     .bind(&zone.description)
     .bind(&zone.owner)
     .bind(zone.status.as_str())
+    .bind(&zone.area)
     .bind(at)
     .bind(actor)
     .bind(id)
-    .execute(conn)
+    .execute(&mut *conn)
     .await
     .map_err(|e| unique_as(e, format!("a zone with code {} already exists", zone.code)))?;
     if done.rows_affected() == 0 {
         return Err(DbError::NotFound("zone"));
+    }
+    set_needs(conn, id, &zone.needs, actor, at).await
+}
+
+/// Make zone `id` need exactly the zones coded `needs`. Refused (422 on `needs`) when a code
+/// names no zone, names the zone itself, or would close a cycle of needs. Rows of needs that
+/// stay keep who wrote them and when.
+pub(super) async fn set_needs(
+    conn: &mut SqliteConnection,
+    id: i64,
+    needs: &[String],
+    actor: &str,
+    at: &str,
+) -> DbResult<()> {
+    // Most zones need nothing: then skip reading every zone (a scenario stores thousands).
+    if needs.is_empty() {
+        let had: i64 = sqlx::query_scalar("SELECT COUNT(*) FROM zone_needs WHERE zone_id = ?")
+            .bind(id)
+            .fetch_one(&mut *conn)
+            .await?;
+        if had == 0 {
+            return Ok(());
+        }
+    }
+    let codes: HashMap<i64, String> =
+        sqlx::query_as("SELECT id, code FROM zones").fetch_all(&mut *conn).await?.into_iter().collect();
+    let ids: HashMap<&str, i64> = codes.iter().map(|(id, code)| (code.as_str(), *id)).collect();
+    let unknown: Vec<&str> = needs.iter().map(String::as_str).filter(|c| !ids.contains_key(c)).collect();
+    let refuse = |msg: String| DbError::Invalid(FieldErrors::one("needs", msg));
+    match unknown.as_slice() {
+        [] => {}
+        [one] => return Err(refuse(format!("no zone {one}"))),
+        many => return Err(refuse(format!("no zones {}", many.join(", ")))),
+    }
+    let wanted: BTreeSet<i64> = needs.iter().filter_map(|c| ids.get(c.as_str()).copied()).collect();
+    let edges: Vec<(i64, i64)> =
+        sqlx::query_as("SELECT zone_id, needs_id FROM zone_needs").fetch_all(&mut *conn).await?;
+    let mut needs_of: HashMap<i64, Vec<i64>> = HashMap::new();
+    let mut had = BTreeSet::new();
+    for (zone, needed) in edges {
+        if zone == id {
+            had.insert(needed);
+        } else {
+            needs_of.entry(zone).or_default().push(needed);
+        }
+    }
+    if had == wanted {
+        return Ok(());
+    }
+    let wanted_list: Vec<i64> = wanted.iter().copied().collect();
+    if let Some(chain) = cycle_through(id, &wanted_list, &needs_of) {
+        let named: Vec<&str> = chain.iter().map(|z| codes.get(z).map_or("?", String::as_str)).collect();
+        return Err(refuse(cycle_message(&named)));
+    }
+    for gone in had.difference(&wanted) {
+        sqlx::query("DELETE FROM zone_needs WHERE zone_id = ? AND needs_id = ?")
+            .bind(id)
+            .bind(gone)
+            .execute(&mut *conn)
+            .await?;
+    }
+    for new in wanted.difference(&had) {
+        sqlx::query("INSERT INTO zone_needs (zone_id, needs_id, created_at, created_by) VALUES (?, ?, ?, ?)")
+            .bind(id)
+            .bind(new)
+            .bind(at)
+            .bind(actor)
+            .execute(&mut *conn)
+            .await?;
     }
     Ok(())
 }

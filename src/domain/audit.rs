@@ -100,8 +100,12 @@ pub fn audit_sentence(actor: &str, action: &str, subject: &str, detail: &str, fa
         }
         "settings.update" => format!("{actor} changed the site settings{}", colon(&settings_words(detail))),
         "readiness.weights" => format!("{actor} set the readiness weights{}", colon(&scores_words(detail))),
-        "zone.create" => format!("{actor} added zone {}", if detail.is_empty() { &zone } else { detail }),
-        "zone.update" => format!("{actor} changed the name or status of {zone}{}", colon(detail)),
+        "zone.create" => match detail.split_once("; ") {
+            // Since migration 0017: "CODE; needs A, B; area X" (each part only when set).
+            Some((code, more)) => format!("{actor} added zone {code} ({more})"),
+            None => format!("{actor} added zone {}", if detail.is_empty() { &zone } else { detail }),
+        },
+        "zone.update" => format!("{actor} changed the details of {zone}{}", colon(detail)),
         "zone.status" => match detail.split_once(" -> ") {
             Some((from, to)) => format!("{actor} moved {zone} from {from} to {to}"),
             None => format!("{actor} changed the status of {zone}{}", colon(detail)),
@@ -357,6 +361,14 @@ mod tests {
             ),
             (
                 "admin",
+                "settings.update",
+                "site",
+                "currency EUR, hurdle 0.09, tax none, depreciation 5, one-person approval true, numbers decimal_comma, time zone UTC, introductions at a time 3",
+                &none,
+                "admin changed the site settings: currency EUR, hurdle rate 9 %, no tax rate, depreciation over 5 years, one-person approval allowed, numbers written decimal comma, time zone UTC, introductions at a time 3",
+            ),
+            (
+                "admin",
                 "readiness.weights",
                 "readiness",
                 "data_reach=2 fit_with_systems=1",
@@ -366,11 +378,27 @@ mod tests {
             ("lead", "zone.create", "zone 4", "PRESS-2", &zone, "lead added zone PRESS-2"),
             (
                 "lead",
+                "zone.create",
+                "zone 4",
+                "PRESS-2; needs PAINT-1, PRESS-1; area press shop",
+                &zone,
+                "lead added zone PRESS-2 (needs PAINT-1, PRESS-1; area press shop)",
+            ),
+            (
+                "lead",
                 "zone.update",
                 "zone 4",
                 "PRESS-2 Press line 2 measuring",
                 &zone,
-                "lead changed the name or status of PRESS-2: PRESS-2 Press line 2 measuring",
+                "lead changed the details of PRESS-2: PRESS-2 Press line 2 measuring",
+            ),
+            (
+                "lead",
+                "zone.update",
+                "zone 4",
+                "PRESS-2 Press line 2 measuring; needs no other zone; area press shop",
+                &zone,
+                "lead changed the details of PRESS-2: PRESS-2 Press line 2 measuring; needs no other zone; area press shop",
             ),
             (
                 "lead",

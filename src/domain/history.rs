@@ -255,6 +255,7 @@ mod tests {
             number_format: crate::domain::NumberFormat::default(),
             one_person_approval: false,
             time_zone: crate::domain::PlantZone::default(),
+            introduction_capacity: 2,
         };
         let e = h.expected(&site).unwrap();
         assert_eq!((e.start, e.net.len()), (m("2025-01"), 12));

@@ -21,6 +21,7 @@ pub mod pack;
 mod portfolio;
 mod readiness;
 mod realized;
+mod roadmap;
 mod scenario;
 mod site;
 mod uncertainty;
@@ -51,8 +52,9 @@ pub use portfolio::{
 };
 pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
-pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
-pub use site::{SiteSettings, SiteSettingsInput};
+pub use roadmap::{RoadmapAnswer, RoadmapParams, RoadmapQuery, RoadmapZone, roadmap_answer};
+pub use scenario::{Scenario, ScenarioEntry, ZoneScenario, layout_document};
+pub use site::{DEFAULT_INTRODUCTION_CAPACITY, MAX_INTRODUCTION_CAPACITY, SiteSettings, SiteSettingsInput};
 pub use uncertainty::{
     Calibration, CaseUncertainty, DEFAULT_SEED, DriverFigures, Trials, case_uncertainty, chance_weighted_npv,
     parse_seed, quantity_ranges,
@@ -61,7 +63,7 @@ pub use user::{
     TOKEN_DAYS_DEFAULT, TOKEN_DAYS_MAX, USER_NAME_MAX, check_token_days, issued_on_behalf, parse_token_days,
     parse_user_name,
 };
-pub use zone::{NewZone, Zone, ZoneInput, ZoneStatus};
+pub use zone::{MAX_AREA_CHARS, MAX_NEEDS, NewZone, Zone, ZoneInput, ZoneStatus, cycle_message, cycle_through};
 
 use serde::Serialize;
 use std::fmt;

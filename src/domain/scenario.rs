@@ -4,7 +4,7 @@
 
 use super::{
     Booking, BookingInput, CaseSpec, CaseSpecInput, EntryKind, FieldErrors, NewZone, NumberFormat, RateStyle,
-    SCORE_RANGE, SiteSettings, SiteSettingsInput, ZoneInput,
+    SCORE_RANGE, SiteSettings, SiteSettingsInput, Zone, ZoneInput,
 };
 use rust_decimal::Decimal;
 use serde::Deserialize;
@@ -180,6 +180,20 @@ impl Scenario {
         }
         e.into_result(|| Self { site, zones })
     }
+}
+
+/// The site settings and every zone (its fields, area and needs) as a scenario document that
+/// [`Scenario::parse`] reads back to the same settings and zones. Cases, readiness scores and
+/// ledgers are not written: this is the plant's layout, not its history. Decimal strings are
+/// written in the site's number format, the format the document declares.
+pub fn layout_document(site: &SiteSettings, zones: &[Zone]) -> serde_json::Value {
+    let mut input = site.input();
+    let f = site.number_format;
+    for text in [&mut input.hurdle_rate, &mut input.tax_rate, &mut input.expert_multiplier] {
+        *text = f.export(text);
+    }
+    let zones: Vec<ZoneInput> = zones.iter().map(Zone::input).collect();
+    serde_json::json!({ "format": SCENARIO_FORMAT, "version": SCENARIO_VERSION, "site": input, "zones": zones })
 }
 
 /// Turn the file's JSON numbers with decimals into text in `numbers`, so that one reader reads

@@ -30,14 +30,24 @@ pub struct SiteSettings {
     /// The plant's time zone (IANA name): pages show timestamps in its local time.
     #[serde(serialize_with = "zone_name")]
     pub time_zone: PlantZone,
+    /// Introductions at a time: at most this many zones inside their introduction window in
+    /// any month (the roadmap's capacity).
+    pub introduction_capacity: u32,
 }
+
+/// Introductions at a time when the site has not set it.
+pub const DEFAULT_INTRODUCTION_CAPACITY: u32 = 2;
+
+/// The most introductions at a time a site may set (every month of a plan is one capacity
+/// row for the solver; a plant absorbing more than this at once is not the case we model).
+pub const MAX_INTRODUCTION_CAPACITY: u32 = 20;
 
 fn zone_name<S: serde::Serializer>(zone: &PlantZone, s: S) -> Result<S::Ok, S::Error> {
     s.serialize_str(zone.as_str())
 }
 
 /// Raw settings as a scenario file gives them (rates as fractions).
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
 #[serde(default)]
 pub struct SiteSettingsInput {
     /// Plant name.
@@ -66,6 +76,9 @@ pub struct SiteSettingsInput {
     pub one_person_approval: bool,
     /// IANA time zone name; empty for UTC.
     pub time_zone: String,
+    /// Introductions at a time, 1 to 20; empty for 2.
+    #[serde(deserialize_with = "string_or_number")]
+    pub introduction_capacity: String,
 }
 
 impl SiteSettings {
@@ -111,6 +124,11 @@ impl SiteSettings {
         } else {
             e.take("expert_multiplier", super::parse_expert_multiplier(&input.expert_multiplier, f))
         };
+        let introduction_capacity = if input.introduction_capacity.trim().is_empty() {
+            Some(DEFAULT_INTRODUCTION_CAPACITY)
+        } else {
+            e.take("introduction_capacity", read_count(&input.introduction_capacity, 1, MAX_INTRODUCTION_CAPACITY))
+        };
         match (
             plant_name,
             currency,
@@ -121,6 +139,7 @@ impl SiteSettings {
             expert_multiplier,
             number_format,
             time_zone,
+            introduction_capacity,
         ) {
             (
                 Some(plant_name),
@@ -132,6 +151,7 @@ impl SiteSettings {
                 Some(expert_multiplier),
                 Some(number_format),
                 Some(time_zone),
+                Some(introduction_capacity),
             ) if e.is_empty() => Ok(Self {
                 plant_name,
                 currency,
@@ -143,6 +163,7 @@ impl SiteSettings {
                 number_format,
                 one_person_approval: input.one_person_approval,
                 time_zone,
+                introduction_capacity,
             }),
             _ => Err(e),
         }
@@ -162,6 +183,7 @@ impl SiteSettings {
             number_format: self.number_format.as_str().to_string(),
             one_person_approval: self.one_person_approval,
             time_zone: self.time_zone.as_str().to_string(),
+            introduction_capacity: self.introduction_capacity.to_string(),
         }
     }
 
@@ -209,4 +231,35 @@ fn parse_rate(value: &str, format: NumberFormat) -> Result<Decimal, String> {
 
 fn fraction_0_1(d: Decimal) -> Result<Decimal, String> {
     if (Decimal::ZERO..=Decimal::ONE).contains(&d) { Ok(d) } else { Err("a fraction from 0 to 1, e.g. 0.25".into()) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn with_capacity(k: &str) -> SiteSettingsInput {
+        SiteSettingsInput {
+            plant_name: "Test works".into(),
+            currency: "EUR".into(),
+            hurdle_rate: "0.09".into(),
+            introduction_capacity: k.into(),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn introductions_at_a_time_are_1_to_20_and_2_when_empty() {
+        let read =
+            |k: &str| SiteSettings::parse(&with_capacity(k), NumberFormat::Plain).map(|s| s.introduction_capacity);
+        assert_eq!(read(""), Ok(2));
+        assert_eq!(read("1"), Ok(1));
+        assert_eq!(read("20"), Ok(20));
+        let refused = |k: &str| read(k).err().unwrap_or_default().get("introduction_capacity").map(str::to_string);
+        assert_eq!(refused("0"), Some("\"0\" is outside 1 to 20: enter a whole number from 1 to 20".into()));
+        assert_eq!(refused("21"), Some("\"21\" is outside 1 to 20: enter a whole number from 1 to 20".into()));
+        // The input written back parses to the same settings.
+        let site = SiteSettings::parse(&with_capacity("7"), NumberFormat::Plain);
+        let again = site.as_ref().map(|s| SiteSettings::parse(&s.input(), NumberFormat::Plain));
+        assert_eq!(again.ok().and_then(Result::ok), site.ok());
+    }
 }

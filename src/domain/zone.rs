@@ -130,7 +130,31 @@ pub struct ZoneInput {
     pub owner: String,
     /// Lifecycle status; empty means candidate.
     pub status: String,
+    /// Area of the plant; empty for none.
+    pub area: String,
+    /// Codes of the zones that must be live first (the zone form sends them comma-separated,
+    /// see [`ZoneInput::split_needs`]).
+    pub needs: Vec<String>,
 }
+
+impl ZoneInput {
+    /// The needs as the zone form's one text field shows them.
+    pub fn needs_text(&self) -> String {
+        self.needs.join(", ")
+    }
+
+    /// The needs of the zone form's one text field: codes separated by commas.
+    pub fn split_needs(text: &str) -> Vec<String> {
+        text.split(',').map(str::trim).filter(|c| !c.is_empty()).map(str::to_string).collect()
+    }
+}
+
+/// At most this many needs per zone: a roadmap's dependencies are few, and every need is one
+/// more precedence row for the solver.
+pub const MAX_NEEDS: usize = 20;
+
+/// Longest area name, in characters.
+pub const MAX_AREA_CHARS: usize = 60;
 
 /// A valid zone, ready to store.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -145,6 +169,11 @@ pub struct NewZone {
     pub owner: String,
     /// Lifecycle status.
     pub status: ZoneStatus,
+    /// Area of the plant, trimmed; empty for none.
+    pub area: String,
+    /// Codes of the zones it needs live first: upper-cased, sorted, each once, never its own.
+    /// Whether they name stored zones (and make no cycle) is checked where they are stored.
+    pub needs: Vec<String>,
 }
 
 impl NewZone {
@@ -155,14 +184,18 @@ impl NewZone {
         let name = errors.take("name", required_text(&input.name, 120));
         let description = errors.take("description", optional_text(&input.description, 2000));
         let owner = errors.take("owner", optional_text(&input.owner, 120));
+        let area = errors.take("area", optional_text(&input.area, MAX_AREA_CHARS));
+        let needs = errors.take("needs", parse_needs(&input.needs, code.as_deref()));
         let status = if input.status.trim().is_empty() {
             Some(ZoneStatus::Candidate)
         } else {
             errors.take("status", ZoneStatus::parse(&input.status))
         };
-        match (code, name, description, owner, status) {
-            (Some(code), Some(name), Some(description), Some(owner), Some(status)) if errors.is_empty() => {
-                Ok(Self { code, name, description, owner, status })
+        match (code, name, description, owner, status, area, needs) {
+            (Some(code), Some(name), Some(description), Some(owner), Some(status), Some(area), Some(needs))
+                if errors.is_empty() =>
+            {
+                Ok(Self { code, name, description, owner, status, area, needs })
             }
             _ => Err(errors),
         }
@@ -184,11 +217,96 @@ impl NewZone {
     }
 }
 
+/// The needs as codes: each a zone code (upper-cased), each once, sorted; not `own` (the zone's
+/// own code, when it is valid).
+fn parse_needs(values: &[String], own: Option<&str>) -> Result<Vec<String>, String> {
+    let mut codes = std::collections::BTreeSet::new();
+    for value in values {
+        let code = parse_code(value).map_err(|_| {
+            format!("{:?} is not a zone code (1 to 16 letters, digits or dashes, e.g. PRESS-2)", value.trim())
+        })?;
+        if Some(code.as_str()) == own {
+            return Err(format!("{code} cannot need itself"));
+        }
+        codes.insert(code);
+    }
+    if codes.len() > MAX_NEEDS {
+        return Err(format!("at most {MAX_NEEDS} zones (MAX_NEEDS); {} given", codes.len()));
+    }
+    Ok(codes.into_iter().collect())
+}
+
 fn parse_code(value: &str) -> Result<String, String> {
     let code = value.trim().to_uppercase();
     let ok = (1..=16).contains(&code.len())
         && code.chars().all(|c| c.is_ascii_uppercase() || c.is_ascii_digit() || c == '-');
     if ok { Ok(code) } else { Err("1 to 16 letters, digits or dashes, e.g. PRESS-2".into()) }
+}
+
+/// The shortest chain of needs that would lead from `zone` back to itself if it needed
+/// `needs`, given the other zones' needs (`needs_of`: zone -> the zones it needs, its own
+/// entry ignored): `[zone, a, .., zone]`, or `None` when the needs stay free of cycles. The
+/// stored needs are free of cycles, so a new cycle passes through `zone`; a breadth-first
+/// search from its needs finds the shortest one.
+pub fn cycle_through<K: Copy + Eq + std::hash::Hash + Ord>(
+    zone: K,
+    needs: &[K],
+    needs_of: &std::collections::HashMap<K, Vec<K>>,
+) -> Option<Vec<K>> {
+    use std::collections::{HashMap, VecDeque};
+    let mut came_from: HashMap<K, K> = HashMap::new();
+    let mut queue: VecDeque<K> = VecDeque::new();
+    let mut first: Vec<K> = needs.to_vec();
+    first.sort();
+    for n in first {
+        if n == zone {
+            return Some(vec![zone, zone]);
+        }
+        if came_from.insert(n, zone).is_none() {
+            queue.push_back(n);
+        }
+    }
+    while let Some(at) = queue.pop_front() {
+        let mut next = needs_of.get(&at).cloned().unwrap_or_default();
+        next.sort();
+        for n in next {
+            if n == zone {
+                // Walk back from `at` to `zone`, then read the chain forwards.
+                let mut back = vec![at];
+                let mut k = at;
+                while let Some(&p) = came_from.get(&k) {
+                    if p == zone {
+                        break;
+                    }
+                    back.push(p);
+                    k = p;
+                }
+                let mut chain = vec![zone];
+                chain.extend(back.into_iter().rev());
+                chain.push(zone);
+                return Some(chain);
+            }
+            if let std::collections::hash_map::Entry::Vacant(e) = came_from.entry(n) {
+                e.insert(at);
+                queue.push_back(n);
+            }
+        }
+    }
+    None
+}
+
+/// The refusal of a cycle of needs, by code: `chain` is `[zone, a, .., zone]`.
+pub fn cycle_message(chain: &[&str]) -> String {
+    let members = &chain[..chain.len().saturating_sub(1)];
+    match members {
+        [a] => format!("{a} cannot need itself"),
+        [a, b] => format!("{a} and {b} would need each other"),
+        _ => {
+            let (last, rest) = members.split_last().map_or(("", &[][..]), |(l, r)| (*l, r));
+            let steps: Vec<String> = chain.windows(2).map(|w| format!("{} needs {}", w[0], w[1])).collect();
+            format!("{} and {last} would need each other in a circle: {}", rest.join(", "), steps.join(", "))
+        }
+    }
 }
 
 /// A stored zone.
@@ -214,6 +332,25 @@ pub struct Zone {
     pub updated_at: String,
     /// Who changed it last.
     pub updated_by: String,
+    /// Area of the plant (e.g. press shop); empty for none. One introduction at a time per area.
+    pub area: String,
+    /// Codes of the zones that must be live before this one starts, by code.
+    pub needs: Vec<String>,
+}
+
+impl Zone {
+    /// The raw fields this zone parses back from (a scenario file's zone, a form's defaults).
+    pub fn input(&self) -> ZoneInput {
+        ZoneInput {
+            code: self.code.clone(),
+            name: self.name.clone(),
+            description: self.description.clone(),
+            owner: self.owner.clone(),
+            status: self.status.as_str().to_string(),
+            area: self.area.clone(),
+            needs: self.needs.clone(),
+        }
+    }
 }
 
 #[cfg(test)]
@@ -263,5 +400,48 @@ mod tests {
         let input = ZoneInput { code: "weld-1".into(), name: "Weld cell".into(), ..Default::default() };
         let zone = NewZone::parse(&input).map(|z| z.code);
         assert_eq!(zone, Ok("WELD-1".to_string()));
+    }
+
+    #[test]
+    fn area_and_needs_are_read_and_checked() -> Result<(), FieldErrors> {
+        let input = ZoneInput {
+            code: "paint-1".into(),
+            name: "Paint line".into(),
+            area: "  paint shop ".into(),
+            needs: ZoneInput::split_needs(" press-2, PRESS-1,,press-2 "),
+            ..Default::default()
+        };
+        let zone = NewZone::parse(&input)?;
+        // Trimmed; codes upper-cased, each once, sorted.
+        assert_eq!((zone.area.as_str(), zone.needs), ("paint shop", vec!["PRESS-1".to_string(), "PRESS-2".into()]));
+        let long = ZoneInput { area: "a".repeat(61), ..input.clone() };
+        assert_eq!(NewZone::parse(&long).err().unwrap_or_default().get("area"), Some("at most 60 characters"));
+        // Positive control at the bound.
+        assert!(NewZone::parse(&ZoneInput { area: "a".repeat(60), ..input.clone() }).is_ok());
+        let own = ZoneInput { needs: vec!["Paint-1".into()], ..input.clone() };
+        assert_eq!(NewZone::parse(&own).err().unwrap_or_default().get("needs"), Some("PAINT-1 cannot need itself"));
+        let bad = ZoneInput { needs: vec!["press 2".into()], ..input };
+        assert_eq!(
+            NewZone::parse(&bad).err().unwrap_or_default().get("needs"),
+            Some("\"press 2\" is not a zone code (1 to 16 letters, digits or dashes, e.g. PRESS-2)")
+        );
+        Ok(())
+    }
+
+    #[test]
+    fn a_cycle_is_found_and_named() {
+        use std::collections::HashMap;
+        // 2 needs 3, 3 needs 4; 5 needs nothing.
+        let needs_of: HashMap<u8, Vec<u8>> = [(2, vec![3]), (3, vec![4])].into_iter().collect();
+        assert_eq!(cycle_through(4, &[5], &needs_of), None);
+        assert_eq!(cycle_through(4, &[2], &needs_of), Some(vec![4, 2, 3, 4]));
+        assert_eq!(cycle_through(3, &[2], &needs_of), Some(vec![3, 2, 3]));
+        // The shortest cycle when two close: 4 -> 3 -> 4 beats 4 -> 2 -> 3 -> 4.
+        assert_eq!(cycle_through(4, &[2, 3], &needs_of), Some(vec![4, 3, 4]));
+        assert_eq!(cycle_message(&["PRESS-2", "PAINT-1", "PRESS-2"]), "PRESS-2 and PAINT-1 would need each other");
+        assert_eq!(
+            cycle_message(&["A-1", "B-1", "C-1", "A-1"]),
+            "A-1, B-1 and C-1 would need each other in a circle: A-1 needs B-1, B-1 needs C-1, C-1 needs A-1"
+        );
     }
 }

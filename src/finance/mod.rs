@@ -48,6 +48,7 @@ mod npv;
 mod payback;
 mod rate;
 mod realized;
+pub mod roadmap;
 pub mod schedule;
 pub mod selection;
 

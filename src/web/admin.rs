@@ -264,6 +264,7 @@ pub struct SettingsForm {
     #[serde(deserialize_with = "crate::domain::de::flexible_bool")]
     one_person_approval: bool,
     time_zone: String,
+    introduction_capacity: String,
 }
 
 /// POST /admin/settings: numbers are read in the format the form was shown in (the current one).
@@ -291,6 +292,7 @@ pub async fn update_settings(
         number_format: f.number_format,
         one_person_approval: f.one_person_approval,
         time_zone: f.time_zone,
+        introduction_capacity: f.introduction_capacity,
     };
     let site = match SiteSettings::parse(&input, shown) {
         Ok(site) if e.is_empty() => site,

@@ -38,12 +38,8 @@ pub async fn create_zone(
     JsonBody(input): JsonBody<ZoneInput>,
 ) -> Result<impl IntoResponse, ApiError> {
     let zone = NewZone::parse_new(&input)?;
-    let at = db::timestamp(state.clock.now());
-    let mut tx = db::begin_write(&state.pool).await?;
-    let id = db::insert_zone(&mut tx, &zone, user.name(), &at).await?;
-    db::audit::record(&mut tx, &at, user.name(), "zone.create", &format!("zone {id}"), &zone.code).await?;
-    tx.commit().await?;
-    let zone = db::get_zone(&state.pool, id).await?;
+    let zone = app::zones::create(&state.pool, user.name(), &zone, state.clock.now()).await?;
+    let id = zone.id;
     Ok((StatusCode::CREATED, [(header::LOCATION, format!("/api/v1/zones/{id}"))], Json(json!({ "zone": zone }))))
 }
 
@@ -294,6 +290,7 @@ fn site_json(site: &SiteSettings) -> Value {
         "one_person_approval": site.one_person_approval,
         "number_format": site.number_format.as_str(),
         "time_zone": site.time_zone.as_str(),
+        "introduction_capacity": site.introduction_capacity,
     }})
 }
 
@@ -322,6 +319,8 @@ pub struct SitePatch {
     one_person_approval: Option<bool>,
     number_format: Option<String>,
     time_zone: Option<String>,
+    #[serde(deserialize_with = "present")]
+    introduction_capacity: Option<String>,
 }
 
 /// A field that is present: its text (a number as written, `null` as empty).
@@ -346,6 +345,7 @@ impl SitePatch {
         set(&mut input.expert_multiplier, self.expert_multiplier);
         set(&mut input.number_format, self.number_format);
         set(&mut input.time_zone, self.time_zone);
+        set(&mut input.introduction_capacity, self.introduction_capacity);
         if let Some(v) = self.one_person_approval {
             input.one_person_approval = v;
         }

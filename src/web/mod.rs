@@ -15,6 +15,7 @@ mod packs;
 mod pages;
 mod portfolio;
 pub mod problems;
+mod roadmap;
 mod uncertainty;
 mod zones;
 

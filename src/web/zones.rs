@@ -3,10 +3,11 @@
 use super::auth::{CurrentUser, Nav};
 use super::cases::{MetricsView, load_figures};
 use super::{AppError, AppState, FormBody};
+use crate::app;
 use crate::db::{self, CaseVersion};
 use crate::domain::{
-    CaseHeader, CaseSpec, CaseState, Criterion, FieldErrors, Month, NewZone, Readiness, SiteSettings, Zone, ZoneInput,
-    ZoneStatus, parse_scores,
+    CaseHeader, CaseSpec, CaseState, Criterion, FieldErrors, Month, NewZone, Readiness, SiteSettings, Zone, ZoneId,
+    ZoneInput, ZoneStatus, parse_scores,
 };
 use askama::Template;
 use axum::extract::{Path, State};
@@ -52,13 +53,41 @@ async fn list_page(state: &AppState, nav: Nav, form: ZoneInput, errors: FieldErr
     Ok(ListPage { nav, site, rows, form, errors, problems, statuses: [ZoneStatus::Candidate, ZoneStatus::Shelved] })
 }
 
-/// A taken zone code is the user's to fix beside the code field, a refused status move
-/// beside the status field; anything else is an error.
-fn code_conflict(err: db::DbError) -> Result<FieldErrors, AppError> {
+/// A taken zone code is the user's to fix beside the code field, a refused status move or
+/// needs beside their fields; anything else is an error.
+fn code_conflict(err: app::Error) -> Result<FieldErrors, AppError> {
     match err {
-        db::DbError::Conflict(msg) => Ok(FieldErrors::one("code", msg)),
-        db::DbError::Invalid(fields) => Ok(fields),
+        app::Error::Conflict(msg) => Ok(FieldErrors::one("code", msg)),
+        app::Error::Invalid(fields) => Ok(fields),
         other => Err(other.into()),
+    }
+}
+
+/// The zone form as the browser sends it: the needs in one text field, comma-separated.
+#[derive(Debug, Default, serde::Deserialize)]
+#[serde(default)]
+pub struct ZoneForm {
+    code: String,
+    name: String,
+    description: String,
+    owner: String,
+    status: String,
+    area: String,
+    /// Zone codes separated by commas.
+    needs: String,
+}
+
+impl From<ZoneForm> for ZoneInput {
+    fn from(f: ZoneForm) -> Self {
+        ZoneInput {
+            code: f.code,
+            name: f.name,
+            description: f.description,
+            owner: f.owner,
+            status: f.status,
+            area: f.area,
+            needs: ZoneInput::split_needs(&f.needs),
+        }
     }
 }
 
@@ -71,22 +100,14 @@ pub async fn list(State(state): State<AppState>, CurrentUser(me): CurrentUser) -
 pub async fn create(
     State(state): State<AppState>,
     CurrentUser(user): CurrentUser,
-    FormBody(input): FormBody<ZoneInput>,
+    FormBody(form): FormBody<ZoneForm>,
 ) -> Result<Response, AppError> {
+    let input = ZoneInput::from(form);
     let result = match NewZone::parse_new(&input) {
-        Ok(zone) => {
-            let at = db::timestamp(state.clock.now());
-            let mut tx = db::begin_write(&state.pool).await?;
-            match db::insert_zone(&mut tx, &zone, user.name(), &at).await {
-                Ok(id) => {
-                    db::audit::record(&mut tx, &at, user.name(), "zone.create", &format!("zone {id}"), &zone.code)
-                        .await?;
-                    tx.commit().await?;
-                    return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
-                }
-                Err(err) => code_conflict(err)?,
-            }
-        }
+        Ok(zone) => match app::zones::create(&state.pool, user.name(), &zone, state.clock.now()).await {
+            Ok(zone) => return Ok(Redirect::to(&format!("/zones/{}", zone.id)).into_response()),
+            Err(err) => code_conflict(err)?,
+        },
         Err(errors) => errors,
     };
     let page = list_page(&state, Nav::from(&user), input, result).await?;
@@ -101,6 +122,10 @@ struct DetailPage {
     baselines: Vec<super::cases::BaselineLine>,
     site: SiteSettings,
     zone: Zone,
+    /// The zones it needs live first (id, code, name), by code.
+    needed: Vec<(i64, String, String)>,
+    /// The zones that need it (id, code, name), by code.
+    needed_by: Vec<(i64, String, String)>,
     /// Each version with its figures and the hurdle rate they use ("9 % at approval").
     versions: Vec<(CaseVersion, MetricsView, String)>,
     /// The flags of the approved baseline (frozen settings, self-approval, early start).
@@ -144,6 +169,15 @@ async fn detail_with(
 ) -> Result<DetailPage, AppError> {
     let site = db::get_site(&state.pool).await?;
     let zone = db::get_zone(&state.pool, id).await?;
+    let (mut needed, mut needed_by) = (Vec::new(), Vec::new());
+    for other in db::list_zones(&state.pool).await? {
+        if zone.needs.contains(&other.code) {
+            needed.push((other.id, other.code.clone(), other.name.clone()));
+        }
+        if other.needs.contains(&zone.code) {
+            needed_by.push((other.id, other.code, other.name));
+        }
+    }
     let mut versions = Vec::new();
     let mut notes = Vec::new();
     for case in db::list_cases(&state.pool, id).await? {
@@ -157,13 +191,7 @@ async fn detail_with(
         }
         versions.push((case, MetricsView::from(&figures.pre_tax.metrics), rate));
     }
-    let form = form.unwrap_or_else(|| ZoneInput {
-        code: zone.code.clone(),
-        name: zone.name.clone(),
-        description: zone.description.clone(),
-        owner: zone.owner.clone(),
-        status: zone.status.as_str().to_string(),
-    });
+    let form = form.unwrap_or_else(|| zone.input());
     let criteria = db::readiness::criteria(&state.pool).await?;
     let scores = db::readiness::zone_scores(&state.pool, id).await?;
     let readiness_score =
@@ -189,6 +217,8 @@ async fn detail_with(
         baselines,
         site,
         zone,
+        needed,
+        needed_by,
         versions,
         notes,
         form,
@@ -245,22 +275,14 @@ pub async fn update(
     State(state): State<AppState>,
     CurrentUser(user): CurrentUser,
     Path(id): Path<i64>,
-    FormBody(input): FormBody<ZoneInput>,
+    FormBody(form): FormBody<ZoneForm>,
 ) -> Result<Response, AppError> {
+    let input = ZoneInput::from(form);
     let errors = match NewZone::parse(&input) {
-        Ok(zone) => {
-            let at = db::timestamp(state.clock.now());
-            let mut tx = db::begin_write(&state.pool).await?;
-            match db::update_zone(&mut tx, id, &zone, user.name(), &at).await {
-                Ok(()) => {
-                    let detail = format!("{} {} {}", zone.code, zone.name, zone.status);
-                    db::audit::record(&mut tx, &at, user.name(), "zone.update", &format!("zone {id}"), &detail).await?;
-                    tx.commit().await?;
-                    return Ok(Redirect::to(&format!("/zones/{id}")).into_response());
-                }
-                Err(err) => code_conflict(err)?,
-            }
-        }
+        Ok(zone) => match app::zones::update(&state.pool, user.name(), ZoneId(id), &zone, state.clock.now()).await {
+            Ok(_) => return Ok(Redirect::to(&format!("/zones/{id}")).into_response()),
+            Err(err) => code_conflict(err)?,
+        },
         Err(errors) => errors,
     };
     let page = detail_page(&state, Nav::from(&user), id, Some(input), errors).await?;

@@ -29,3 +29,4 @@ mod scale;
 mod security;
 mod signin;
 mod tokens;
+mod zones_roadmap_fields;
