@@ -54,6 +54,40 @@ pub async fn get_zone(
     Ok(Json(json!({ "zone": zone, "cases": cases })))
 }
 
+/// A partial change of a zone: absent fields keep their value. The status moves through
+/// `POST /api/v1/zones/{id}/status` (its lifecycle), not here.
+#[derive(Deserialize, Serialize, Default)]
+#[serde(default, deny_unknown_fields)]
+pub struct ZonePatch {
+    code: Option<String>,
+    name: Option<String>,
+    description: Option<String>,
+    owner: Option<String>,
+    area: Option<String>,
+    needs: Option<Vec<String>>,
+}
+
+/// PATCH /api/v1/zones/{id}: change a zone's fields, area or needs (422 naming `needs` for a
+/// code that names no zone, the zone itself, or a cycle).
+pub async fn patch_zone(
+    State(state): State<AppState>,
+    _: ApiQuery<NoQuery>,
+    CurrentUser(user): CurrentUser,
+    ApiPath(id): ApiPath<i64>,
+    JsonBody(patch): JsonBody<ZonePatch>,
+) -> Result<Json<Value>, ApiError> {
+    let mut input = db::get_zone(&state.pool, id).await?.input();
+    set(&mut input.code, patch.code);
+    set(&mut input.name, patch.name);
+    set(&mut input.description, patch.description);
+    set(&mut input.owner, patch.owner);
+    set(&mut input.area, patch.area);
+    set(&mut input.needs, patch.needs);
+    let zone = NewZone::parse(&input)?;
+    let zone = app::zones::update(&state.pool, user.name(), ZoneId(id), &zone, state.clock.now()).await?;
+    Ok(Json(json!({ "zone": zone })))
+}
+
 /// POST /zones/{id}/cases: a whole case (header, costs, drivers; rates as fractions) stored as
 /// the zone's next draft version.
 pub async fn create_case(
@@ -331,11 +365,6 @@ fn present<'de, D: serde::Deserializer<'de>>(d: D) -> Result<Option<String>, D::
 impl SitePatch {
     /// Lay the given fields over `input`.
     fn apply(self, mut input: SiteSettingsInput) -> SiteSettingsInput {
-        let set = |slot: &mut String, v: Option<String>| {
-            if let Some(v) = v {
-                *slot = v;
-            }
-        };
         set(&mut input.plant_name, self.plant_name);
         set(&mut input.currency, self.currency);
         set(&mut input.hurdle_rate, self.hurdle_rate);
@@ -346,10 +375,15 @@ impl SitePatch {
         set(&mut input.number_format, self.number_format);
         set(&mut input.time_zone, self.time_zone);
         set(&mut input.introduction_capacity, self.introduction_capacity);
-        if let Some(v) = self.one_person_approval {
-            input.one_person_approval = v;
-        }
+        set(&mut input.one_person_approval, self.one_person_approval);
         input
+    }
+}
+
+/// A partial change's field: the value sent replaces the current one; absent keeps it.
+fn set<T>(slot: &mut T, sent: Option<T>) {
+    if let Some(v) = sent {
+        *slot = v;
     }
 }
 

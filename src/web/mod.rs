@@ -234,6 +234,7 @@ pub fn routes() -> Vec<Route> {
         route(g.clone(), "/api/v1/zones", Read, get(api::list_zones)),
         route(p.clone(), "/api/v1/zones", EditCases, post(api::create_zone)),
         route(g.clone(), "/api/v1/zones/{id}", Read, get(api::get_zone)),
+        route(Method::PATCH, "/api/v1/zones/{id}", EditCases, patch(api::patch_zone)),
         route(p.clone(), "/api/v1/zones/{id}/cases", EditCases, post(api::create_case)),
         route(g.clone(), "/api/v1/cases/{id}", Read, get(api::get_case)),
         route(p.clone(), "/api/v1/cases/{id}/copy", EditCases, post(api::copy_case)),

@@ -81,7 +81,26 @@ async fn the_api_stores_and_answers_area_and_needs() {
     assert_eq!(t.counts().await, before);
     // Positive control: 60 characters and a need that exists.
     let fits = json!({"code": "WELD-1", "name": "Weld", "area": "a".repeat(60), "needs": ["PRESS-1"]}).to_string();
-    assert_eq!(t.post_json("/api/v1/zones", &fits).await.status, StatusCode::CREATED);
+    let weld = t.post_json("/api/v1/zones", &fits).await;
+    assert_eq!(weld.status, StatusCode::CREATED);
+    let weld_id = weld.json()["zone"]["id"].as_i64().unwrap();
+
+    // PATCH changes area and needs; absent fields keep their value.
+    let press_id = press.json()["zone"]["id"].as_i64().unwrap();
+    let cycle = t.patch_json(&format!("/api/v1/zones/{press_id}"), r#"{"needs": ["ASSY-1"]}"#).await;
+    assert_eq!(cycle.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(fields(&cycle.json()), one("needs", "PRESS-1 and ASSY-1 would need each other"));
+    let moved = t.patch_json(&format!("/api/v1/zones/{weld_id}"), r#"{"area": "body shop", "needs": []}"#).await;
+    assert_eq!(moved.status, StatusCode::OK, "{}", moved.text);
+    let z = &moved.json()["zone"];
+    assert_eq!((&z["area"], &z["needs"], &z["name"]), (&json!("body shop"), &json!([]), &json!("Weld")));
+    let named = t.patch_json(&format!("/api/v1/zones/{weld_id}"), r#"{"name": "Weld cell"}"#).await;
+    assert_eq!(
+        (&named.json()["zone"]["area"], &named.json()["zone"]["name"]),
+        (&json!("body shop"), &json!("Weld cell"))
+    );
+    let status = t.patch_json(&format!("/api/v1/zones/{weld_id}"), r#"{"status": "shelved"}"#).await;
+    assert_eq!(status.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", status.text);
 }
 
 #[tokio::test]
