@@ -57,6 +57,41 @@ pub struct RoadmapQuery {
     pub time_limit: String,
 }
 
+/// Longest name of a named plan, in characters.
+pub const PLAN_NAME_MAX: usize = 80;
+
+/// One stored version of a named plan: its inputs, who saved it and when.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PlanVersion {
+    /// Row id.
+    pub id: i64,
+    /// The plan's name.
+    pub name: String,
+    /// 1 for the first save under this name, then 2, 3 ...
+    pub version: u32,
+    /// The inputs as entered.
+    pub inputs: RoadmapQuery,
+    /// RFC 3339 time of the save.
+    pub created_at: String,
+    /// Who saved it.
+    pub created_by: String,
+}
+
+/// A plan's name: trimmed, 1 to [`PLAN_NAME_MAX`] characters.
+pub fn parse_plan_name(value: &str) -> Result<String, String> {
+    let name = value.trim();
+    let n = name.chars().count();
+    if n == 0 {
+        Err("required: a name for the plan, such as Three-year roll-out".into())
+    } else if n > PLAN_NAME_MAX {
+        Err(format!("at most {PLAN_NAME_MAX} characters (this one has {n})"))
+    } else if name.chars().any(char::is_control) {
+        Err("one line of text without control characters".into())
+    } else {
+        Ok(name.to_string())
+    }
+}
+
 /// Valid plan inputs.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RoadmapParams {
@@ -167,6 +202,11 @@ impl RoadmapParams {
             }
             _ => Err(e),
         }
+    }
+
+    /// The default plan start: the month after `now`'s (UTC, as a new case's start month).
+    pub fn next_month(now: time::OffsetDateTime) -> Month {
+        Month::of(now.date()).plus(1)
     }
 
     /// The month `offset` months after the plan start (before it when negative).
