@@ -33,7 +33,8 @@ pub async fn insert(
     at: &str,
     by: &str,
 ) -> DbResult<(i64, u32)> {
-    let json = serde_json::to_string(inputs).map_err(|e| DbError::Conflict(format!("the inputs cannot be kept: {e}")))?;
+    let json =
+        serde_json::to_string(inputs).map_err(|e| DbError::Conflict(format!("the inputs cannot be kept: {e}")))?;
     let (id, version): (i64, i64) = sqlx::query_as(
         "INSERT INTO roadmap_plans (name, version, inputs, created_at, created_by)
          VALUES (?1, (SELECT COALESCE(MAX(version), 0) + 1 FROM roadmap_plans WHERE name = ?1), ?2, ?3, ?4)
