@@ -1,5 +1,8 @@
 //! The roll-out roadmap: the page, its CSV and the API.
 
+pub(super) mod csv;
+pub(super) mod page;
+
 use super::{AppError, AppState};
 use crate::domain::{RoadmapAnswer, RoadmapParams};
 
