@@ -13,6 +13,7 @@ pub mod ledger;
 pub mod packs;
 mod portfolio;
 pub mod readiness;
+pub mod roadmap;
 mod scenario;
 mod site;
 mod users;

@@ -11,7 +11,7 @@ use super::{LocalTime, Money, NumberFormat, quantity};
 use rust_decimal::Decimal;
 
 /// Every action code the application writes, in the order the sentences below handle them.
-pub const ACTIONS: [&str; 29] = [
+pub const ACTIONS: [&str; 30] = [
     "sign_in",
     "sign_in_failed",
     "sign_out",
@@ -41,6 +41,7 @@ pub const ACTIONS: [&str; 29] = [
     "ledger.import",
     "chain.seal",
     "pack.make",
+    "roadmap.save",
 ];
 
 /// What the trail knows about a row's subject, read with it (all optional: a subject that
@@ -132,6 +133,7 @@ pub fn audit_sentence(actor: &str, action: &str, subject: &str, detail: &str, fa
         }
         "chain.seal" => format!("the upgrade sealed the hash chains{}", colon(detail)),
         "pack.make" => format!("{actor} made decision {subject}, a {detail}"),
+        "roadmap.save" => format!("{actor} saved plan version {} ({subject})", detail_or(detail, "of a named plan")),
         other => format!("{actor}: {other} {subject}{}", colon(detail)),
     }
 }
@@ -480,6 +482,14 @@ mod tests {
                 "case pack of 1: PRESS-2 v1 Base (176 ledger entries)",
                 &none,
                 "lead made decision pack 1, a case pack of 1: PRESS-2 v1 Base (176 ledger entries)",
+            ),
+            (
+                "lead",
+                "roadmap.save",
+                "plan 3",
+                "v2 of Three-year roll-out",
+                &none,
+                "lead saved plan version v2 of Three-year roll-out (plan 3)",
             ),
         ];
         for (actor, action, subject, detail, f, expected) in &rows {

@@ -52,7 +52,10 @@ pub use portfolio::{
 };
 pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
-pub use roadmap::{RoadmapAnswer, RoadmapParams, RoadmapQuery, RoadmapZone, roadmap_answer};
+pub use roadmap::{
+    PLAN_NAME_MAX, PlanRow, PlanVersion, RoadmapAnswer, RoadmapParams, RoadmapQuery, RoadmapZone, parse_plan_name,
+    roadmap_answer, roadmap_instance,
+};
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario};
 pub use site::{DEFAULT_INTRODUCTION_CAPACITY, SiteSettings, SiteSettingsInput};
 pub use uncertainty::{

@@ -133,7 +133,8 @@ impl ValueBasis {
         }
     }
 
-    fn parse(value: &str) -> Result<Self, String> {
+    /// Read the query spelling (empty for NPV); the error lists the spellings.
+    pub(crate) fn parse(value: &str) -> Result<Self, String> {
         choice(value, &Self::ALL, Self::as_str, Self::Npv)
     }
 }
@@ -175,7 +176,7 @@ pub struct PortfolioParams {
 }
 
 /// Largest budget accepted: far above any plant's, and inside i64 cents.
-const MAX_BUDGET: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
+pub(crate) const MAX_BUDGET: Decimal = Decimal::from_parts(0xD4A5_1000, 0xE8, 0, false, 0); // 1e12
 
 impl PortfolioParams {
     /// Validate each field, numbers typed in `f`; errors name it.
@@ -284,6 +285,15 @@ pub struct BaseFigures {
     pub simulation: Simulation,
     /// Chance the pilot works (`success_probability`).
     pub success_probability: Decimal,
+    /// The case's first month (its month offset 0).
+    pub start_month: Month,
+    /// Go-live month offset.
+    pub go_live_offset: u32,
+    /// Ramp-up months.
+    pub ramp_up_months: u32,
+    /// One-off outlays in cents (positive) by month offset, as the schedule has them (the same
+    /// money as `metrics.total_one_off`): the roadmap shifts them with the start.
+    pub one_off_months: Vec<(u32, i64)>,
 }
 
 /// Everything the portfolio keeps of one zone between requests.
@@ -348,6 +358,11 @@ fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigure
     let input = finance_input(&c.header, c.costs.iter().map(|(_, x)| x), c.drivers.iter().map(|(_, d)| d), None);
     let schedule = build_schedule(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
     let metrics = case_metrics(&schedule);
+    let one_off_months = (0u32..)
+        .zip(&schedule.rows)
+        .filter(|(_, r)| !r.one_off.is_zero())
+        .map(|(m, r)| (m, cents(-r.one_off)))
+        .collect();
     let model = LinearNpv::new(&input, hurdle).map_err(|e| format!("the case cannot be computed: {e}"))?;
     let ranges = quantity_ranges(c.drivers.iter().map(|(_, d)| d))
         .map_err(|e| format!("the uncertainty cannot be computed: {e}"))?;
@@ -359,6 +374,10 @@ fn base_figures(c: &CaseParts, hurdle: f64, trials: Trials) -> Result<BaseFigure
         kinds: c.drivers.iter().map(|(_, d)| d.kind).collect(),
         simulation,
         success_probability: c.header.success_probability,
+        start_month: c.header.start_month,
+        go_live_offset: c.header.go_live_offset,
+        ramp_up_months: c.header.ramp_up_months,
+        one_off_months,
     })
 }
 
@@ -540,7 +559,7 @@ impl Portfolio {
     }
 }
 
-fn cents(d: Decimal) -> i64 {
+pub(crate) fn cents(d: Decimal) -> i64 {
     (d * Decimal::ONE_HUNDRED).round().to_i64().unwrap_or(i64::MAX)
 }
 

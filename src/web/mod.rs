@@ -251,6 +251,11 @@ pub fn routes() -> Vec<Route> {
         route(p.clone(), "/api/v1/zones/{id}/ledger", Ledger, post(ledger::api_book)),
         route(p.clone(), "/api/v1/zones/{id}/ledger/{entry}/reverse", Ledger, post(ledger::api_reverse)),
         // Decision packs: made by whoever edits cases, read by every role.
+        // The roadmap's API (issue 14).
+        route(g.clone(), "/api/v1/roadmap", Read, get(roadmap::api)),
+        route(g.clone(), "/api/v1/roadmap/plans", Read, get(roadmap::api_plans)),
+        route(p.clone(), "/api/v1/roadmap/plans", EditCases, post(roadmap::api_save_plan)),
+        route(g.clone(), "/api/v1/roadmap/plans/{id}", Read, get(roadmap::api_plan)),
         route(g.clone(), "/packs", Read, get(packs::list)),
         route(g.clone(), "/packs/{id}", Read, get(packs::show)),
         route(p.clone(), "/cases/{id}/packs", EditCases, post(packs::page_make_case)),

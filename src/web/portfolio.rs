@@ -27,11 +27,11 @@ use std::time::Duration;
 pub const PAGE_ROWS: usize = 250;
 
 /// A computed portfolio, and how many zones' figures were not ready for it.
-struct Computed {
-    site: SiteSettings,
-    portfolio: Portfolio,
+pub(super) struct Computed {
+    pub(super) site: SiteSettings,
+    pub(super) portfolio: Portfolio,
     /// Zones the figures' warm-up has not reached yet, left out of `portfolio`.
-    pending: usize,
+    pub(super) pending: usize,
 }
 
 impl Computed {
@@ -43,7 +43,11 @@ impl Computed {
 
 /// Compute the portfolio for a valid query, waiting for a running warm-up of the figures at
 /// most `wait` (`None`: until it ends).
-async fn compute(state: &AppState, params: PortfolioParams, wait: Option<Duration>) -> Result<Computed, AppError> {
+pub(super) async fn compute(
+    state: &AppState,
+    params: PortfolioParams,
+    wait: Option<Duration>,
+) -> Result<Computed, AppError> {
     let site = db::get_site(&state.pool).await?;
     let criteria = db::readiness::criteria(&state.pool).await?;
     let bases = state.figures.bases_within(&state.pool, &site, params.trials, wait).await?;
@@ -421,7 +425,7 @@ pub async fn page(
     // Saving a plan version changes no zone: the newest version and the default plan start
     // (next month) are part of the key instead.
     let latest = crate::app::roadmap::plans(&state.pool).await?.first().map(|p| p.id);
-    let next = super::roadmap::page::next_month(state.clock.now());
+    let next = crate::domain::RoadmapParams::next_month(state.clock.now());
     let key = format!("page:{}?{query}&roadmap={latest:?}@{next}", numbers.as_str());
     let figures = state
         .answers

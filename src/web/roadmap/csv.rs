@@ -2,10 +2,10 @@
 //! as the page (`?plan=<id>` for a stored version, else the inputs, else the newest version).
 
 use super::super::{AppError, AppState};
-use super::page::{PageQuery, chosen_inputs, next_month};
+use super::page::{PageQuery, chosen_inputs, format_of};
 use crate::db;
 use crate::domain::{NumberFormat, RoadmapAnswer, RoadmapParams, csv_safe};
-use crate::finance::roadmap::{Placement, one_off_by_year, value_at};
+use crate::finance::roadmap::Placement;
 use crate::web::metrics::money_text;
 use axum::extract::{Query, State};
 use axum::response::Response;
@@ -16,19 +16,13 @@ pub async fn csv(State(state): State<AppState>, Query(pq): Query<PageQuery>) -> 
     let numbers = NumberFormat::current();
     let site = db::get_site(&state.pool).await?;
     let plans = crate::app::roadmap::plans(&state.pool).await?;
-    let q = chosen_inputs(&state, &pq, &plans).await?.map(|(q, _)| q).unwrap_or_default();
-    let params = RoadmapParams::parse(&q, numbers, next_month(state.clock.now()), &site)?;
+    let (q, plan) = chosen_inputs(&state, &pq, &plans).await?.unwrap_or_default();
+    let next = RoadmapParams::next_month(state.clock.now());
+    let params = RoadmapParams::parse(&q, format_of(plan.as_ref()), next, &site)?;
     let answer = super::compute(&state, params).await?;
     let currency = site.currency.clone();
     let body = crate::app::cpu::run(move || csv_of(&answer, &currency, numbers)).await??;
     Ok(super::super::ledger::csv_response("roadmap.csv", body))
-}
-
-/// The months of a start as `YYYY-MM`, counted from the plan's start.
-fn month_text(a: &RoadmapAnswer, m: i32) -> String {
-    let s = a.params.start;
-    let index = s.year * 12 + i32::from(s.month) - 1 + m;
-    format!("{:04}-{:02}", index.div_euclid(12), index.rem_euclid(12) + 1)
 }
 
 /// The CSV text: money as plain decimals with the site's decimal separator (as the other
@@ -49,51 +43,32 @@ pub(super) fn csv_of(a: &RoadmapAnswer, cur: &str, numbers: NumberFormat) -> Res
     let internal = |e: csv::Error| AppError::Internal(e.into());
     w.write_record(&header).map_err(internal)?;
     let money = |d: Decimal| numbers.export(&money_text(d));
-    let opt = &a.result.optimal.placements;
-    let simple = &a.result.simple.placements;
-    for (i, z) in a.zones.iter().enumerate().take(inst.zones.len()) {
-        let p = opt.get(i);
-        let start = p.and_then(Placement::start_month);
-        let (placement, value, delay, earlier, reason) = match p {
-            Some(Placement::Committed { .. }) => {
-                ("committed", String::new(), String::new(), String::new(), String::new())
-            }
-            Some(Placement::Planned { quarter }) => {
-                let d = a.result.delays.get(i).and_then(Option::as_ref);
-                (
-                    "planned",
-                    money(value_at(inst, i, *quarter)),
-                    d.map(|d| money(d.cost)).unwrap_or_default(),
-                    d.and_then(|d| d.earlier.as_ref())
-                        .map(|r| super::page::rule_text(a.params.start, r))
-                        .unwrap_or_default(),
-                    String::new(),
-                )
-            }
-            Some(Placement::NotPlanned(n)) => {
-                ("not_in_this_plan", String::new(), String::new(), String::new(), super::page::reason_text(n))
-            }
-            None => ("not_in_this_plan", String::new(), String::new(), String::new(), String::new()),
+    let simple = a.rows(&a.result.simple, None);
+    for (r, s) in a.rows(&a.result.optimal, Some(&a.result.delays)).iter().zip(&simple) {
+        let z = &a.zones[r.zone];
+        let placement = match a.result.optimal.placements.get(r.zone) {
+            Some(Placement::Committed { .. }) => "committed",
+            Some(Placement::Planned { .. }) => "planned",
+            _ => "not_in_this_plan",
         };
+        let month = |m: Option<crate::domain::Month>| m.map(|m| m.to_string()).unwrap_or_default();
         let mut record = vec![
             csv_safe(&z.code),
             csv_safe(&z.name),
             csv_safe(&z.area),
             z.status.as_str().to_string(),
             placement.to_string(),
-            start.map(|s| month_text(a, s)).unwrap_or_default(),
-            start.map(|s| month_text(a, s + inst.zones[i].window() as i32)).unwrap_or_default(),
+            month(r.start),
+            month(r.live),
         ];
-        match start {
-            Some(s) => record.extend(one_off_by_year(inst, i, s).into_iter().map(|c| money(Decimal::new(c, 2)))),
-            None => record.extend((0..inst.years).map(|_| String::new())),
-        }
+        // A zone that does not start spends nothing: empty cells rather than zeros.
+        record.extend(r.one_off_by_year.iter().map(|d| if r.start.is_some() { money(*d) } else { String::new() }));
         record.extend([
-            value,
-            delay,
-            csv_safe(&earlier),
-            csv_safe(&reason),
-            simple.get(i).and_then(Placement::start_month).map(|s| month_text(a, s)).unwrap_or_default(),
+            r.value_at_start.map(money).unwrap_or_default(),
+            r.delay_cost.map(money).unwrap_or_default(),
+            csv_safe(r.earlier.as_deref().unwrap_or_default()),
+            csv_safe(r.reason.as_deref().unwrap_or_default()),
+            month(s.start),
         ]);
         w.write_record(&record).map_err(internal)?;
     }
@@ -123,10 +98,8 @@ mod tests {
             "{}",
             lines[2]
         );
-        assert!(
-            lines[2].ends_with(",123.45,a free introduction in 2027-04 (introductions at a time are taken),,2027-10")
-        );
-        assert!(lines[3].contains(",not_in_this_plan,,,,,,,"), "{}", lines[3]);
+        assert!(lines[2].ends_with(",123.45,one more introduction at a time in 2027-04,,2027-10"));
+        assert!(lines[3].ends_with(",not_in_this_plan,,,,,,,,budget,"), "{}", lines[3]);
         Ok(())
     }
 }
