@@ -682,7 +682,7 @@ pub(crate) mod tests {
         assert!(html.contains("<li><strong>WELD-1</strong>: not in this plan: budget</li>"));
         assert!(html.contains("<li><strong>OLD-1</strong>: no business case</li>"));
         assert!(html.contains(">committed, live 2027-03</text>") && html.contains(">live 2027-10</text>"));
-        assert!(html.contains("<th scope=\"col\" class=\"num\">One-off, plan year 2</th>"));
+        assert!(html.contains("<th scope=\"col\" class=\"num\">One-off in plan year 2</th>"));
         assert!(html.contains("href=\"/roadmap.csv?plan=7\""));
         Ok(())
     }
