@@ -16,6 +16,11 @@ use tokio::net::TcpListener;
 /// The demo plant, embedded so that the binary works from any folder.
 pub const DEMO_SCENARIO: &str = include_str!("../seed/demo-plant.json");
 
+/// The demo's named plan: three plan years from the month after the load, a yearly capital
+/// budget of 75,000 (the three candidates' one-off outlays are 66,000, 31,000 and 55,500, so no
+/// two of them fit in one plan year: the budget binds), two introductions at a time.
+const DEMO_PLAN: (&str, &str) = ("Three-year roll-out", "75000");
+
 /// Site settings for a database started without the demo plant.
 const EMPTY_SITE: &str = r#"{"format": "pilot-ledger-scenario", "version": 1,
     "site": {"plant_name": "Our plant", "currency": "EUR", "hurdle_rate": "0.08"}, "zones": []}"#;
@@ -203,6 +208,16 @@ pub async fn prepare(url: &str, demo: bool, now: time::OffsetDateTime) -> anyhow
         if db::count_users(&pool).await? == 0 {
             create_demo_accounts(&pool, now).await?;
         }
+        let (name, budgets) = DEMO_PLAN;
+        let inputs = crate::domain::RoadmapQuery {
+            start: crate::domain::RoadmapParams::next_month(now).to_string(),
+            years: "3".into(),
+            budgets: budgets.into(),
+            ..Default::default()
+        };
+        app::roadmap::save_plan(&pool, "scenario-load", name, &inputs, now)
+            .await
+            .context("saving the demo's named plan failed")?;
     } else if db::database_is_empty(&pool).await? {
         load_text(&pool, EMPTY_SITE, now).await.context("writing default site settings failed")?;
         tracing::warn!("empty database without the demo: default site settings written; change them on the Admin page");

@@ -25,6 +25,7 @@ mod packs;
 mod pages;
 mod portfolio;
 mod realized;
+mod roadmap_api;
 mod scale;
 mod security;
 mod signin;
