@@ -510,6 +510,7 @@ pub(crate) async fn planned_starts(state: &AppState) -> Result<Option<PlannedSta
             return Ok(Some(PlannedStarts { plan, starts: HashMap::new(), problem: Some(format!("its inputs: {f}")) }));
         }
     };
+    // The portfolio must not fail because the roadmap cannot be computed: it says so instead.
     let answer = match super::compute(state, params).await {
         Ok(a) => a,
         Err(AppError::Invalid(f)) => {
@@ -518,7 +519,11 @@ pub(crate) async fn planned_starts(state: &AppState) -> Result<Option<PlannedSta
         Err(AppError::Conflict(msg)) => {
             return Ok(Some(PlannedStarts { plan, starts: HashMap::new(), problem: Some(msg) }));
         }
-        Err(e) => return Err(e),
+        Err(e) => {
+            tracing::warn!(error = ?e, "the newest plan version could not be computed for the portfolio");
+            let problem = Some("the roadmap could not be computed".to_string());
+            return Ok(Some(PlannedStarts { plan, starts: HashMap::new(), problem }));
+        }
     };
     Ok(Some(PlannedStarts { plan, starts: start_texts(&answer), problem: None }))
 }
