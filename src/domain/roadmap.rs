@@ -367,12 +367,11 @@ impl RoadmapAnswer {
     }
 }
 
+/// The instance, its zones as shown, and the open zones left out with why.
+pub type Built = (Instance, Vec<RoadmapZone>, Vec<(String, String)>);
+
 /// Build the instance from the portfolio's zones (see the [module docs](self)).
-pub fn roadmap_instance(
-    portfolio: &Portfolio,
-    params: &RoadmapParams,
-    site: &SiteSettings,
-) -> Result<(Instance, Vec<RoadmapZone>, Vec<(String, String)>), String> {
+pub fn roadmap_instance(portfolio: &Portfolio, params: &RoadmapParams, site: &SiteSettings) -> Result<Built, String> {
     let mut rows: Vec<_> = portfolio
         .rows
         .iter()

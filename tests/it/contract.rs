@@ -348,6 +348,10 @@ async fn every_field_the_api_answers_is_in_the_document() {
         ("/api/v1/portfolio", "get", admin.get("/api/v1/portfolio?budget=150000&min_readiness=2").await),
         ("/api/v1/site", "get", admin.get("/api/v1/site").await),
         ("/api/v1/metrics", "post", admin.post_json("/api/v1/metrics", metrics_body).await),
+        // The demo's named plan, its answer, and the list.
+        ("/api/v1/roadmap/plans", "get", admin.get("/api/v1/roadmap/plans").await),
+        ("/api/v1/roadmap/plans/{id}", "get", admin.get("/api/v1/roadmap/plans/1").await),
+        ("/api/v1/roadmap", "get", admin.get("/api/v1/roadmap?plan=1").await),
     ];
     for (path, method, answer) in answers {
         assert_eq!(answer.status, StatusCode::OK, "{path}: {}", answer.text);

@@ -204,3 +204,105 @@ async fn the_demo_has_a_named_plan() {
         (json!("Three-year roll-out"), json!(1), json!("75000;75000;75000"), json!("2026-12"))
     );
 }
+
+/// Two candidates with one-off outlays of 12,000 in their first month, live a month later:
+/// A saves 1,000 a month (simple_case), B 1,250 a month, for 36 months.
+async fn two_candidates(t: &TestApp) {
+    for (code, qty) in [("RM-A", 1200), ("RM-B", 1500)] {
+        let zone = t.post_json("/api/v1/zones", &json!({"code": code, "name": code}).to_string()).await;
+        assert_eq!(zone.status, StatusCode::CREATED, "{}", zone.text);
+        let id = zone.json()["zone"]["id"].as_i64().unwrap();
+        let mut case = crate::api::simple_case();
+        case["drivers"][0]["qty_likely"] = json!(qty);
+        let made = t.post_json(&format!("/api/v1/zones/{id}/cases"), &case.to_string()).await;
+        assert_eq!(made.status, StatusCode::CREATED, "{}", made.text);
+    }
+}
+
+fn money(v: &Value) -> f64 {
+    v.as_str().unwrap_or_else(|| panic!("money is a string: {v}")).parse().unwrap()
+}
+
+#[tokio::test]
+async fn a_small_plan_checked_by_hand() {
+    let t = test_app(false).await;
+    two_candidates(&t).await;
+    // numpy-financial 1.0.0: npf.npv(1.1 ** (1 / 12) - 1, [-11000] + [1000] * 35) = 19435.143641317074
+    // (tests/it/api.rs), so the 36 monthly benefits are worth 31.435143641317074 times a month's
+    // at the hurdle rate of 10 %; B's 1,250 a month: -12,000 + 1,250 x 31.4351... = 27,293.93.
+    let factor = (19_435.143_641_317_074 + 12_000.0) / 1_000.0;
+    let (v_a, v_b) = (19_435.14, ((-12_000.0 + 1_250.0 * factor) * 100.0_f64).round() / 100.0);
+    assert_eq!(v_b, 27_293.93);
+    let a = t.get("/api/v1/roadmap?start=2027-01&years=2&budgets=12000").await;
+    assert_eq!(a.status, StatusCode::OK, "{}", a.text);
+    let a = a.json();
+    // 12,000 a plan year fits one zone a year. B first, A a year later is worth
+    // 27,293.93 + 19,435.14 / 1.1 = 44,962.24; the other way 19,435.14 + 27,293.93 / 1.1 =
+    // 44,247.80. A's value at plan start after 12 months: 19,435.14 / 1.1 = 17,668.31.
+    let opt = &a["optimal"];
+    let zones = opt["zones"].as_array().unwrap();
+    let by_code = |code: &str| zones.iter().find(|z| z["code"] == code).unwrap().clone();
+    let (za, zb) = (by_code("RM-A"), by_code("RM-B"));
+    assert_eq!(
+        (zb["start"].clone(), zb["live"].clone(), zb["quarter"].clone(), zb["one_off_by_plan_year"].clone()),
+        (json!("2027-01"), json!("2027-02"), json!(1), json!(["12000", "0"]))
+    );
+    assert_eq!(
+        (za["start"].clone(), za["live"].clone(), za["quarter"].clone(), za["one_off_by_plan_year"].clone()),
+        (json!("2028-01"), json!("2028-02"), json!(5), json!(["0", "12000"]))
+    );
+    assert_eq!((money(&zb["value_at_plan_start"]), money(&za["value_at_plan_start"])), (v_b, 17_668.31));
+    assert_eq!(((v_a / 1.1_f64) * 100.0).round() / 100.0, 17_668.31);
+    assert_eq!(money(&opt["value"]), 44_962.24);
+    assert_eq!((opt["proven"].clone(), money(&opt["gap"])), (json!(true), 0.0));
+    // A quarter's delay: V (1 - 1.1^(-1/4)), each value to the cent (so within a cent).
+    let delay = |v: f64, q: f64| v * 1.1_f64.powf(-q / 4.0) * (1.0 - 1.1_f64.powf(-0.25));
+    assert!((money(&zb["cost_of_a_quarters_delay"]) - delay(v_b, 0.0)).abs() <= 0.011, "{zb}");
+    assert!((money(&za["cost_of_a_quarters_delay"]) - delay(v_a, 4.0)).abs() <= 0.011, "{za}");
+    // B starts in quarter 1: nothing earlier. A a quarter earlier would be in plan year 1, whose
+    // 12,000 B spends.
+    assert_eq!(zb["what_would_start_it_a_quarter_earlier"], Value::Null);
+    let earlier = za["what_would_start_it_a_quarter_earlier"].as_str().unwrap();
+    assert!(earlier.ends_with(" more budget in plan year 1 (from 2027-01)") && earlier.contains("12"), "{earlier}");
+    assert_eq!(
+        (za["reason"].clone(), za["committed"].clone(), za["status"].clone()),
+        (Value::Null, json!(false), json!("candidate"))
+    );
+    // Capital use per plan year against the budget, and one introduction in months 0 and 12.
+    assert_eq!(
+        opt["capital_use"],
+        json!([
+            {"plan_year": 1, "from": "2027-01", "budget": "12000", "available": "12000", "used": "12000"},
+            {"plan_year": 2, "from": "2028-01", "budget": "12000", "available": "12000", "used": "12000"}
+        ])
+    );
+    let intro: Vec<i64> =
+        opt["introductions"].as_array().unwrap().iter().map(|m| m["introductions"].as_i64().unwrap()).collect();
+    let mut expected = vec![0; 24];
+    expected[0] = 1;
+    expected[12] = 1;
+    assert_eq!(intro, expected);
+    assert_eq!(opt["introductions"][12]["month"], "2028-01");
+    // The simple plan (B has the higher profitability index) is the same here: no gain.
+    assert_eq!((money(&a["simple"]["value"]), money(&a["gain_over_simple"])), (44_962.24, 0.0));
+    assert_eq!(a["simple"]["zones"][0]["cost_of_a_quarters_delay"], Value::Null);
+    assert_eq!((a["overruns"].clone(), a["left_out"].clone(), a["plan"].clone()), (json!([]), json!([]), Value::Null));
+    assert_eq!(
+        a["inputs"],
+        json!({"start": "2027-01", "years": 2, "budgets": ["12000", "12000"], "capacity": 2, "carry_over": false,
+               "one_per_area": false, "basis": "npv", "time_limit": 10})
+    );
+
+    // In a one-year plan A finds no quarter within the budget.
+    let one = t.get("/api/v1/roadmap?start=2027-01&years=1&budgets=12000").await.json();
+    let za = one["optimal"]["zones"].as_array().unwrap().iter().find(|z| z["code"] == "RM-A").unwrap().clone();
+    assert_eq!((za["start"].clone(), za["reason"].clone()), (Value::Null, json!("budget")));
+    assert_eq!(za["one_off_by_plan_year"], json!(["0"]));
+
+    // A stored version gives the same answer, and names itself.
+    let saved = save(&t, "By hand", "12000").await.json();
+    let id = saved["plan"]["id"].as_i64().unwrap();
+    let stored = t.as_role(Some(Role::Viewer)).get(&format!("/api/v1/roadmap?plan={id}")).await.json();
+    assert_eq!(stored["optimal"], a["optimal"]);
+    assert_eq!(stored["plan"]["name"], "By hand");
+}
