@@ -97,8 +97,8 @@ async fn the_viewer_reads_the_plan_the_lead_saved() {
     ));
     assert!(p.contains("<dd id=\"gain\">0.00</dd>"));
     // The table, by hand (see the module docs).
-    assert!(p.contains("<td>–</td><td>measuring</td><td>2026-09</td><td>2026-12</td>\n    <td class=\"num\">5,000.00</td><td class=\"num\">0.00</td>\n    <td class=\"num\">committed</td>"), "{p}");
-    assert!(p.contains("<td>–</td><td>candidate</td><td>2027-01</td><td>2027-06</td>\n    <td class=\"num\">20,000.00</td><td class=\"num\">0.00</td>"));
+    assert!(p.contains("<td>–</td><td>measuring</td><td class=\"when\">2026-09</td><td class=\"when\">2026-12</td>\n    <td class=\"num\">5,000.00</td><td class=\"num\">0.00</td>\n    <td class=\"num\">committed</td>"), "{p}");
+    assert!(p.contains("<td>–</td><td>candidate</td><td class=\"when\">2027-01</td><td class=\"when\">2027-06</td>\n    <td class=\"num\">20,000.00</td><td class=\"num\">0.00</td>"));
     assert!(p.contains("<td>starts in the first quarter</td>"));
     assert!(p.contains("<li><strong>WELD-9</strong>: not in this plan: value: not positive</li>"));
     // Capital per plan year, carried forward.

@@ -17,6 +17,8 @@ const GROUP: f64 = 18.0;
 /// Room above the plot for the plan years' names.
 const TOP: f64 = 22.0;
 const AXIS: f64 = 26.0;
+/// The count chart sits beside the capital table: narrower, so its texts keep their size.
+const COUNT_WIDTH: f64 = 520.0;
 
 /// One zone on the timeline, in plan months (month 0 is the plan's start).
 pub struct TimelineInput {
@@ -251,7 +253,7 @@ impl CountChart {
         let values: Vec<u32> = (0..=max).step_by(step as usize).collect();
         let labels: Vec<String> = values.iter().map(u32::to_string).collect();
         let left = super::left_for(labels.iter().map(String::as_str), 0.0).max(30.0);
-        let right = WIDTH - 10.0;
+        let right = COUNT_WIDTH - 10.0;
         let y = |c: f64| bottom - (bottom - top) * c / f64::from(max);
         let y_ticks: Vec<Tick> =
             values.iter().zip(labels).map(|(v, label)| Tick::plain(y(f64::from(*v)), label)).collect();
@@ -274,11 +276,11 @@ impl CountChart {
         let x_ticks = spaced(
             (0..n).step_by(6).map(|i| Tick::plain(left + slot * (i as f64 + 0.5), month_label(i))).collect(),
             bottom + 16.0,
-            WIDTH,
+            COUNT_WIDTH,
             &super::y_label_boxes(&y_ticks, left),
         );
         Self {
-            frame: Frame { width: WIDTH, height: bottom + AXIS, left, right, top, bottom },
+            frame: Frame { width: COUNT_WIDTH, height: bottom + AXIS, left, right, top, bottom },
             columns,
             capacity_y,
             capacity_x: right - text_width(&capacity_label, FONT),
