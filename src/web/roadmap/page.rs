@@ -335,6 +335,8 @@ pub struct PageQuery {
     /// A stored plan version's id.
     plan: String,
     view: String,
+    /// The save form's plan name, kept when the lead presses Show.
+    name: String,
 }
 
 impl PageQuery {
@@ -368,6 +370,18 @@ pub(super) fn format_of(plan: Option<&PlanVersion>) -> NumberFormat {
     if plan.is_some() { NumberFormat::Plain } else { NumberFormat::current() }
 }
 
+/// A stored version's inputs as the form shows them: its budgets (plain decimals) in the
+/// site's number format, so that the form reads them back as stored.
+fn in_site_format(q: &RoadmapQuery) -> RoadmapQuery {
+    let site = NumberFormat::current();
+    let budgets: Vec<String> = q
+        .budgets
+        .split(';')
+        .map(|b| NumberFormat::Plain.read(b).map_or_else(|_| b.to_string(), |d| site.write(d, 2)))
+        .collect();
+    RoadmapQuery { budgets: budgets.join(";"), ..q.clone() }
+}
+
 /// The query string of the inputs (strings only: serialization cannot fail).
 fn query_of(q: &RoadmapQuery, plan: Option<&PlanVersion>) -> String {
     match plan {
@@ -394,7 +408,10 @@ async fn render(
     if let Some((q, plan)) = inputs {
         query = query_of(&q, plan.as_ref());
         shown = plan.as_ref().map(PlanLine::from);
-        form.get_or_insert_with(|| q.clone());
+        form.get_or_insert_with(|| match &plan {
+            Some(_) => in_site_format(&q),
+            None => q.clone(),
+        });
         let next = RoadmapParams::next_month(state.clock.now());
         match RoadmapParams::parse(&q, format_of(plan.as_ref()), next, &site) {
             Ok(params) => match super::compute(state, params).await {
@@ -436,7 +453,8 @@ pub async fn page(
 ) -> Result<Response, AppError> {
     let plans = crate::app::roadmap::plans(&state.pool).await?;
     let inputs = chosen_inputs(&state, &pq, &plans).await?;
-    render(&state, Nav::from(&me), inputs, None, String::new(), Problems::default(), pq.view == "print").await
+    let name = pq.name.clone();
+    render(&state, Nav::from(&me), inputs, None, name, Problems::default(), pq.view == "print").await
 }
 
 /// The save form: the plan's name and its inputs.
@@ -690,6 +708,16 @@ pub(crate) mod tests {
         assert!(html.contains("<th scope=\"col\" class=\"num\">One-off in plan year 2</th>"));
         assert!(html.contains("href=\"/roadmap.csv?plan=7\""));
         Ok(())
+    }
+
+    /// A stored version's plain budgets are shown in the site's format (written by hand).
+    #[tokio::test]
+    async fn stored_budgets_are_shown_in_the_site_format() {
+        let q = RoadmapQuery { budgets: "75000;110000.5".into(), ..RoadmapQuery::default() };
+        let comma = NumberFormat::DecimalComma.scope(async { in_site_format(&q) }).await;
+        assert_eq!(comma.budgets, "75.000,00;110.000,50");
+        let point = NumberFormat::DecimalPoint.scope(async { in_site_format(&q) }).await;
+        assert_eq!(point.budgets, "75,000.00;110,000.50");
     }
 
     #[test]
