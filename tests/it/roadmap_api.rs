@@ -203,6 +203,20 @@ async fn the_demo_has_a_named_plan() {
         ),
         (json!("Three-year roll-out"), json!(1), json!("75000;75000;75000"), json!("2026-12"))
     );
+    // Its budget binds: the candidates' one-off outlays are 66,000, 31,000 and 55,500, so no two
+    // fit in one plan year of 75,000, and a planned zone waits for the budget.
+    let a = t.get("/api/v1/roadmap?plan=1").await;
+    assert_eq!(a.status, StatusCode::OK, "{}", a.text);
+    let a = a.json();
+    let zones = a["optimal"]["zones"].as_array().unwrap();
+    let budget_binds = zones.iter().any(|z| {
+        z["what_would_start_it_a_quarter_earlier"].as_str().is_some_and(|w| w.contains("more budget"))
+            || z["reason"].as_str().is_some_and(|r| r.contains("budget"))
+    });
+    assert!(budget_binds, "{}", a["optimal"]);
+    for y in a["optimal"]["capital_use"].as_array().unwrap() {
+        assert!(money(&y["used"]) <= 75_000.0, "{y}");
+    }
 }
 
 /// Two candidates with one-off outlays of 12,000 in their first month, live a month later:
