@@ -517,6 +517,12 @@ pub(crate) async fn planned_starts(state: &AppState) -> Result<Option<PlannedSta
     let Some(latest) = plans.first() else { return Ok(None) };
     let site = db::get_site(&state.pool).await?;
     let plan = PlanLine::from(latest);
+    // The roadmap needs every zone's figures: while they are still being computed after a
+    // start the portfolio answers with what is ready and does not wait for them.
+    if state.figures.warming() {
+        let problem = Some("the zones' figures are still being computed".to_string());
+        return Ok(Some(PlannedStarts { plan, starts: HashMap::new(), problem }));
+    }
     let params = match RoadmapParams::parse(
         &latest.inputs,
         NumberFormat::Plain,
