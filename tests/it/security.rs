@@ -23,6 +23,9 @@ async fn concrete_path(t: &TestApp, pattern: &str, case: i64) -> String {
         token
     } else if pattern.starts_with("/packs/") || pattern.starts_with("/api/v1/packs/") {
         sqlx::query_scalar("SELECT MAX(id) FROM decision_packs").fetch_one(&t.pool).await.unwrap()
+    } else if pattern.starts_with("/api/v1/roadmap/plans/") {
+        // The demo's named plan.
+        sqlx::query_scalar("SELECT MAX(id) FROM roadmap_plans").fetch_one(&t.pool).await.unwrap()
     } else {
         case
     };
