@@ -220,6 +220,10 @@ pub fn routes() -> Vec<Route> {
         route(g.clone(), "/portfolio", Read, get(portfolio::page)),
         route(g.clone(), "/portfolio.csv", Read, get(portfolio::csv)),
         route(g.clone(), "/api/v1/portfolio", Read, get(portfolio::api)),
+        // The roadmap page, its CSV and the save form.
+        route(g.clone(), "/roadmap", Read, get(roadmap::page::page)),
+        route(g.clone(), "/roadmap.csv", Read, get(roadmap::csv::csv)),
+        route(p.clone(), "/roadmap/plans", EditCases, post(roadmap::page::save)),
         route(g.clone(), "/admin", Admin, get(admin::page)),
         route(p.clone(), "/admin/users", Admin, post(admin::add_user)),
         route(p.clone(), "/admin/users/{id}", Admin, post(admin::update_user)),

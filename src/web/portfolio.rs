@@ -113,6 +113,8 @@ pub struct RowView {
     frozen: Option<String>,
     /// Whether one of its money figures is longer than [`LONG_FIGURE`] characters.
     long_figures: bool,
+    /// Its start in the newest stored roadmap plan version (set once the rows are made).
+    planned_start: String,
 }
 
 /// Money texts longer than this (`-1,000,000.00` has 13 characters) may wrap between their
@@ -208,6 +210,7 @@ fn row_view(rank: usize, r: &PortfolioRow, scale: (f64, f64)) -> RowView {
         ),
         taken_by_profitability_index: r.taken_by_profitability_index,
         problem: r.problem().map(str::to_string),
+        planned_start: DASH.into(),
     }
 }
 
@@ -366,6 +369,8 @@ struct PortfolioFigures {
     charts: Charts,
     choice: Option<ChoiceView>,
     query: String,
+    /// The newest stored roadmap plan version, whose starts the table shows; `None`: no column.
+    planned: Option<super::roadmap::page::PlannedStarts>,
 }
 
 /// The query string of the current settings, for the CSV and print links.
@@ -417,20 +422,33 @@ pub async fn page(
     page.basis = params.basis;
     page.seed = params.trials.seed;
     page.trials = params.trials.count;
+    // Saving a plan version changes no zone: the newest version and the default plan start
+    // (next month) are part of the key instead.
+    let latest = crate::app::roadmap::plans(&state.pool).await?.first().map(|p| p.id);
+    let next = crate::domain::RoadmapParams::next_month(state.clock.now());
+    let key = format!("page:{}?{query}&roadmap={latest:?}@{next}", numbers.as_str());
     let figures = state
         .answers
-        .get(&state.pool, format!("page:{}?{query}", numbers.as_str()), || async {
+        .get(&state.pool, key, || async {
             let basis = params.basis;
+            let planned = super::roadmap::page::planned_starts(&state).await?;
             let computed = compute(&state, params, Some(READY_WAIT)).await?;
             let complete = computed.complete();
             let Computed { site, portfolio, pending } = computed;
             // Formatting the rows and charts: on the bounded pool.
             let html = crate::app::cpu::run(move || {
-                let head: Vec<RowView> = {
+                let mut head: Vec<RowView> = {
                     let head = &portfolio.rows[..portfolio.rows.len().min(PAGE_ROWS)];
                     let scale = range_scale(head);
                     head.iter().enumerate().map(|(i, r)| row_view(i + 1, r, scale)).collect()
                 };
+                if let Some(p) = &planned {
+                    for r in &mut head {
+                        if let Some(s) = p.starts.get(&r.code) {
+                            r.planned_start.clone_from(s);
+                        }
+                    }
+                }
                 let figures = PortfolioFigures {
                     basis,
                     charts: charts(&portfolio.rows[..portfolio.rows.len().min(PAGE_ROWS)], &site.currency),
@@ -440,6 +458,7 @@ pub async fn page(
                     ranked: portfolio.rows.len(),
                     pending,
                     query,
+                    planned,
                 };
                 figures.render()
             })

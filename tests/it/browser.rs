@@ -86,7 +86,7 @@ pub(super) async fn browser() -> Option<Browser> {
     panic!("could not start a chromium session through chromedriver on port {port}");
 }
 
-async fn fill(c: &Client, id: &str, value: &str) {
+pub(super) async fn fill(c: &Client, id: &str, value: &str) {
     let field = c.find(Locator::Id(id)).await.unwrap();
     field.clear().await.unwrap();
     field.send_keys(value).await.unwrap();
@@ -106,7 +106,7 @@ async fn click_and_wait(c: &Client, target: Locator<'_>) {
     panic!("the page did not change after clicking {target:?}");
 }
 
-async fn click_button(c: &Client, text: &str) {
+pub(super) async fn click_button(c: &Client, text: &str) {
     let xpath = format!("//button[normalize-space()='{text}']");
     click_and_wait(c, Locator::XPath(&xpath)).await;
 }

@@ -45,7 +45,7 @@ return [document.documentElement.scrollWidth, window.innerWidth, overlaps, cut, 
 
 /// Width of the document and of the window, overlapping chart texts, cut cards, and how many
 /// chart texts there are (so that a page without charts cannot pass the overlap check).
-async fn check(c: &Client, url: &str) -> (u64, u64, Vec<String>, Vec<String>, u64) {
+pub(super) async fn check(c: &Client, url: &str) -> (u64, u64, Vec<String>, Vec<String>, u64) {
     c.goto(url).await.unwrap();
     let v = c.execute(CHECK, vec![]).await.unwrap();
     let strings = |v: &serde_json::Value| -> Vec<String> {

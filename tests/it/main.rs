@@ -26,6 +26,7 @@ mod pages;
 mod portfolio;
 mod realized;
 mod roadmap_api;
+mod roadmap_page;
 mod scale;
 mod security;
 mod signin;

@@ -3,9 +3,11 @@
 mod bars;
 mod labels;
 mod scatter;
+mod timeline;
 
 pub use bars::{Columns, RangeBars, RangeInput};
 pub use scatter::{Axis, Scatter, ScatterPoint};
+pub use timeline::{CountChart, Timeline, TimelineInput};
 
 use crate::domain::{Money, NumberFormat};
 use labels::{FONT, Placer, Rect, text_box, text_width};

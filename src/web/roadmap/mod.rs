@@ -4,6 +4,9 @@
 //! stored plan version's) and keeps named plans at `/api/v1/roadmap/plans`. Numbers in the
 //! query are plain decimals, as everywhere in the API.
 
+pub(super) mod csv;
+pub(super) mod page;
+
 use super::auth::CurrentUser;
 use super::metrics::money_text;
 use super::portfolio::compute as compute_portfolio;
