@@ -427,7 +427,8 @@ fn not_positive_and_outside_needs_are_never_planned() -> R {
     dep.needs = vec![0];
     let mut out = zone("O", "", dec!(5000), &[], 2, 1);
     out.needs_outside = vec!["SHELVED".into()];
-    let i = inst(1, &[0], 2, 0.0, vec![zone("N", "", dec!(0), &[], 2, 1), dep, out, zone("F", "", dec!(1), &[], 2, 1)]);
+    let i =
+        inst(1, &[0], 2, 0.01, vec![zone("N", "", dec!(0), &[], 2, 1), dep, out, zone("F", "", dec!(1), &[], 2, 1)]);
     let r = roadmap(&i, LIMIT).map_err(|e| e.to_string())?;
     assert_eq!(r.optimal.placements[0], Placement::NotPlanned(NotPlanned::NotPositive));
     assert_eq!(r.optimal.placements[1], Placement::NotPlanned(NotPlanned::Needs("N".into())));
