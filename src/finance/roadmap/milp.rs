@@ -314,15 +314,18 @@ fn run(
         .unwrap_or_else(|_| Err("the solver stopped unexpectedly".into()))
 }
 
-#[cfg(not(feature = "highs"))]
-fn backend(
-    problem: good_lp::variable::UnsolvedProblem,
+/// Load the rows and the starting plan into a backend's model and solve it: the variables'
+/// values and whether the backend proved them optimal.
+fn load<M>(
+    mut m: M,
     constraints: Vec<Constraint>,
     initial: Vec<(Variable, f64)>,
     xs: &[Variable],
-    secs: f64,
-) -> Result<Outcome, String> {
-    let mut m = good_lp::microlp(problem).with_time_limit(secs);
+) -> Result<(M::Solution, Vec<f64>, bool), String>
+where
+    M: SolverModel + WithInitialSolution,
+    M::Error: std::fmt::Display,
+{
     if !initial.is_empty() {
         m = m.with_initial_solution(initial);
     }
@@ -332,11 +335,10 @@ fn backend(
     let sol = m.solve().map_err(|e| e.to_string())?;
     let values = xs.iter().map(|x| sol.value(*x)).collect();
     let proven = matches!(sol.status(), SolutionStatus::Optimal);
-    let bound = sol.into_inner().stats().best_bound;
-    Ok(Outcome { values, proven, bound })
+    Ok((sol, values, proven))
 }
 
-#[cfg(feature = "highs")]
+/// The backend: microlp by default, HiGHS with the `highs` feature.
 fn backend(
     problem: good_lp::variable::UnsolvedProblem,
     constraints: Vec<Constraint>,
@@ -344,17 +346,23 @@ fn backend(
     xs: &[Variable],
     secs: f64,
 ) -> Result<Outcome, String> {
-    // HiGHS stops at a relative gap of 1e-4 by default: the plan must be the exact optimum.
-    let mut m =
-        good_lp::highs(problem).set_threads(1).set_mip_rel_gap(0.0).map_err(|e| e.to_string())?.with_time_limit(secs);
-    if !initial.is_empty() {
-        m = m.with_initial_solution(initial);
-    }
-    for c in constraints {
-        m.add_constraint(c);
-    }
-    let sol = m.solve().map_err(|e| e.to_string())?;
-    let values = xs.iter().map(|x| sol.value(*x)).collect();
-    let proven = matches!(sol.status(), SolutionStatus::Optimal);
-    Ok(Outcome { values, proven, bound: None })
+    #[cfg(not(feature = "highs"))]
+    let (values, proven, bound) = {
+        let m = good_lp::microlp(problem).with_time_limit(secs);
+        let (sol, values, proven) = load(m, constraints, initial, xs)?;
+        (values, proven, sol.into_inner().stats().best_bound)
+    };
+    #[cfg(feature = "highs")]
+    let (values, proven, bound) = {
+        // HiGHS stops at a relative gap of 1e-4 by default: the plan must be the exact optimum.
+        let m = good_lp::highs(problem)
+            .set_threads(1)
+            .set_mip_rel_gap(0.0)
+            .map_err(|e| e.to_string())?
+            .with_time_limit(secs);
+        let (_, values, proven) = load(m, constraints, initial, xs)?;
+        // good_lp passes on no bound from HiGHS: the LP relaxation gives one.
+        (values, proven, None)
+    };
+    Ok(Outcome { values, proven, bound })
 }

@@ -281,7 +281,19 @@ fn worked_example_budget_and_capacity() -> R {
     Ok(())
 }
 
-/// Two years of 500.00 each, carried forward, 1% a month. Committed K (press shop) started
+/// Committed K, P and D needing P, as in the worked example below, one per area, capacity 2.
+fn press_and_paint(budgets: &[i64], rate: f64) -> Instance {
+    let mut k = zone("K", "press shop", dec!(0), &[(4, 20_000)], 3, 3);
+    k.committed_start = Some(-3);
+    let p = zone("P", "press shop", dec!(800), &[(0, 60_000)], 2, 1);
+    let mut d = zone("D", "paint shop", dec!(500), &[(0, 20_000)], 2, 1);
+    d.needs = vec![1];
+    let mut i = inst(2, budgets, 2, rate, vec![k, p, d]);
+    i.one_per_area = true;
+    i
+}
+
+/// Two years of 500.00 each, carried forward, 1% a month, one introduction per area. Committed K (press shop) started
 /// three months before the plan with a 6-month window (plan months 0..2) and 200.00 in month 1.
 /// P (press shop, 800.00 value, 600.00 one-off, 3-month window) and D (paint shop, 500.00
 /// value, 200.00, 3-month window, needs P live).
@@ -293,14 +305,8 @@ fn worked_example_budget_and_capacity() -> R {
 /// Without carry-over P's 600.00 exceeds every year's 500.00, and D needs P: nothing, 0.
 #[test]
 fn worked_example_needs_committed_and_carry_over() -> R {
-    let mut k = zone("K", "press shop", dec!(0), &[(4, 20_000)], 3, 3);
-    k.committed_start = Some(-3);
-    let p = zone("P", "press shop", dec!(800), &[(0, 60_000)], 2, 1);
-    let mut d = zone("D", "paint shop", dec!(500), &[(0, 20_000)], 2, 1);
-    d.needs = vec![1];
-    let mut i = inst(2, &[50_000, 50_000], 2, 0.01, vec![k, p, d]);
+    let mut i = press_and_paint(&[50_000, 50_000], 0.01);
     i.carry_over = true;
-    i.one_per_area = true;
     let r = roadmap(&i, LIMIT).map_err(|e| e.to_string())?;
     assert_eq!(r.optimal.placements[0], Placement::Committed { start: -3 });
     assert_eq!(r.optimal.placements[1], Placement::Planned { quarter: 4 });
@@ -331,13 +337,7 @@ fn worked_example_needs_committed_and_carry_over() -> R {
 /// `check` by hand on the instance above with room in the budget: one rule at a time.
 #[test]
 fn check_names_the_first_broken_rule() -> R {
-    let mut k = zone("K", "press shop", dec!(0), &[(4, 20_000)], 3, 3);
-    k.committed_start = Some(-3);
-    let p = zone("P", "press shop", dec!(800), &[(0, 60_000)], 2, 1);
-    let mut d = zone("D", "paint shop", dec!(500), &[(0, 20_000)], 2, 1);
-    d.needs = vec![1];
-    let mut i = inst(2, &[100_000, 100_000], 2, 0.0, vec![k, p, d]);
-    i.one_per_area = true;
+    let mut i = press_and_paint(&[100_000, 100_000], 0.0);
     // Positive control: P in month 3 (K's window ends in month 2), D in month 6 (P live).
     assert_eq!(check(&i, &[None, Some(3), Some(6)]), Ok(()));
     // Committed K is taken at its own start whatever the slice says.
@@ -427,7 +427,8 @@ fn not_positive_and_outside_needs_are_never_planned() -> R {
     dep.needs = vec![0];
     let mut out = zone("O", "", dec!(5000), &[], 2, 1);
     out.needs_outside = vec!["SHELVED".into()];
-    let i = inst(1, &[0], 2, 0.0, vec![zone("N", "", dec!(0), &[], 2, 1), dep, out, zone("F", "", dec!(1), &[], 2, 1)]);
+    let i =
+        inst(1, &[0], 2, 0.01, vec![zone("N", "", dec!(0), &[], 2, 1), dep, out, zone("F", "", dec!(1), &[], 2, 1)]);
     let r = roadmap(&i, LIMIT).map_err(|e| e.to_string())?;
     assert_eq!(r.optimal.placements[0], Placement::NotPlanned(NotPlanned::NotPositive));
     assert_eq!(r.optimal.placements[1], Placement::NotPlanned(NotPlanned::Needs("N".into())));
