@@ -11,9 +11,9 @@ benches/roadmap/instances.rs), with the formulation of finance::roadmap:
   committed zones spend there;
 - capacity rows per plan month: zones inside their window <= capacity less the committed
   zones inside theirs; with one_per_area, the same per non-empty area against 1;
-- precedence rows: x[z, q] <= sum of x[a, q'] over the quarters q' in which a needed candidate
-  a is live by month 3q (3q' + window_a <= 3q); a committed need removes the quarters before it
-  is live.
+- precedence rows, aggregated: z started by quarter q (sum of x[z, q''] for q'' <= q) <= sum
+  of x[a, q'] over the quarters q' in which a needed candidate a is live by month 3q
+  (3q' + window_a <= 3q); a committed need removes the quarters before it is live.
 Rows whose right-hand side the committed zones alone overrun are clamped at zero (no candidate
 there), as the roadmap's overruns are reported, not made infeasible.
 
@@ -29,7 +29,7 @@ import argparse
 import json
 import sys
 import time
-from decimal import ROUND_HALF_EVEN, Decimal
+from decimal import ROUND_HALF_UP, Decimal, localcontext
 
 import numpy as np
 import scipy
@@ -44,9 +44,15 @@ def window(z):
 
 
 def value_at(z, q, rate):
-    """value * (1 + r_m)^(-3q), rounded to the cent (half to even, as rust_decimal rounds)."""
-    factor = (1.0 + rate) ** (-3 * q)
-    return (Decimal(z["value"]) * Decimal(factor)).quantize(CENT, rounding=ROUND_HALF_EVEN)
+    """The objective coefficient: the file's value_by_quarter (written by
+    finance::roadmap::value_at), else value / (1 + r_m)^(3q) in 28-digit decimals, rounded to
+    the cent, half away from zero."""
+    if z.get("value_by_quarter"):
+        return Decimal(z["value_by_quarter"][q])
+    with localcontext() as ctx:
+        ctx.prec = 28
+        v = Decimal(z["value"]) / (1 + Decimal(repr(rate))) ** (3 * q)
+        return v.quantize(CENT, rounding=ROUND_HALF_UP)
 
 
 def plannable(inst):
@@ -153,13 +159,14 @@ def build(inst):
                 cs = [c for c in inside[m] if zones[variables[c][0]]["area"] == a]
                 if cs:
                     row([(c, 1) for c in cs], max(1 - busy[m], 0))
-    for col, (i, q) in enumerate(variables):
+    for i, q in variables:
         for a in zones[i]["needs"]:
             if zones[a]["committed_start"] is not None:
                 continue
-            live_by = [index[(a, qq)] for qq in range(quarters)
+            started_by = [(index[(i, qq)], 1) for qq in range(q + 1) if (i, qq) in index]
+            live_by = [(index[(a, qq)], -1) for qq in range(quarters)
                        if (a, qq) in index and 3 * qq + window(zones[a]) <= 3 * q]
-            row([(col, 1)] + [(c, -1) for c in live_by], 0)
+            row(started_by + live_by, 0)
     a = coo_matrix((vals, (rows, cols)), shape=(len(ub), len(variables))).tocsr()
     return variables, coef, a, np.array(ub, dtype=float)
 

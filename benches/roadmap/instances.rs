@@ -25,7 +25,7 @@
 //!   "carry_over": true,              // budgets cumulative (years 0..=y) instead of per year
 //!   "capacity": 2,                   // zones inside their introduction window in any month
 //!   "one_per_area": true,            // at most one per non-empty area in any month
-//!   "monthly_rate": 0.0072.., // value of a start in quarter q: value * (1 + rate)^(-3q)
+//!   "monthly_rate": 0.00720..,       // 9 % a year; a start in quarter q is worth value / (1 + rate)^(3q)
 //!   "zones": [{
 //!     "code": "Z003", "area": "press shop",  // area "" = none
 //!     "needs": [0, 2],               // indices into zones: live before this one starts
@@ -33,13 +33,15 @@
 //!     "committed_start": -4,         // start month of a committed zone, null for a candidate
 //!     "value": "48250.00",           // V_z, money as a decimal string
 //!     "one_off_cents": [[0, 2900000], [2, 3400000]],  // [month offset from start, cents]
-//!     "go_live": 5, "ramp_up": 4     // window: months start .. start + go_live + max(ramp_up, 1) - 1
-//!   }, ..]
+//!     "go_live": 5, "ramp_up": 4,    // window: months start .. start + go_live + max(ramp_up, 1) - 1
+//!     "value_by_quarter": ["48250.00", "47221.60", ..]  // candidates: finance::roadmap::value_at
+//!   }, ..]                           //   for q = 0 .. 4 * years - 1 (null for a committed zone)
 //! }
 //! ```
-//! Each file is the exact [`Instance`] the Rust side solves (`to_json` writes every field).
+//! Each file is the exact [`Instance`] the Rust side solves (`to_json` writes every field), and
+//! the objective's coefficients as the library computes them, so both sides maximise the same sum.
 
-use pilot_ledger::finance::roadmap::{Instance, PlanZone};
+use pilot_ledger::finance::roadmap::{Instance, PlanZone, value_at};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rust_decimal::Decimal;
@@ -237,7 +239,13 @@ pub fn to_json(g: &Generated) -> Value {
     let zones: Vec<Value> = inst
         .zones
         .iter()
-        .map(|z| {
+        .enumerate()
+        .map(|(i, z)| {
+            // The objective's coefficients exactly as the library rounds them.
+            let by_quarter: Option<Vec<String>> = z
+                .committed_start
+                .is_none()
+                .then(|| (0..4 * inst.years).map(|q| value_at(inst, i, q).to_string()).collect());
             json!({
                 "code": z.code,
                 "area": z.area,
@@ -248,6 +256,7 @@ pub fn to_json(g: &Generated) -> Value {
                 "one_off_cents": z.one_off.iter().map(|(m, c)| json!([m, c])).collect::<Vec<_>>(),
                 "go_live": z.go_live,
                 "ramp_up": z.ramp_up,
+                "value_by_quarter": by_quarter,
             })
         })
         .collect();
