@@ -185,7 +185,12 @@ fn scipy(python: &str, name: &str, candidates: usize, inst: &Instance, path: &Pa
             return row;
         }
     };
-    let v: Value = serde_json::from_slice(&out.stdout).expect("one JSON object from the script");
+    // HiGHS may print a line of its own on stdout: the answer is the last JSON line.
+    let text = String::from_utf8_lossy(&out.stdout);
+    let Some(v) = text.lines().rev().find_map(|l| serde_json::from_str::<Value>(l).ok()) else {
+        row.problem = Some(format!("no answer from {SCRIPT}: {}", text.trim()));
+        return row;
+    };
     row.seconds = v["seconds"].as_f64().unwrap_or(f64::NAN);
     row.proven = v["proven"].as_bool().unwrap_or(false);
     row.gap = v["gap"].as_f64();
