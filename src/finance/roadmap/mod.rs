@@ -17,13 +17,30 @@
 //!   at most one zone of each (non-empty) area.
 //! - **Dependencies**: a zone starts at or after the month each zone it needs is live.
 //! - **Committed** zones keep their start month (which may be before month 0); they count
-//!   against budgets and capacity inside the plan.
+//!   against budgets and capacity inside the plan. What they alone overrun is reported
+//!   ([`Roadmap::overruns`]), not counted against the plan; a candidate gets no room there.
 //! - **Value** of a candidate started in quarter `q`: `V_z (1 + r_m)^(-3q)`. The plan maximises
 //!   the total value of the planned candidates; a candidate whose `V_z` is not positive is never
 //!   planned.
+//!
+//! # The solver
+//! [`roadmap`] solves the usual MILP (binary `x[z,q]`) through `good_lp`, `microlp` by default
+//! and HiGHS with the `highs` feature, re-checks its plan in exact cents with [`check`] (a plan
+//! a float tolerance let over a limit is cut off and the model solved again), then inserts any
+//! candidate that still fits. DEVELOPERS.md (Roadmap model) has the formulation.
 
 use rust_decimal::Decimal;
-use std::time::Duration;
+
+mod explain;
+mod milp;
+mod rules;
+mod simple;
+#[cfg(test)]
+mod tests;
+
+pub use explain::roadmap;
+pub use rules::{capital_use, check, introductions, one_off_by_year, value_at};
+pub use simple::simple_plan;
 
 /// One plan's inputs in the solver's units.
 #[derive(Debug, Clone, PartialEq)]
@@ -184,48 +201,4 @@ pub enum RoadmapError {
     /// The solver failed.
     #[error("the solver failed: {0}")]
     Solver(String),
-}
-
-/// Solve: the optimal plan within `limit`, the simple plan and the delay figures.
-pub fn roadmap(inst: &Instance, limit: Duration) -> Result<Roadmap, RoadmapError> {
-    let _ = (inst, limit);
-    Err(RoadmapError::Solver("not built yet".into()))
-}
-
-/// The simple plan a person would make.
-pub fn simple_plan(inst: &Instance) -> Plan {
-    let _ = inst;
-    Plan { placements: Vec::new(), value: Decimal::ZERO, bound: Decimal::ZERO, proven: false }
-}
-
-/// Check every rule for these start months (relative to month 0, `None` when not started),
-/// independently of the solver: the first rule broken, if any.
-pub fn check(inst: &Instance, starts: &[Option<i32>]) -> Result<(), Rule> {
-    let _ = (inst, starts);
-    Ok(())
-}
-
-/// Spending in cents of each plan year by the zones as placed.
-pub fn capital_use(inst: &Instance, placements: &[Placement]) -> Vec<i64> {
-    let _ = placements;
-    vec![0; inst.years as usize]
-}
-
-/// Number of zones inside their introduction window in each plan month (`12Y` months).
-pub fn introductions(inst: &Instance, placements: &[Placement]) -> Vec<u32> {
-    let _ = placements;
-    vec![0; 12 * inst.years as usize]
-}
-
-/// One zone's one-off cents per plan year when it starts in month `start`.
-pub fn one_off_by_year(inst: &Instance, zone: usize, start: i32) -> Vec<i64> {
-    let _ = (zone, start);
-    vec![0; inst.years as usize]
-}
-
-/// `V_z (1 + r_m)^(-3q)`, money rounded to the cent.
-pub fn value_at(inst: &Instance, zone: usize, quarter: u32) -> Decimal {
-    let _ = (zone, quarter);
-    let _ = inst;
-    Decimal::ZERO
 }

@@ -1,0 +1,360 @@
+//! The MILP through `good_lp`: binary `x[z,q]` per eligible candidate and quarter, one start
+//! per zone, budget rows per plan year, capacity rows per month, area rows per area and month,
+//! precedence rows; maximise the value. `microlp` by default, HiGHS with the `highs` feature.
+
+use super::Instance;
+use super::rules::{self, Areas, budget_rows, loads, quarters, room, window_months};
+use good_lp::constraint::leq;
+use good_lp::{
+    Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel, Variable, WithInitialSolution,
+    WithTimeLimit, variable,
+};
+use rust_decimal::prelude::ToPrimitive;
+use std::time::Instant;
+
+/// One binary variable: candidate `zone` starts in `quarter`.
+#[derive(Debug, Clone, Copy)]
+struct Start {
+    zone: usize,
+    quarter: u32,
+}
+
+/// What a solve gives back.
+pub(super) struct Solved {
+    /// Start months of the candidates (committed zones at their own).
+    pub(super) starts: Vec<Option<i32>>,
+    /// The solver proved its plan optimal.
+    pub(super) proven: bool,
+    /// An upper bound on any plan's value, money, when the solver or the LP relaxation gave one.
+    pub(super) bound: Option<f64>,
+}
+
+/// The model's pieces, rebuilt for every solve because `good_lp` consumes a model.
+struct Model {
+    starts: Vec<Start>,
+    /// Cents of each start per budget row.
+    cents: Vec<Vec<i64>>,
+    /// Rows as (terms (variable index, coefficient), right-hand side).
+    rows: Vec<(Vec<(usize, f64)>, f64)>,
+    objective: Vec<f64>,
+}
+
+/// Solve the MILP over the `eligible` candidates within the `deadline`, starting from `warm`
+/// (a plan that keeps every rule; returned unproven if the backend gives nothing better in
+/// time). The answer is re-checked in exact cents: a plan a float
+/// tolerance let over a limit is cut off and the model solved again (a few times at most).
+pub(super) fn solve(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], deadline: Instant) -> Solved {
+    let model = build(inst, eligible);
+    if model.starts.is_empty() {
+        // No candidate can start anywhere: the committed zones alone are the plan.
+        let starts = inst.zones.iter().map(|z| z.committed_start).collect();
+        return Solved { starts, proven: true, bound: Some(0.0) };
+    }
+    let mut cuts: Vec<(Vec<(usize, f64)>, f64)> = Vec::new();
+    let mut bound = None;
+    for _ in 0..20 {
+        let secs = deadline.saturating_duration_since(Instant::now()).as_secs_f64();
+        if secs <= 0.0 {
+            break;
+        }
+        // A backend that fails or stops before any plan leaves the warm plan, unproven.
+        let Ok(out) = run(&model, &cuts, warm, true, secs) else { break };
+        bound = bound.or(out.bound);
+        let starts = to_starts(inst, &model, &out.values);
+        match rules::check(inst, &starts) {
+            Ok(()) => return Solved { starts, proven: out.proven, bound },
+            Err(rule) => cuts.push(cut(&model, &out.values, &rule)),
+        }
+    }
+    // Out of time or of cuts: the warm plan, with what bound the relaxation gives.
+    Solved { starts: warm.to_vec(), proven: false, bound }
+}
+
+/// An upper bound from the LP relaxation (the same rows, `0 <= x <= 1`), money.
+pub(super) fn relaxation_bound(inst: &Instance, eligible: &[bool], deadline: Instant) -> Option<f64> {
+    let model = build(inst, eligible);
+    if model.starts.is_empty() {
+        return Some(0.0);
+    }
+    let secs = deadline.saturating_duration_since(Instant::now()).as_secs_f64().max(1.0);
+    let out = run(&model, &[], &[], false, secs).ok()?;
+    let value: f64 = out.values.iter().zip(&model.objective).map(|(x, c)| x * c).sum();
+    out.proven.then_some(value)
+}
+
+/// The variables and rows. Starts a zone could not take even alone (a need not live yet, a
+/// year or month without room) get no variable: integers, so this stays exact.
+fn build(inst: &Instance, eligible: &[bool]) -> Model {
+    let areas = Areas::of(inst);
+    let (committed, none) = loads(inst, &areas, &[]);
+    let limits: Vec<i64> = budget_rows(inst, &committed, &none).iter().map(|(b, c, _)| room(*b, *c)).collect();
+    let cap: Vec<i64> = committed.intro.iter().map(|c| room(i64::from(inst.capacity), i64::from(*c))).collect();
+    let area_room: Vec<Vec<i64>> =
+        committed.area.iter().map(|a| a.iter().map(|c| room(1, i64::from(*c))).collect()).collect();
+    let order = rules::validate(inst).unwrap_or_default();
+    let q_count = quarters(inst);
+
+    let mut starts: Vec<Start> = Vec::new();
+    let mut first_var: Vec<Option<usize>> = vec![None; inst.zones.len()];
+    // Earliest month each zone can be live: committed at its own, a candidate at its first
+    // variable's quarter plus its window.
+    let mut live_from: Vec<Option<i64>> =
+        inst.zones.iter().map(|z| z.committed_start.map(|s| i64::from(s) + i64::from(z.window()))).collect();
+    for &i in &order {
+        let z = &inst.zones[i];
+        if z.committed_start.is_some() || !eligible.get(i).copied().unwrap_or(false) {
+            continue;
+        }
+        let area = areas.index(&z.area).filter(|_| inst.one_per_area);
+        for q in 0..q_count {
+            let m = 3 * i64::from(q);
+            if z.needs.iter().any(|a| live_from[*a].is_none_or(|l| l > m)) {
+                continue;
+            }
+            let fits_budget = row_cents(inst, i, q).iter().zip(&limits).all(|(c, l)| c <= l);
+            let s = 3 * q as i32;
+            let fits_months = window_months(inst, z, s)
+                .all(|mm| cap[mm as usize] > 0 && area.is_none_or(|a| area_room[a][mm as usize] > 0));
+            if !(fits_budget && fits_months) {
+                continue;
+            }
+            if first_var[i].is_none() {
+                first_var[i] = Some(starts.len());
+                live_from[i] = Some(m + i64::from(z.window()));
+            }
+            starts.push(Start { zone: i, quarter: q });
+        }
+    }
+
+    let objective: Vec<f64> =
+        starts.iter().map(|s| rules::value_at(inst, s.zone, s.quarter).to_f64().unwrap_or(0.0)).collect();
+    let mut rows: Vec<(Vec<(usize, f64)>, f64)> = Vec::new();
+    // One start per zone.
+    let mut by_zone: Vec<Vec<usize>> = vec![Vec::new(); inst.zones.len()];
+    for (v, s) in starts.iter().enumerate() {
+        by_zone[s.zone].push(v);
+    }
+    for vars in by_zone.iter().filter(|v| v.len() > 1) {
+        rows.push((vars.iter().map(|v| (*v, 1.0)).collect(), 1.0));
+    }
+    // Budgets, each row scaled to a right-hand side of 1 for the float solver.
+    let cents: Vec<Vec<i64>> = starts.iter().map(|s| row_cents(inst, s.zone, s.quarter)).collect();
+    for (r, limit) in limits.iter().enumerate() {
+        let terms: Vec<(usize, f64)> = (0..starts.len())
+            .filter(|v| cents[*v][r] > 0)
+            .map(|v| (v, cents[v][r] as f64 / (*limit).max(1) as f64))
+            .collect();
+        if distinct_zones(&starts, &terms) > 1 {
+            rows.push((terms, 1.0));
+        }
+    }
+    // Capacity and area per month: only rows that can bind.
+    let months = cap.len();
+    let covers = |v: usize, m: usize| {
+        let s = starts[v];
+        window_months(inst, &inst.zones[s.zone], 3 * s.quarter as i32).contains(&(m as i64))
+    };
+    for (m, room_m) in cap.iter().enumerate() {
+        let terms: Vec<(usize, f64)> = (0..starts.len()).filter(|v| covers(*v, m)).map(|v| (v, 1.0)).collect();
+        if distinct_zones(&starts, &terms) as i64 > *room_m {
+            rows.push((terms, *room_m as f64));
+        }
+    }
+    if inst.one_per_area {
+        for (a, rooms) in area_room.iter().enumerate() {
+            for (m, room_m) in rooms.iter().enumerate().take(months) {
+                let terms: Vec<(usize, f64)> = (0..starts.len())
+                    .filter(|v| areas.index(&inst.zones[starts[*v].zone].area) == Some(a))
+                    .filter(|v| covers(*v, m))
+                    .map(|v| (v, 1.0))
+                    .collect();
+                if distinct_zones(&starts, &terms) as i64 > *room_m {
+                    rows.push((terms, *room_m as f64));
+                }
+            }
+        }
+    }
+    // Precedence, in the aggregated form: z started by quarter q needs each candidate a it
+    // needs started by a quarter q' with 3q' + window_a <= 3q.
+    for s in &starts {
+        let z = &inst.zones[s.zone];
+        for a in &z.needs {
+            if inst.zones[*a].committed_start.is_some() {
+                continue;
+            }
+            let wa = i64::from(inst.zones[*a].window());
+            let mut terms: Vec<(usize, f64)> =
+                by_zone[s.zone][..].iter().filter(|u| starts[**u].quarter <= s.quarter).map(|u| (*u, 1.0)).collect();
+            terms.extend(
+                by_zone[*a]
+                    .iter()
+                    .filter(|u| 3 * i64::from(starts[**u].quarter) + wa <= 3 * i64::from(s.quarter))
+                    .map(|u| (*u, -1.0)),
+            );
+            rows.push((terms, 0.0));
+        }
+    }
+    Model { starts, cents, rows, objective }
+}
+
+/// Cents of a start per budget row (cumulative with carry-over).
+fn row_cents(inst: &Instance, zone: usize, quarter: u32) -> Vec<i64> {
+    let by_year = rules::one_off_by_year(inst, zone, 3 * quarter as i32);
+    let mut acc = 0i64;
+    by_year
+        .iter()
+        .map(|c| {
+            if inst.carry_over {
+                acc = acc.saturating_add(*c);
+                acc
+            } else {
+                *c
+            }
+        })
+        .collect()
+}
+
+fn distinct_zones(starts: &[Start], terms: &[(usize, f64)]) -> usize {
+    let mut zones: Vec<usize> = terms.iter().map(|(v, _)| starts[*v].zone).collect();
+    zones.sort_unstable();
+    zones.dedup();
+    zones.len()
+}
+
+/// The candidates' start months from the solver's values (committed zones at their own).
+fn to_starts(inst: &Instance, model: &Model, values: &[f64]) -> Vec<Option<i32>> {
+    let mut starts: Vec<Option<i32>> = inst.zones.iter().map(|z| z.committed_start).collect();
+    for (s, x) in model.starts.iter().zip(values) {
+        if *x > 0.5 {
+            starts[s.zone] = Some(3 * s.quarter as i32);
+        }
+    }
+    starts
+}
+
+/// A cut against the starts the solver chose that break `rule` in exact cents. For a budget
+/// row, an extended cover: the zones with cents in the broken row cannot all start again at
+/// quarters costing each at least as much in that row (any such plan is over it too, and each
+/// zone starts once). Otherwise not all of the chosen starts again (the rows only grow with
+/// more starts). Either way no plan that keeps the rules is cut off.
+fn cut(model: &Model, values: &[f64], rule: &super::Rule) -> (Vec<(usize, f64)>, f64) {
+    let chosen: Vec<usize> = (0..model.starts.len()).filter(|v| values.get(*v).is_some_and(|x| *x > 0.5)).collect();
+    let row = match rule {
+        super::Rule::Budget { year, .. } => Some(*year as usize),
+        _ => None,
+    };
+    let Some(r) = row else {
+        let n = chosen.len() as f64;
+        return (chosen.into_iter().map(|v| (v, 1.0)).collect(), n - 1.0);
+    };
+    let cents = &model.cents;
+    let cover: Vec<usize> = chosen.into_iter().filter(|v| cents[*v][r] > 0).collect();
+    let terms: Vec<(usize, f64)> = (0..model.starts.len())
+        .filter(|u| {
+            cover.iter().any(|v| model.starts[*u].zone == model.starts[*v].zone && cents[*u][r] >= cents[*v][r])
+        })
+        .map(|u| (u, 1.0))
+        .collect();
+    (terms, cover.len() as f64 - 1.0)
+}
+
+/// What one call of the backend gives back.
+struct Outcome {
+    values: Vec<f64>,
+    proven: bool,
+    bound: Option<f64>,
+}
+
+/// Build the `good_lp` problem (binary, or relaxed to `0..=1`) and solve it with the backend.
+fn run(
+    model: &Model,
+    cuts: &[(Vec<(usize, f64)>, f64)],
+    warm: &[Option<i32>],
+    integer: bool,
+    secs: f64,
+) -> Result<Outcome, String> {
+    let mut vars = ProblemVariables::new();
+    let xs: Vec<Variable> = model
+        .starts
+        .iter()
+        .map(|_| vars.add(if integer { variable().binary() } else { variable().min(0).max(1) }))
+        .collect();
+    let mut objective = Expression::with_capacity(xs.len());
+    for (x, c) in xs.iter().zip(&model.objective) {
+        objective.add_mul(*c, *x);
+    }
+    let constraints: Vec<Constraint> = model
+        .rows
+        .iter()
+        .chain(cuts)
+        .map(|(terms, rhs)| {
+            let mut e = Expression::with_capacity(terms.len());
+            for (v, c) in terms {
+                e.add_mul(*c, xs[*v]);
+            }
+            leq(e, *rhs)
+        })
+        .collect();
+    let initial: Vec<(Variable, f64)> = if integer && !warm.is_empty() {
+        model
+            .starts
+            .iter()
+            .zip(&xs)
+            .map(|(s, x)| {
+                let on = warm.get(s.zone).copied().flatten() == Some(3 * s.quarter as i32);
+                (*x, if on { 1.0 } else { 0.0 })
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let problem = vars.maximise(objective);
+    // A panic inside the backend becomes an error, not a failed request.
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| backend(problem, constraints, initial, &xs, secs)))
+        .unwrap_or_else(|_| Err("the solver stopped unexpectedly".into()))
+}
+
+#[cfg(not(feature = "highs"))]
+fn backend(
+    problem: good_lp::variable::UnsolvedProblem,
+    constraints: Vec<Constraint>,
+    initial: Vec<(Variable, f64)>,
+    xs: &[Variable],
+    secs: f64,
+) -> Result<Outcome, String> {
+    let mut m = good_lp::microlp(problem).with_time_limit(secs);
+    if !initial.is_empty() {
+        m = m.with_initial_solution(initial);
+    }
+    for c in constraints {
+        m.add_constraint(c);
+    }
+    let sol = m.solve().map_err(|e| e.to_string())?;
+    let values = xs.iter().map(|x| sol.value(*x)).collect();
+    let proven = matches!(sol.status(), SolutionStatus::Optimal);
+    let bound = sol.into_inner().stats().best_bound;
+    Ok(Outcome { values, proven, bound })
+}
+
+#[cfg(feature = "highs")]
+fn backend(
+    problem: good_lp::variable::UnsolvedProblem,
+    constraints: Vec<Constraint>,
+    initial: Vec<(Variable, f64)>,
+    xs: &[Variable],
+    secs: f64,
+) -> Result<Outcome, String> {
+    // HiGHS stops at a relative gap of 1e-4 by default: the plan must be the exact optimum.
+    let mut m =
+        good_lp::highs(problem).set_threads(1).set_mip_rel_gap(0.0).map_err(|e| e.to_string())?.with_time_limit(secs);
+    if !initial.is_empty() {
+        m = m.with_initial_solution(initial);
+    }
+    for c in constraints {
+        m.add_constraint(c);
+    }
+    let sol = m.solve().map_err(|e| e.to_string())?;
+    let values = xs.iter().map(|x| sol.value(*x)).collect();
+    let proven = matches!(sol.status(), SolutionStatus::Optimal);
+    Ok(Outcome { values, proven, bound: None })
+}
