@@ -17,9 +17,10 @@ use tokio::net::TcpListener;
 pub const DEMO_SCENARIO: &str = include_str!("../seed/demo-plant.json");
 
 /// The demo's named plan: three plan years from the month after the load, a yearly capital
-/// budget of 75,000 (the three candidates' one-off outlays are 66,000, 31,000 and 55,500, so no
-/// two of them fit in one plan year: the budget binds), two introductions at a time.
-const DEMO_PLAN: (&str, &str) = ("Three-year roll-out", "75000");
+/// budget of 60,000 and one introduction at a time. The three candidates' one-off outlays are
+/// 55,500, 31,000 and 66,000 (the last spread over months), so at most one or two of them fit in
+/// a plan year (the budget binds), and they cannot be introduced at once (the capacity binds).
+const DEMO_PLAN: (&str, &str, &str) = ("Three-year roll-out", "60000", "1");
 
 /// Site settings for a database started without the demo plant.
 const EMPTY_SITE: &str = r#"{"format": "pilot-ledger-scenario", "version": 1,
@@ -208,11 +209,12 @@ pub async fn prepare(url: &str, demo: bool, now: time::OffsetDateTime) -> anyhow
         if db::count_users(&pool).await? == 0 {
             create_demo_accounts(&pool, now).await?;
         }
-        let (name, budgets) = DEMO_PLAN;
+        let (name, budgets, capacity) = DEMO_PLAN;
         let inputs = crate::domain::RoadmapQuery {
             start: crate::domain::RoadmapParams::next_month(now).to_string(),
             years: "3".into(),
             budgets: budgets.into(),
+            capacity: capacity.into(),
             ..Default::default()
         };
         app::roadmap::save_plan(&pool, "scenario-load", name, &inputs, now)

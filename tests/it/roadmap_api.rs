@@ -201,10 +201,12 @@ async fn the_demo_has_a_named_plan() {
             plan["inputs"]["budgets"].clone(),
             plan["inputs"]["start"].clone()
         ),
-        (json!("Three-year roll-out"), json!(1), json!("75000;75000;75000"), json!("2026-12"))
+        (json!("Three-year roll-out"), json!(1), json!("60000;60000;60000"), json!("2026-12"))
     );
-    // Its budget binds: the candidates' one-off outlays are 66,000, 31,000 and 55,500, so no two
-    // fit in one plan year of 75,000, and a planned zone waits for the budget.
+    assert_eq!(plan["inputs"]["capacity"], "1");
+    // Its budget binds: the candidates' one-off outlays are 66,000, 31,000 and 55,500, against
+    // 60,000 a plan year, so a planned zone waits for the budget. Its capacity binds too: with one
+    // introduction at a time, a planned zone waits for another's introduction to end.
     let a = t.get("/api/v1/roadmap?plan=1").await;
     assert_eq!(a.status, StatusCode::OK, "{}", a.text);
     let a = a.json();
@@ -214,8 +216,14 @@ async fn the_demo_has_a_named_plan() {
             || z["reason"].as_str().is_some_and(|r| r.contains("budget"))
     });
     assert!(budget_binds, "{}", a["optimal"]);
+    let capacity_binds = zones.iter().any(|z| {
+        z["what_would_start_it_a_quarter_earlier"]
+            .as_str()
+            .is_some_and(|w| w.contains("one more introduction at a time"))
+    });
+    assert!(capacity_binds, "{}", a["optimal"]);
     for y in a["optimal"]["capital_use"].as_array().unwrap() {
-        assert!(money(&y["used"]) <= 75_000.0, "{y}");
+        assert!(money(&y["used"]) <= 60_000.0, "{y}");
     }
 }
 
