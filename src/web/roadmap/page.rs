@@ -235,7 +235,8 @@ impl AnswerView {
         let differences = order
             .iter()
             .filter(|&&i| !matches!(place(i), Some(Placement::Committed { .. })))
-            .filter(|&&i| place(i) != simple.placements.get(i))
+            // By start: two "not in it" differ only in their reasons, which is no difference here.
+            .filter(|&&i| placement_start(place(i)) != placement_start(simple.placements.get(i)))
             .map(|&i| {
                 let at = |p: Option<&Placement>| match placement_start(p) {
                     Some(s) => format!("starts {}", month_name(s)),
