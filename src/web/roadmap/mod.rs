@@ -47,6 +47,9 @@ pub(super) async fn compute(state: &AppState, params: RoadmapParams) -> Result<R
 }
 
 /// The query of `GET /api/v1/roadmap`: the plan inputs, or `plan` (a stored version's id).
+/// The fields of [`RoadmapQuery`] written out rather than `#[serde(flatten)]` (as the page's
+/// query does): [`super::ApiQuery`] refuses unknown parameters by the struct's field names, and
+/// a flattened struct lists none.
 #[derive(Debug, Default, Deserialize)]
 #[serde(default)]
 pub struct ApiRoadmapQuery {
