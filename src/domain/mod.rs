@@ -53,8 +53,8 @@ pub use portfolio::{
 pub use readiness::{Criterion, MAX_WEIGHT, Readiness, SCORE_RANGE, parse_scores, parse_weights};
 pub use realized::{DriverRealization, RealizedView, month_end, realized_view};
 pub use roadmap::{
-    PLAN_NAME_MAX, PlanRow, PlanVersion, RoadmapAnswer, RoadmapParams, RoadmapQuery, RoadmapZone, parse_plan_name,
-    roadmap_answer, roadmap_instance,
+    MAX_TIME_LIMIT, PLAN_NAME_MAX, PlanRow, PlanVersion, RoadmapAnswer, RoadmapParams, RoadmapQuery, RoadmapZone,
+    parse_plan_name, roadmap_answer, roadmap_instance,
 };
 pub use scenario::{Scenario, ScenarioEntry, ZoneScenario, layout_document};
 pub use site::{DEFAULT_INTRODUCTION_CAPACITY, MAX_INTRODUCTION_CAPACITY, SiteSettings, SiteSettingsInput};

@@ -28,8 +28,9 @@ use std::time::Duration;
 pub const MAX_YEARS: u32 = 10;
 /// Most introductions at a time a plan may allow.
 pub const MAX_CAPACITY: u32 = 20;
-/// Longest time limit of the solver, in seconds.
-pub const MAX_TIME_LIMIT: u32 = 60;
+/// Longest time limit of the solver, in seconds: what fits inside one request's own limit
+/// (`web::REQUEST_TIMEOUT`, 30 s) with the portfolio's computation and the page's rendering.
+pub const MAX_TIME_LIMIT: u32 = 25;
 /// Plan length when none is given.
 pub const DEFAULT_YEARS: u32 = 3;
 /// Time limit when none is given, in seconds.
@@ -523,7 +524,7 @@ mod tests {
             carry_over: "on".into(),
             one_per_area: "true".into(),
             basis: "calibrated_npv".into(),
-            time_limit: "60".into(),
+            time_limit: "25".into(),
         };
         let p = parse(&q).map_err(|e| format!("{e:?}"))?;
         assert_eq!(
@@ -536,7 +537,7 @@ mod tests {
                 carry_over: true,
                 one_per_area: true,
                 basis: ValueBasis::Calibrated,
-                time_limit_seconds: 60,
+                time_limit_seconds: 25,
             }
         );
         // The plan's months: 2027-04 + 11 = 2028-03; 3 months before it, 2027-01.
@@ -597,9 +598,9 @@ mod tests {
                 "one of npv, chance_weighted_npv, calibrated_npv",
             ),
             (
-                RoadmapQuery { time_limit: "61".into(), ..query("1") },
+                RoadmapQuery { time_limit: "26".into(), ..query("1") },
                 "time_limit",
-                "\"61\" is outside 1 to 60: enter a whole number from 1 to 60",
+                "\"26\" is outside 1 to 25: enter a whole number from 1 to 25",
             ),
         ];
         for (q, field, message) in cases {

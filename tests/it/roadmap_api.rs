@@ -33,7 +33,7 @@ async fn each_bad_input_is_a_422_naming_its_field() {
         ("budgets=1&carry_over=yes", "carry_over", "\"yes\" is not true or false"),
         ("budgets=1&one_per_area=2", "one_per_area", "\"2\" is not true or false"),
         ("budgets=1&basis=irr", "basis", "one of npv, chance_weighted_npv, calibrated_npv"),
-        ("budgets=1&time_limit=61", "time_limit", "\"61\" is outside 1 to 60: enter a whole number from 1 to 60"),
+        ("budgets=1&time_limit=26", "time_limit", "\"26\" is outside 1 to 25: enter a whole number from 1 to 25"),
         ("plan=x", "plan", "the id of a stored plan version, such as 1"),
         ("plan=1&budgets=5", "plan", "give either a stored plan version or the plan inputs, not both"),
         (
@@ -58,7 +58,7 @@ async fn each_bad_input_is_a_422_naming_its_field() {
         .post_json(
             "/api/v1/roadmap/plans",
             r#"{"name": "Control", "inputs": {"start": "2027-01", "years": "2", "budgets": "5;0", "capacity": "20",
-                "carry_over": "on", "one_per_area": "false", "basis": "calibrated_npv", "time_limit": "60"}}"#,
+                "carry_over": "on", "one_per_area": "false", "basis": "calibrated_npv", "time_limit": "25"}}"#,
         )
         .await;
     assert_eq!(ok.status, StatusCode::CREATED, "{}", ok.text);

@@ -25,10 +25,6 @@ use rust_decimal::Decimal;
 use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 
-/// Longest search inside one request: the request's own limit ([`super::REQUEST_TIMEOUT`]) less
-/// the portfolio's computation and the answer's rendering.
-const SEARCH_WITHIN_REQUEST: u32 = 25;
-
 /// Compute the roadmap for valid inputs: the portfolio's figures (every zone: a plan that left
 /// out zones still warming up would be wrong), then the solver on the CPU pool.
 pub(super) async fn compute(state: &AppState, params: RoadmapParams) -> Result<RoadmapAnswer, AppError> {
@@ -40,8 +36,6 @@ pub(super) async fn compute(state: &AppState, params: RoadmapParams) -> Result<R
         trials: Trials::default(),
     };
     let computed = compute_portfolio(state, portfolio_params, None).await?;
-    let mut params = params;
-    params.time_limit_seconds = params.time_limit_seconds.min(SEARCH_WITHIN_REQUEST);
     let answer = crate::app::cpu::run(move || roadmap_answer(&computed.portfolio, params, &computed.site)).await?;
     answer.map_err(|e| AppError::Internal(anyhow::anyhow!("the roadmap cannot be computed: {e}")))
 }
@@ -250,10 +244,9 @@ pub async fn api_save_plan(
 
 #[cfg(test)]
 mod tests {
-    use super::*;
-
     #[test]
     fn the_search_fits_inside_a_request() {
-        assert!(std::time::Duration::from_secs(u64::from(SEARCH_WITHIN_REQUEST)) < super::super::REQUEST_TIMEOUT);
+        let longest = std::time::Duration::from_secs(u64::from(crate::domain::MAX_TIME_LIMIT));
+        assert!(longest < super::super::REQUEST_TIMEOUT);
     }
 }
