@@ -3,7 +3,7 @@
 
 use super::rules::{self, check, quarters, validate, value_at};
 use super::simple::{earliest, simple_plan};
-use super::{Delay, Instance, NotPlanned, Placement, Roadmap, RoadmapError, milp};
+use super::{Delay, Instance, NotPlanned, Placement, Roadmap, RoadmapError, milp, search};
 use rust_decimal::Decimal;
 use rust_decimal::prelude::FromPrimitive;
 use std::time::{Duration, Instant};
@@ -14,12 +14,26 @@ use std::time::{Duration, Instant};
 /// proved the optimum; otherwise `bound` is the solver's proven bound or, without one, the value
 /// of the LP relaxation, an upper bound on every plan.
 pub fn roadmap(inst: &Instance, limit: Duration) -> Result<Roadmap, RoadmapError> {
+    roadmap_with(inst, limit, Solvers::Both)
+}
+
+/// Which solvers [`roadmap`] runs: our search, then the MILP if the search could not prove its
+/// plan; or one of them alone, so that the tests hold each against brute force.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Solvers {
+    Both,
+    #[cfg_attr(not(test), allow(dead_code))]
+    SearchOnly,
+    #[cfg_attr(not(test), allow(dead_code))]
+    MilpOnly,
+}
+
+pub(super) fn roadmap_with(inst: &Instance, limit: Duration, solvers: Solvers) -> Result<Roadmap, RoadmapError> {
     let order = validate(inst)?;
-    let deadline = Instant::now() + limit;
     let eligible = eligibility(inst, &order);
     let mut simple = simple_plan(inst);
     let simple_starts: Vec<Option<i32>> = simple.placements.iter().map(Placement::start_month).collect();
-    let solved = milp::solve(inst, &eligible, &simple_starts, deadline);
+    let solved = solve(inst, &eligible, &simple_starts, limit, solvers);
     let mut proven = solved.proven;
     let mut starts = solved.starts;
     if starts_value(inst, &starts) < starts_value(inst, &simple_starts) {
@@ -46,6 +60,32 @@ pub fn roadmap(inst: &Instance, limit: Duration) -> Result<Roadmap, RoadmapError
         delays,
         overruns: rules::overruns(inst),
     })
+}
+
+/// Our exact search first, for up to half the time; if it cannot prove its plan, the MILP from
+/// its plan for the rest, with the smaller of the two bounds.
+fn solve(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], limit: Duration, solvers: Solvers) -> milp::Solved {
+    let start = Instant::now();
+    let share = if solvers == Solvers::Both { limit / 2 } else { limit };
+    let found = match solvers {
+        Solvers::MilpOnly => None,
+        _ => search::search(inst, eligible, warm, start + share),
+    };
+    let Some(found) = found else {
+        return milp::solve(inst, eligible, warm, start + limit);
+    };
+    if found.proven || solvers == Solvers::SearchOnly {
+        let proven = found.proven;
+        return milp::Solved { starts: found.starts, proven, bound: Some(found.bound) };
+    }
+    let better = if starts_value(inst, &found.starts) > starts_value(inst, warm) { &found.starts } else { warm };
+    let mut solved = milp::solve(inst, eligible, better, start + limit);
+    if starts_value(inst, &solved.starts) < starts_value(inst, &found.starts) {
+        solved.starts = found.starts;
+        solved.proven = false;
+    }
+    solved.bound = Some(solved.bound.map_or(found.bound, |b| b.min(found.bound)));
+    solved
 }
 
 /// Time for the LP relaxation that bounds a plan the solver did not prove (small and quick).

@@ -198,7 +198,7 @@ fn build(inst: &Instance, eligible: &[bool]) -> Model {
 }
 
 /// Cents of a start per budget row (cumulative with carry-over).
-fn row_cents(inst: &Instance, zone: usize, quarter: u32) -> Vec<i64> {
+pub(super) fn row_cents(inst: &Instance, zone: usize, quarter: u32) -> Vec<i64> {
     let by_year = rules::one_off_by_year(inst, zone, 3 * quarter as i32);
     let mut acc = 0i64;
     by_year

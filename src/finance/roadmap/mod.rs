@@ -34,6 +34,7 @@ use rust_decimal::Decimal;
 mod explain;
 mod milp;
 mod rules;
+mod search;
 mod simple;
 #[cfg(test)]
 mod tests;

@@ -136,8 +136,7 @@ impl Search {
             let mut opts = Vec::new();
             for q in 0..quarters(inst) {
                 let start = 3 * q as i32;
-                if i64::from(start) < committed_live
-                    || needs.iter().any(|a| cands[*a].earliest_live > i64::from(start))
+                if i64::from(start) < committed_live || needs.iter().any(|a| cands[*a].earliest_live > i64::from(start))
                 {
                     continue;
                 }
@@ -211,16 +210,8 @@ impl Search {
         let y: Vec<good_lp::Variable> = (0..self.rows()).map(|_| vars.add(variable().min(0))).collect();
         let u: Vec<good_lp::Variable> = self.cands.iter().map(|_| vars.add(variable().min(0))).collect();
         let mut objective = Expression::with_capacity(y.len() + u.len());
-        for r in 0..nr {
-            objective.add_mul(self.row_room[r].max(0) as f64 / self.row_scale[r], y[r]);
-        }
-        for m in 0..months {
-            objective.add_mul(self.cap_room[m] as f64, y[nr + m]);
-        }
-        for (a, rooms) in self.area_room.iter().enumerate() {
-            for m in 0..months {
-                objective.add_mul(rooms[m] as f64, y[nr + months + a * months + m]);
-            }
+        for (r, rhs) in self.right_hand_sides().into_iter().enumerate() {
+            objective.add_mul(rhs, y[r]);
         }
         for x in &u {
             objective.add_mul(1.0, *x);
@@ -254,6 +245,15 @@ impl Search {
         Some(y.iter().map(|v| solved.value(*v).max(0.0)).collect())
     }
 
+    /// The rows' right-hand sides in the multipliers' order: the room left, budget rows over
+    /// their room at the root.
+    fn right_hand_sides(&self) -> Vec<f64> {
+        let budgets = self.row_room.iter().zip(&self.row_scale).map(|(r, s)| (*r).max(0) as f64 / s);
+        let months = self.cap_room.iter().map(|c| *c as f64);
+        let areas = self.area_room.iter().flat_map(|a| a.iter().map(|c| *c as f64));
+        budgets.chain(months).chain(areas).collect()
+    }
+
     fn rows(&self) -> usize {
         self.row_room.len() + self.cap_room.len() + self.area_room.len() * self.cap_room.len()
     }
@@ -273,8 +273,7 @@ impl Search {
             }
         }
         opt.rows.iter().all(|(r, cents, _)| *cents <= self.row_room[*r])
-            && (opt.from..opt.to)
-                .all(|m| self.cap_room[m] > 0 && c.area.is_none_or(|a| self.area_room[a][m] > 0))
+            && (opt.from..opt.to).all(|m| self.cap_room[m] > 0 && c.area.is_none_or(|a| self.area_room[a][m] > 0))
     }
 
     fn apply(&mut self, k: usize, o: usize, sign: i64) {
@@ -296,7 +295,7 @@ impl Search {
     /// all fixed. `mult` holds the multipliers (budget rows, months, areas x months).
     fn node(&mut self, mult: &mut [f64], steps: usize) {
         self.nodes += 1;
-        if self.nodes % 64 == 0 && Instant::now() >= self.deadline {
+        if self.nodes.is_multiple_of(64) && Instant::now() >= self.deadline {
             self.stopped = true;
         }
         // The options each free candidate still has (needs not fixed: relaxed); a candidate
@@ -306,10 +305,10 @@ impl Search {
         let mut outed: Vec<usize> = Vec::new();
         loop {
             let mut changed = false;
-            for k in 0..n {
+            for (k, left) in avail.iter_mut().enumerate() {
                 if self.fixed[k] == Fixed::Free {
-                    avail[k] = (0..self.cands[k].opts.len()).filter(|o| self.fits(k, *o, true)).collect();
-                    if avail[k].is_empty() {
+                    *left = (0..self.cands[k].opts.len()).filter(|o| self.fits(k, *o, true)).collect();
+                    if left.is_empty() {
                         self.fixed[k] = Fixed::Out;
                         outed.push(k);
                         changed = true;
@@ -420,22 +419,12 @@ impl Search {
         let mut best_mult = mult.to_vec();
         let mut theta = 1.0;
         let mut since = 0;
+        let rhs = self.right_hand_sides();
         let mut grad = vec![0.0; mult.len()];
         let target = (self.best + 1) as f64 - self.value as f64;
         for _ in 0..steps.max(1) {
-            // The rows' right-hand sides: room left (budget rows over their root room).
+            grad.copy_from_slice(&rhs);
             let mut l = 0.0;
-            for r in 0..nr {
-                grad[r] = self.row_room[r].max(0) as f64 / self.row_scale[r];
-            }
-            for m in 0..months {
-                grad[nr + m] = self.cap_room[m] as f64;
-            }
-            for (a, rooms) in self.area_room.iter().enumerate() {
-                for m in 0..months {
-                    grad[nr + months + a * months + m] = rooms[m] as f64;
-                }
-            }
             for (g, x) in grad.iter().zip(mult.iter()) {
                 l += g * x;
             }

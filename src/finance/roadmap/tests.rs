@@ -1,6 +1,7 @@
 //! The roadmap against brute force, an independent rule checker written from the text,
 //! and worked examples with the arithmetic written out.
 
+use super::explain::Solvers;
 use super::*;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -211,25 +212,28 @@ fn optimum_equals_brute_force_on_320_random_instances() -> R {
         let n = rng.random_range(1..=6);
         let years = if case % 4 == 0 { 1 } else { 2 };
         let i = random_instance(&mut rng, n, years);
-        let r = roadmap(&i, LIMIT).map_err(|e| format!("case {case}: {e}"))?;
         let best = brute_force(&i);
-        let (opt, simple) = (&r.optimal, &r.simple);
-        independent(&i, &starts_of(opt)).map_err(|e| format!("case {case} optimal: {e}"))?;
-        independent(&i, &starts_of(simple)).map_err(|e| format!("case {case} simple: {e}"))?;
-        let sum: Decimal = (0..i.zones.len())
-            .filter_map(|k| match opt.placements[k] {
-                Placement::Planned { quarter } => Some(worth(&i, k, quarter)),
-                _ => None,
-            })
-            .sum();
-        if !(opt.proven && opt.value == best && sum == best && opt.bound == best) {
-            return Err(format!(
-                "case {case}: {} (bound {}, proven {}) vs brute force {best}: {i:?}",
-                opt.value, opt.bound, opt.proven
-            ));
-        }
-        if simple.value > opt.value {
-            return Err(format!("case {case}: simple {} beats optimal {}", simple.value, opt.value));
+        for solvers in [Solvers::Both, Solvers::SearchOnly, Solvers::MilpOnly] {
+            let r = explain::roadmap_with(&i, LIMIT, solvers).map_err(|e| format!("case {case}: {e}"))?;
+            let case = format!("{case} ({solvers:?})");
+            let (opt, simple) = (&r.optimal, &r.simple);
+            independent(&i, &starts_of(opt)).map_err(|e| format!("case {case} optimal: {e}"))?;
+            independent(&i, &starts_of(simple)).map_err(|e| format!("case {case} simple: {e}"))?;
+            let sum: Decimal = (0..i.zones.len())
+                .filter_map(|k| match opt.placements[k] {
+                    Placement::Planned { quarter } => Some(worth(&i, k, quarter)),
+                    _ => None,
+                })
+                .sum();
+            if !(opt.proven && opt.value == best && sum == best && opt.bound == best) {
+                return Err(format!(
+                    "case {case}: {} (bound {}, proven {}) vs brute force {best}: {i:?}",
+                    opt.value, opt.bound, opt.proven
+                ));
+            }
+            if simple.value > opt.value {
+                return Err(format!("case {case}: simple {} beats optimal {}", simple.value, opt.value));
+            }
         }
     }
     Ok(())
@@ -411,13 +415,34 @@ fn time_limit_gives_an_honest_bound() -> R {
     }
     i.capacity = 3;
     i.budgets = vec![400_000; 3];
-    let r = roadmap(&i, Duration::from_millis(1)).map_err(|e| e.to_string())?;
-    independent(&i, &starts_of(&r.optimal))?;
-    assert!(r.optimal.bound >= r.optimal.value);
-    assert!(r.optimal.proven || r.optimal.bound > r.optimal.value);
-    assert!(r.optimal.value >= r.simple.value);
     let full = roadmap(&i, Duration::from_secs(3)).map_err(|e| e.to_string())?;
-    assert!(full.optimal.value <= r.optimal.bound, "{} > {}", full.optimal.value, r.optimal.bound);
+    for solvers in [Solvers::Both, Solvers::SearchOnly, Solvers::MilpOnly] {
+        let r = explain::roadmap_with(&i, Duration::from_millis(1), solvers).map_err(|e| e.to_string())?;
+        independent(&i, &starts_of(&r.optimal))?;
+        assert!(r.optimal.bound >= r.optimal.value, "{solvers:?}");
+        assert!(!r.optimal.proven && r.optimal.bound > r.optimal.value, "{solvers:?}");
+        assert!(r.optimal.value >= r.simple.value, "{solvers:?}");
+        assert!(full.optimal.value <= r.optimal.bound, "{solvers:?}: {} > {}", full.optimal.value, r.optimal.bound);
+    }
+    Ok(())
+}
+
+/// Beyond brute force's reach (8 candidates over 12 quarters): our search and the MILP, each
+/// alone, prove the same optimum, and both plans keep every rule.
+#[test]
+fn search_and_milp_agree_on_40_larger_instances() -> R {
+    let mut rng = ChaCha8Rng::seed_from_u64(41);
+    for case in 0..40 {
+        let i = random_instance(&mut rng, 8, 3);
+        let s = explain::roadmap_with(&i, LIMIT, Solvers::SearchOnly).map_err(|e| e.to_string())?;
+        let m = explain::roadmap_with(&i, LIMIT, Solvers::MilpOnly).map_err(|e| e.to_string())?;
+        independent(&i, &starts_of(&s.optimal)).map_err(|e| format!("case {case} search: {e}"))?;
+        independent(&i, &starts_of(&m.optimal)).map_err(|e| format!("case {case} milp: {e}"))?;
+        let both = (s.optimal.proven, m.optimal.proven, s.optimal.value == m.optimal.value);
+        if both != (true, true, true) {
+            return Err(format!("case {case}: search {} vs milp {} ({both:?})", s.optimal.value, m.optimal.value));
+        }
+    }
     Ok(())
 }
 
