@@ -40,8 +40,8 @@ struct Model {
 }
 
 /// Solve the MILP over the `eligible` candidates within the `deadline`, starting from `warm`
-/// (a plan that keeps every rule; returned unproven if the backend gives nothing better in
-/// time). The answer is re-checked in exact cents: a plan a float
+/// (a plan that keeps every rule; microlp's start, HiGHS takes none, see `backend`; returned
+/// unproven if the backend gives nothing better in time). The answer is re-checked in exact cents: a plan a float
 /// tolerance let over a limit is cut off and the model solved again (a few times at most).
 pub(super) fn solve(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], deadline: Instant) -> Solved {
     let model = build(inst, eligible);
@@ -360,7 +360,15 @@ fn backend(
             .set_mip_rel_gap(0.0)
             .map_err(|e| e.to_string())?
             .with_time_limit(secs);
-        let (_, values, proven) = load(m, constraints, initial, xs)?;
+        // No MIP start for HiGHS: HiGHS 1.16 maps the start into the presolved model and takes
+        // that image's value as its incumbent, but keeps the start's own columns as the answer.
+        // Where presolve fixed a column the start leaves at 0, the image is a better plan than
+        // the start, and if the search finds nothing better still, HiGHS reports "optimal"
+        // with the image's value and the start's columns (case 218 of the brute-force test).
+        // Without a start, its answer is always postsolved from its incumbent. The warm plan
+        // is still the answer when HiGHS gives nothing better (`solve`, `explain::roadmap`).
+        drop(initial);
+        let (_, values, proven) = load(m, constraints, Vec::new(), xs)?;
         // good_lp passes on no bound from HiGHS: the LP relaxation gives one.
         (values, proven, None)
     };
