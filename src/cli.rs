@@ -17,10 +17,12 @@ use tokio::net::TcpListener;
 pub const DEMO_SCENARIO: &str = include_str!("../seed/demo-plant.json");
 
 /// The demo's named plan: three plan years from the month after the load, a yearly capital
-/// budget of 60,000 and one introduction at a time. The three candidates' one-off outlays are
-/// 55,500, 31,000 and 66,000 (the last spread over months), so at most one or two of them fit in
-/// a plan year (the budget binds), and they cannot be introduced at once (the capacity binds).
-const DEMO_PLAN: (&str, &str, &str) = ("Three-year roll-out", "60000", "1");
+/// budget of 80,000 with unspent budget carried forward, and one introduction at a time. The
+/// three candidates' one-off outlays are 55,500, 31,000 and 66,000, so two of them do not fit in
+/// the first plan year (the budget holds EOL-1 back), and they cannot be introduced at once (the
+/// capacity holds PAINT-1 back); the simple plan, by profitability index, starts EOL-1 first and
+/// is worth less.
+const DEMO_PLAN: (&str, &str, &str, &str) = ("Three-year roll-out", "80000", "1", "true");
 
 /// Site settings for a database started without the demo plant.
 const EMPTY_SITE: &str = r#"{"format": "pilot-ledger-scenario", "version": 1,
@@ -209,12 +211,13 @@ pub async fn prepare(url: &str, demo: bool, now: time::OffsetDateTime) -> anyhow
         if db::count_users(&pool).await? == 0 {
             create_demo_accounts(&pool, now).await?;
         }
-        let (name, budgets, capacity) = DEMO_PLAN;
+        let (name, budgets, capacity, carry_over) = DEMO_PLAN;
         let inputs = crate::domain::RoadmapQuery {
             start: crate::domain::RoadmapParams::next_month(now).to_string(),
             years: "3".into(),
             budgets: budgets.into(),
             capacity: capacity.into(),
+            carry_over: carry_over.into(),
             ..Default::default()
         };
         app::roadmap::save_plan(&pool, "scenario-load", name, &inputs, now)

@@ -247,10 +247,10 @@ async fn the_roadmap_fits_1440_px_without_overlapping_labels() {
 #[tokio::test]
 async fn a_zone_in_neither_plan_is_no_difference_between_them() {
     let t = crate::helpers::test_app(true).await;
-    let page = t.get("/roadmap?plan=1").await;
+    let page = t.get("/roadmap?start=2026-12&years=3&budgets=60000&capacity=1").await;
     assert_eq!(page.status, StatusCode::OK);
-    // PAINT-1's one-off outlays (66,000) never fit the demo's 60,000 a plan year: it is in
-    // neither plan, which is not listed as a difference.
+    // PAINT-1's one-off outlays (66,000) never fit 60,000 a plan year without carry-over: it
+    // is in neither plan, which is not listed as a difference.
     assert!(page.text.contains("<li><strong>PAINT-1</strong>: not in this plan: budget</li>"), "{}", page.text);
     assert!(!page.text.contains("PAINT-1: here it is not in it"));
     // Positive control: a zone the two plans start apart is listed.
