@@ -62,13 +62,17 @@ pub(super) fn roadmap_with(inst: &Instance, limit: Duration, solvers: Solvers) -
     })
 }
 
-/// Our exact search first, for up to half the time; if it cannot prove its plan, the MILP from
-/// its plan for the rest, with the smaller of the two bounds.
+/// With microlp: our exact search first, for up to half the time; if it cannot prove its plan,
+/// the MILP from its plan for the rest, with the smaller of the two bounds. With HiGHS: the
+/// MILP alone, which proves sooner than the search wherever the search needs more than a
+/// fraction of a second (README, Performance), and so is never slower than HiGHS called
+/// directly.
 fn solve(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], limit: Duration, solvers: Solvers) -> milp::Solved {
     let start = Instant::now();
     let share = if solvers == Solvers::Both { limit / 2 } else { limit };
     let found = match solvers {
         Solvers::MilpOnly => None,
+        Solvers::Both if cfg!(feature = "highs") => None,
         _ => search::search(inst, eligible, warm, start + share),
     };
     let Some(found) = found else {
