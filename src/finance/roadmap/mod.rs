@@ -24,10 +24,12 @@
 //!   planned.
 //!
 //! # The solver
-//! [`roadmap`] solves the usual MILP (binary `x[z,q]`) through `good_lp`, `microlp` by default
-//! and HiGHS with the `highs` feature, re-checks its plan in exact cents with [`check`] (a plan
-//! a float tolerance let over a limit is cut off and the model solved again), then inserts any
-//! candidate that still fits. DEVELOPERS.md (Roadmap model) has the formulation.
+//! [`roadmap`] runs an exact search of our own (`search.rs`: depth first, rules in exact
+//! integers, a Lagrangian bound), then, if the search could not prove its plan, the usual MILP
+//! (binary `x[z,q]`) through `good_lp`, `microlp` by default; with the `highs` feature HiGHS
+//! solves the MILP alone. A MILP plan is re-checked in exact cents with [`check`] (a plan a
+//! float tolerance let over a limit is cut off and the model solved again); then any candidate
+//! that still fits is inserted. DEVELOPERS.md (Roadmap model) has the formulation.
 
 use rust_decimal::Decimal;
 
