@@ -62,6 +62,17 @@ async fn each_bad_input_is_a_422_naming_its_field() {
         )
         .await;
     assert_eq!(ok.status, StatusCode::CREATED, "{}", ok.text);
+    // A typo in the body is not ignored: nothing is saved.
+    let typo = t.post_json("/api/v1/roadmap/plans", r#"{"name": "Typo", "input": {"budgets": "5"}}"#).await;
+    assert_eq!(typo.status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert!(typo.json()["error"].as_str().unwrap().contains("unknown field `input`"), "{}", typo.text);
+    let names: Vec<Value> = t.get("/api/v1/roadmap/plans").await.json()["plans"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| p["name"].clone())
+        .collect();
+    assert_eq!(names, vec![json!("Control")]);
 }
 
 async fn save(t: &TestApp, name: &str, budgets: &str) -> crate::helpers::Answer {
