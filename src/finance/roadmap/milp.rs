@@ -5,10 +5,9 @@
 use super::Instance;
 use super::rules::{self, Areas, budget_rows, loads, quarters, room, window_months};
 use good_lp::constraint::leq;
-use good_lp::{
-    Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel, Variable, WithInitialSolution,
-    WithTimeLimit, variable,
-};
+use good_lp::{Constraint, Expression, ProblemVariables, SolverModel, Variable, variable};
+#[cfg(not(feature = "highs"))]
+use good_lp::{Solution, SolutionStatus, WithInitialSolution, WithTimeLimit};
 use rust_decimal::prelude::ToPrimitive;
 use std::time::Instant;
 
@@ -316,6 +315,7 @@ fn run(
 
 /// Load the rows and the starting plan into a backend's model and solve it: the variables'
 /// values and whether the backend proved them optimal.
+#[cfg(not(feature = "highs"))]
 fn load<M>(
     mut m: M,
     constraints: Vec<Constraint>,
@@ -354,12 +354,7 @@ fn backend(
     };
     #[cfg(feature = "highs")]
     let (values, proven, bound) = {
-        // HiGHS stops at a relative gap of 1e-4 by default: the plan must be the exact optimum.
-        let m = good_lp::highs(problem)
-            .set_threads(1)
-            .set_mip_rel_gap(0.0)
-            .map_err(|e| e.to_string())?
-            .with_time_limit(secs);
+        let mut m = good_lp::highs(problem);
         // No MIP start for HiGHS: HiGHS 1.16 maps the start into the presolved model and takes
         // that image's value as its incumbent, but keeps the start's own columns as the answer.
         // Where presolve fixed a column the start leaves at 0, the image is a better plan than
@@ -368,9 +363,30 @@ fn backend(
         // Without a start, its answer is always postsolved from its incumbent. The warm plan
         // is still the answer when HiGHS gives nothing better (`solve`, `explain::roadmap`).
         drop(initial);
-        let (_, values, proven) = load(m, constraints, Vec::new(), xs)?;
-        // good_lp passes on no bound from HiGHS: the LP relaxation gives one.
-        (values, proven, None)
+        for c in constraints {
+            m.add_constraint(c);
+        }
+        // HiGHS is run here rather than through good_lp's `solve`, which keeps HiGHS's proven
+        // bound to itself: past the time limit the answer's gap is HiGHS's own.
+        let mut model = m.try_into_inner().map_err(|e| e.to_string())?;
+        model.set_option("threads", 1);
+        // HiGHS stops at a relative gap of 1e-4 by default: the plan must be the exact optimum.
+        model.set_option("mip_rel_gap", 0.0);
+        model.set_option("time_limit", secs);
+        let solved = model.try_solve().map_err(|e| format!("HiGHS: {e:?}"))?;
+        if solved.primal_solution_status() != highs::HighsSolutionStatus::Feasible {
+            return Err(format!("HiGHS found no plan ({:?})", solved.status()));
+        }
+        // The problem's variables are `xs`, in order: HiGHS's columns are theirs.
+        let columns = solved.get_solution().columns().to_vec();
+        if columns.len() != xs.len() {
+            return Err(format!("HiGHS answered {} columns for {} variables", columns.len(), xs.len()));
+        }
+        let values = columns;
+        let gap = solved.mip_gap();
+        let proven = solved.status() == highs::HighsModelStatus::Optimal && gap == 0.0;
+        let bound = solved.double_info_value(c"mip_dual_bound").ok().filter(|b| b.is_finite());
+        (values, proven, bound)
     };
     Ok(Outcome { values, proven, bound })
 }
