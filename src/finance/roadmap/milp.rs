@@ -3,7 +3,7 @@
 //! precedence rows; maximise the value. `microlp` by default, HiGHS with the `highs` feature.
 
 use super::Instance;
-use super::rules::{self, Areas, budget_rows, loads, quarters, room, window_months};
+use super::rules::{self, Areas, Rooms, lone_starts, row_cents, window_months};
 use good_lp::constraint::leq;
 use good_lp::{Constraint, Expression, ProblemVariables, SolverModel, Variable, variable};
 #[cfg(not(feature = "highs"))]
@@ -85,45 +85,11 @@ pub(super) fn relaxation_bound(inst: &Instance, eligible: &[bool], deadline: Ins
 /// year or month without room) get no variable: integers, so this stays exact.
 fn build(inst: &Instance, eligible: &[bool]) -> Model {
     let areas = Areas::of(inst);
-    let (committed, none) = loads(inst, &areas, &[]);
-    let limits: Vec<i64> = budget_rows(inst, &committed, &none).iter().map(|(b, c, _)| room(*b, *c)).collect();
-    let cap: Vec<i64> = committed.intro.iter().map(|c| room(i64::from(inst.capacity), i64::from(*c))).collect();
-    let area_room: Vec<Vec<i64>> =
-        committed.area.iter().map(|a| a.iter().map(|c| room(1, i64::from(*c))).collect()).collect();
+    let rooms = Rooms::of(inst, &areas);
     let order = rules::validate(inst).unwrap_or_default();
-    let q_count = quarters(inst);
-
-    let mut starts: Vec<Start> = Vec::new();
-    let mut first_var: Vec<Option<usize>> = vec![None; inst.zones.len()];
-    // Earliest month each zone can be live: committed at its own, a candidate at its first
-    // variable's quarter plus its window.
-    let mut live_from: Vec<Option<i64>> =
-        inst.zones.iter().map(|z| z.committed_start.map(|s| i64::from(s) + i64::from(z.window()))).collect();
-    for &i in &order {
-        let z = &inst.zones[i];
-        if z.committed_start.is_some() || !eligible.get(i).copied().unwrap_or(false) {
-            continue;
-        }
-        let area = areas.index(&z.area).filter(|_| inst.one_per_area);
-        for q in 0..q_count {
-            let m = 3 * i64::from(q);
-            if z.needs.iter().any(|a| live_from[*a].is_none_or(|l| l > m)) {
-                continue;
-            }
-            let fits_budget = row_cents(inst, i, q).iter().zip(&limits).all(|(c, l)| c <= l);
-            let s = 3 * q as i32;
-            let fits_months = window_months(inst, z, s)
-                .all(|mm| cap[mm as usize] > 0 && area.is_none_or(|a| area_room[a][mm as usize] > 0));
-            if !(fits_budget && fits_months) {
-                continue;
-            }
-            if first_var[i].is_none() {
-                first_var[i] = Some(starts.len());
-                live_from[i] = Some(m + i64::from(z.window()));
-            }
-            starts.push(Start { zone: i, quarter: q });
-        }
-    }
+    let lone = lone_starts(inst, eligible, &order, &rooms, &areas);
+    let starts: Vec<Start> =
+        order.iter().flat_map(|&i| lone[i].iter().map(move |&q| Start { zone: i, quarter: q })).collect();
 
     let objective: Vec<f64> =
         starts.iter().map(|s| rules::value_at(inst, s.zone, s.quarter).to_f64().unwrap_or(0.0)).collect();
@@ -138,7 +104,7 @@ fn build(inst: &Instance, eligible: &[bool]) -> Model {
     }
     // Budgets, each row scaled to a right-hand side of 1 for the float solver.
     let cents: Vec<Vec<i64>> = starts.iter().map(|s| row_cents(inst, s.zone, s.quarter)).collect();
-    for (r, limit) in limits.iter().enumerate() {
+    for (r, limit) in rooms.budget.iter().enumerate() {
         let terms: Vec<(usize, f64)> = (0..starts.len())
             .filter(|v| cents[*v][r] > 0)
             .map(|v| (v, cents[v][r] as f64 / (*limit).max(1) as f64))
@@ -148,20 +114,20 @@ fn build(inst: &Instance, eligible: &[bool]) -> Model {
         }
     }
     // Capacity and area per month: only rows that can bind.
-    let months = cap.len();
+    let months = rooms.months.len();
     let covers = |v: usize, m: usize| {
         let s = starts[v];
         window_months(inst, &inst.zones[s.zone], 3 * s.quarter as i32).contains(&(m as i64))
     };
-    for (m, room_m) in cap.iter().enumerate() {
+    for (m, room_m) in rooms.months.iter().enumerate() {
         let terms: Vec<(usize, f64)> = (0..starts.len()).filter(|v| covers(*v, m)).map(|v| (v, 1.0)).collect();
         if distinct_zones(&starts, &terms) as i64 > *room_m {
             rows.push((terms, *room_m as f64));
         }
     }
     if inst.one_per_area {
-        for (a, rooms) in area_room.iter().enumerate() {
-            for (m, room_m) in rooms.iter().enumerate().take(months) {
+        for (a, per_month) in rooms.area.iter().enumerate() {
+            for (m, room_m) in per_month.iter().enumerate().take(months) {
                 let terms: Vec<(usize, f64)> = (0..starts.len())
                     .filter(|v| areas.index(&inst.zones[starts[*v].zone].area) == Some(a))
                     .filter(|v| covers(*v, m))
@@ -194,23 +160,6 @@ fn build(inst: &Instance, eligible: &[bool]) -> Model {
         }
     }
     Model { starts, cents, rows, objective }
-}
-
-/// Cents of a start per budget row (cumulative with carry-over).
-pub(super) fn row_cents(inst: &Instance, zone: usize, quarter: u32) -> Vec<i64> {
-    let by_year = rules::one_off_by_year(inst, zone, 3 * quarter as i32);
-    let mut acc = 0i64;
-    by_year
-        .iter()
-        .map(|c| {
-            if inst.carry_over {
-                acc = acc.saturating_add(*c);
-                acc
-            } else {
-                *c
-            }
-        })
-        .collect()
 }
 
 fn distinct_zones(starts: &[Start], terms: &[(usize, f64)]) -> usize {
@@ -378,11 +327,10 @@ fn backend(
             return Err(format!("HiGHS found no plan ({:?})", solved.status()));
         }
         // The problem's variables are `xs`, in order: HiGHS's columns are theirs.
-        let columns = solved.get_solution().columns().to_vec();
-        if columns.len() != xs.len() {
-            return Err(format!("HiGHS answered {} columns for {} variables", columns.len(), xs.len()));
+        let values = solved.get_solution().columns().to_vec();
+        if values.len() != xs.len() {
+            return Err(format!("HiGHS answered {} columns for {} variables", values.len(), xs.len()));
         }
-        let values = columns;
         let gap = solved.mip_gap();
         let proven = solved.status() == highs::HighsModelStatus::Optimal && gap == 0.0;
         let bound = solved.double_info_value(c"mip_dual_bound").ok().filter(|b| b.is_finite());

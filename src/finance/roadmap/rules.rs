@@ -165,6 +165,88 @@ pub(super) fn room(limit: i64, committed: i64) -> i64 {
     (limit - committed).max(0)
 }
 
+/// The room the committed zones leave the candidates: per budget row (cents, see
+/// [`budget_rows`]), per plan month, and per area and month under the one-per-area rule (empty
+/// without it).
+pub(super) struct Rooms {
+    pub(super) budget: Vec<i64>,
+    pub(super) months: Vec<i64>,
+    pub(super) area: Vec<Vec<i64>>,
+}
+
+impl Rooms {
+    pub(super) fn of(inst: &Instance, areas: &Areas) -> Self {
+        let (committed, none) = loads(inst, areas, &[]);
+        let budget = budget_rows(inst, &committed, &none).iter().map(|(b, c, _)| room(*b, *c)).collect();
+        let months = committed.intro.iter().map(|c| room(i64::from(inst.capacity), i64::from(*c))).collect();
+        let area = if inst.one_per_area {
+            committed.area.iter().map(|a| a.iter().map(|c| room(1, i64::from(*c))).collect()).collect()
+        } else {
+            Vec::new()
+        };
+        Self { budget, months, area }
+    }
+}
+
+/// The quarters each eligible candidate could start in alone, beside the committed zones: the
+/// zones it needs can be live by then (a candidate it needs at its own first such quarter), its
+/// cents fit every budget row's room, and every month of its window has room. Only integers,
+/// so a solver that leaves the other starts out stays exact. Indexed by zone; empty for a zone
+/// not eligible; `order` puts every zone after the zones it needs.
+pub(super) fn lone_starts(
+    inst: &Instance,
+    eligible: &[bool],
+    order: &[usize],
+    rooms: &Rooms,
+    areas: &Areas,
+) -> Vec<Vec<u32>> {
+    let mut out: Vec<Vec<u32>> = vec![Vec::new(); inst.zones.len()];
+    // Earliest month each zone can be live: committed at its own, a candidate at its first
+    // start plus its window.
+    let mut live_from: Vec<Option<i64>> =
+        inst.zones.iter().map(|z| z.committed_start.map(|s| i64::from(s) + i64::from(z.window()))).collect();
+    for &i in order {
+        let z = &inst.zones[i];
+        if z.committed_start.is_some() || !eligible.get(i).copied().unwrap_or(false) {
+            continue;
+        }
+        let area = areas.index(&z.area).filter(|_| inst.one_per_area);
+        for q in 0..quarters(inst) {
+            let m = 3 * i64::from(q);
+            if z.needs.iter().any(|a| live_from[*a].is_none_or(|l| l > m)) {
+                continue;
+            }
+            let fits_budget = row_cents(inst, i, q).iter().zip(&rooms.budget).all(|(c, r)| c <= r);
+            let fits_months = window_months(inst, z, 3 * q as i32)
+                .all(|mm| rooms.months[mm as usize] > 0 && area.is_none_or(|a| rooms.area[a][mm as usize] > 0));
+            if fits_budget && fits_months {
+                if out[i].is_empty() {
+                    live_from[i] = Some(m + i64::from(z.window()));
+                }
+                out[i].push(q);
+            }
+        }
+    }
+    out
+}
+
+/// Cents of a start per budget row (cumulative with carry-over).
+pub(super) fn row_cents(inst: &Instance, zone: usize, quarter: u32) -> Vec<i64> {
+    let by_year = one_off_by_year(inst, zone, 3 * quarter as i32);
+    let mut acc = 0i64;
+    by_year
+        .iter()
+        .map(|c| {
+            if inst.carry_over {
+                acc = acc.saturating_add(*c);
+                acc
+            } else {
+                *c
+            }
+        })
+        .collect()
+}
+
 /// The budget rows: per plan year, or cumulative over years `0..=y` with carry-over; each is
 /// (limit, committed spending, candidates' spending).
 pub(super) fn budget_rows(inst: &Instance, committed: &Load, cand: &Load) -> Vec<(i64, i64, i64)> {

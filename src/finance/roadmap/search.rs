@@ -17,7 +17,7 @@
 //! rounding, so a node is dropped only when no plan below it can be a cent better.
 
 use super::Instance;
-use super::rules::{self, Areas, budget_rows, loads, quarters, room, window_months};
+use super::rules::{self, Areas, Rooms, lone_starts, window_months};
 use rust_decimal::prelude::ToPrimitive;
 use std::time::Instant;
 
@@ -51,8 +51,6 @@ struct Cand {
     opts: Vec<Opt>,
     /// Candidates (indices into `cands`) it needs.
     needs: Vec<usize>,
-    /// The earliest month it could be live at all.
-    earliest_live: i64,
 }
 
 /// Search for the optimal plan over the `eligible` candidates until `deadline`, from the
@@ -103,17 +101,11 @@ struct Search {
 impl Search {
     fn new(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], deadline: Instant) -> Option<Self> {
         let areas = Areas::of(inst);
-        let (committed, none) = loads(inst, &areas, &[]);
-        let row_room: Vec<i64> = budget_rows(inst, &committed, &none).iter().map(|(b, c, _)| room(*b, *c)).collect();
-        let cap_room: Vec<i64> =
-            committed.intro.iter().map(|c| room(i64::from(inst.capacity), i64::from(*c))).collect();
-        let area_room: Vec<Vec<i64>> = if inst.one_per_area {
-            committed.area.iter().map(|a| a.iter().map(|c| room(1, i64::from(*c))).collect()).collect()
-        } else {
-            Vec::new()
-        };
-        let row_scale: Vec<f64> = row_room.iter().map(|r| (*r).max(1) as f64).collect();
+        let rooms = Rooms::of(inst, &areas);
         let order = rules::validate(inst).ok()?;
+        let lone = lone_starts(inst, eligible, &order, &rooms, &areas);
+        let Rooms { budget: row_room, months: cap_room, area: area_room } = rooms;
+        let row_scale: Vec<f64> = row_room.iter().map(|r| (*r).max(1) as f64).collect();
         let mut local: Vec<Option<usize>> = vec![None; inst.zones.len()];
         let mut cands: Vec<Cand> = Vec::new();
         for &i in &order {
@@ -121,33 +113,14 @@ impl Search {
             if z.committed_start.is_some() || !eligible.get(i).copied().unwrap_or(false) {
                 continue;
             }
-            // Needs on committed zones are fixed months; needs on candidates stay to check.
-            let committed_live = z
-                .needs
-                .iter()
-                .filter_map(|a| {
-                    let za = &inst.zones[*a];
-                    za.committed_start.map(|s| i64::from(s) + i64::from(za.window()))
-                })
-                .max()
-                .unwrap_or(i64::MIN);
+            // Needs on committed zones hold at every lone start; needs on candidates stay to check.
             let needs: Vec<usize> = z.needs.iter().filter_map(|a| local[*a]).collect();
             let area = if inst.one_per_area { areas.index(&z.area) } else { None };
             let mut opts = Vec::new();
-            for q in 0..quarters(inst) {
+            for &q in &lone[i] {
                 let start = 3 * q as i32;
-                if i64::from(start) < committed_live || needs.iter().any(|a| cands[*a].earliest_live > i64::from(start))
-                {
-                    continue;
-                }
-                let cents_by_row = super::milp::row_cents(inst, i, q);
+                let cents_by_row = rules::row_cents(inst, i, q);
                 let w = window_months(inst, z, start);
-                let (from, to) = (w.start as usize, w.end as usize);
-                let fits = cents_by_row.iter().zip(&row_room).all(|(c, r)| c <= r)
-                    && (from..to).all(|m| cap_room[m] > 0 && area.is_none_or(|a| area_room[a][m] > 0));
-                if !fits {
-                    continue;
-                }
                 let cents = (rules::value_at(inst, i, q) * rust_decimal::Decimal::ONE_HUNDRED).to_i64()?;
                 let rows = cents_by_row
                     .iter()
@@ -156,11 +129,18 @@ impl Search {
                     .map(|(r, c)| (r, *c, *c as f64 / row_scale[r]))
                     .collect();
                 let live = i64::from(start) + i64::from(z.window());
-                opts.push(Opt { quarter: q, cents, value: cents as f64, rows, from, to, live });
+                opts.push(Opt {
+                    quarter: q,
+                    cents,
+                    value: cents as f64,
+                    rows,
+                    from: w.start as usize,
+                    to: w.end as usize,
+                    live,
+                });
             }
-            let earliest_live = opts.iter().map(|o| o.live).min().unwrap_or(i64::MAX);
             local[i] = Some(cands.len());
-            cands.push(Cand { zone: i, area, opts, needs, earliest_live });
+            cands.push(Cand { zone: i, area, opts, needs });
         }
         let n = cands.len();
         let mut s = Self {
