@@ -392,7 +392,7 @@ impl Search {
 
     /// The Lagrangian bound on the free candidates' value (cents), after up to `steps`
     /// subgradient steps from `mult` (left at the best multipliers found).
-    fn lagrange(&mut self, mult: &mut [f64], avail: &[Vec<usize>], free: &[usize], steps: usize) -> f64 {
+    fn lagrange(&self, mult: &mut [f64], avail: &[Vec<usize>], free: &[usize], steps: usize) -> f64 {
         let nr = self.row_room.len();
         let months = self.cap_room.len();
         let mut best_l = f64::INFINITY;

@@ -220,7 +220,7 @@ pub async fn api_plan(
 
 /// The body of `POST /api/v1/roadmap/plans`: a name and the plan inputs (strings, as the query).
 #[derive(Debug, Default, Deserialize, Serialize)]
-#[serde(default, deny_unknown_fields)]
+#[serde(default)]
 pub struct PlanInput {
     name: String,
     inputs: RoadmapQuery,
