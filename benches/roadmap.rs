@@ -7,10 +7,13 @@
 //! cargo bench --bench roadmap                     # finance::roadmap with microlp
 //! cargo bench --bench roadmap --features highs    # with HiGHS
 //! cargo bench --bench roadmap -- --limit 30 realistic-1   # time limit, names containing ..
+//! cargo bench --bench roadmap -- --runs 5 realistic-30     # the median of 5 runs each
 //! ```
 //! Each instance is written to `target/roadmap-bench/<name>.json`; `finance::roadmap::roadmap`
 //! solves it with the time limit (10 s unless `--limit` or `ROADMAP_BENCH_LIMIT` says), then
-//! `benches/roadmap_scipy.py` solves the same file with the same limit. Both plans are checked
+//! `benches/roadmap_scipy.py` solves the same file with the same limit. With `--runs N` each side
+//! solves each instance N times, in turns, and the table shows the median time with the range
+//! beside it: on a shared 2-core machine one run's time varies by a fifth. Both plans are checked
 //! with `finance::roadmap::check`, and the table says whether the two values agree to the cent.
 //! Results go to `target/roadmap-bench/results-<backend>.json`; when a run of the other
 //! backend with the same limit is there, a table of all three follows.
@@ -43,6 +46,8 @@ struct Row {
     candidates: usize,
     backend: String,
     seconds: f64,
+    /// The fastest and slowest of the runs, when there were several.
+    range: Option<(f64, f64)>,
     proven: bool,
     /// (bound - value) / value, as HiGHS reports its MIP gap; `None` without a plan.
     gap: Option<f64>,
@@ -56,7 +61,7 @@ impl Row {
     fn to_json(&self) -> Value {
         json!({
             "instance": self.instance, "candidates": self.candidates, "backend": self.backend,
-            "seconds": self.seconds, "proven": self.proven, "gap": self.gap,
+            "seconds": self.seconds, "range": self.range.map(|(a, b)| [a, b]), "proven": self.proven, "gap": self.gap,
             "objective": self.objective.map(|d| d.to_string()), "problem": self.problem,
         })
     }
@@ -67,6 +72,7 @@ impl Row {
             candidates: v["candidates"].as_u64()? as usize,
             backend: v["backend"].as_str()?.to_string(),
             seconds: v["seconds"].as_f64()?,
+            range: v["range"].as_array().and_then(|r| Some((r.first()?.as_f64()?, r.get(1)?.as_f64()?))),
             proven: v["proven"].as_bool()?,
             gap: v["gap"].as_f64(),
             objective: v["objective"].as_str().and_then(|s| s.parse().ok()),
@@ -78,6 +84,7 @@ impl Row {
 struct Options {
     limit: f64,
     filters: Vec<String>,
+    runs: usize,
     python: String,
 }
 
@@ -90,17 +97,21 @@ fn options() -> Option<Options> {
     }
     let mut limit = std::env::var("ROADMAP_BENCH_LIMIT").ok().map(|s| s.parse().expect("ROADMAP_BENCH_LIMIT: seconds"));
     let mut filters = Vec::new();
+    let mut runs = 1;
     let mut it = args.into_iter();
     while let Some(a) = it.next() {
         match a.as_str() {
             "--bench" => {}
             "--limit" => limit = Some(it.next().and_then(|s| s.parse().ok()).expect("--limit SECONDS")),
-            other if other.starts_with("--") => panic!("unknown option {other}: --limit SECONDS, then instance names"),
+            "--runs" => runs = it.next().and_then(|s| s.parse().ok()).filter(|n| *n > 0).expect("--runs N (1 or more)"),
+            other if other.starts_with("--") => {
+                panic!("unknown option {other}: --limit SECONDS, --runs N, then instance names")
+            }
             other => filters.push(other.to_string()),
         }
     }
     let python = std::env::var("PYTHON").unwrap_or_else(|_| "python3".to_string());
-    Some(Options { limit: limit.unwrap_or(DEFAULT_LIMIT), filters, python })
+    Some(Options { limit: limit.unwrap_or(DEFAULT_LIMIT), filters, runs, python })
 }
 
 /// scipy and numpy versions, or how to install them.
@@ -143,6 +154,7 @@ fn ours(name: &str, candidates: usize, inst: &Instance, limit: f64) -> Row {
         candidates,
         backend: BACKEND.to_string(),
         seconds,
+        range: None,
         proven: false,
         gap: None,
         objective: None,
@@ -168,6 +180,7 @@ fn scipy(python: &str, name: &str, candidates: usize, inst: &Instance, path: &Pa
         candidates,
         backend: "scipy milp".to_string(),
         seconds: f64::NAN,
+        range: None,
         proven: false,
         gap: None,
         objective: None,
@@ -245,12 +258,14 @@ fn table(rows: &[Row]) -> String {
         let reference = rows.iter().find(|o| o.instance == r.instance && o.backend == "scipy milp");
         let objective = r.objective.map_or("—".to_string(), money);
         let problem = r.problem.as_ref().map_or(String::new(), |p| format!(" ({p})"));
+        let range = r.range.map_or(String::new(), |(a, b)| format!(" ({a:.2}–{b:.2})"));
         s += &format!(
-            "| {} | {} | {} | {:.2} | {}{} | {} | {} |\n",
+            "| {} | {} | {} | {:.2}{} | {}{} | {} | {} |\n",
             r.instance,
             r.candidates,
             r.backend,
             r.seconds,
+            range,
             state(r),
             problem,
             objective,
@@ -297,9 +312,10 @@ fn main() {
         eprintln!("scipy side skipped: {how}");
     }
     println!(
-        "roadmap benchmark: finance::roadmap with {BACKEND}; {}; time limit {} s; {}\n",
+        "roadmap benchmark: finance::roadmap with {BACKEND}; {}; time limit {} s; {}; {}\n",
         python.as_deref().unwrap_or("scipy not run"),
         opts.limit,
+        if opts.runs > 1 { format!("median of {} runs each", opts.runs) } else { "one run each".to_string() },
         machine()
     );
     let mut mine = Vec::new();
@@ -311,14 +327,19 @@ fn main() {
         let path = dir.join(format!("{}.json", g.name));
         let text = serde_json::to_string_pretty(&instances::to_json(&g)).expect("JSON");
         std::fs::write(&path, text + "\n").expect("write the instance");
-        let row = ours(&g.name, g.candidates, &g.instance, opts.limit);
-        eprintln!("{}: {BACKEND} {:.2} s, {}", g.name, row.seconds, state(&row));
-        mine.push(row);
-        if python.is_ok() {
-            let row = scipy(&opts.python, &g.name, g.candidates, &g.instance, &path, opts.limit);
-            eprintln!("{}: scipy milp {:.2} s, {}", g.name, row.seconds, state(&row));
-            theirs.push(row);
+        let (mut a, mut b) = (Vec::new(), Vec::new());
+        for _ in 0..opts.runs {
+            let row = ours(&g.name, g.candidates, &g.instance, opts.limit);
+            eprintln!("{}: {BACKEND} {:.2} s, {}", g.name, row.seconds, state(&row));
+            a.push(row);
+            if python.is_ok() {
+                let row = scipy(&opts.python, &g.name, g.candidates, &g.instance, &path, opts.limit);
+                eprintln!("{}: scipy milp {:.2} s, {}", g.name, row.seconds, state(&row));
+                b.push(row);
+            }
         }
+        mine.extend(median(a));
+        theirs.extend(median(b));
     }
     let save = |name: &str, rows: &[Row]| {
         let doc = json!({"limit": opts.limit, "rows": rows.iter().map(Row::to_json).collect::<Vec<_>>()});
@@ -347,6 +368,15 @@ fn main() {
             println!("With the last {other} run (target/roadmap-bench/results-{other}.json):\n\n{}", table(&rows));
         }
     }
+}
+
+/// The run of median time (of an even number, the faster middle one), with the range of all.
+fn median(mut runs: Vec<Row>) -> Option<Row> {
+    runs.sort_by(|x, y| x.seconds.total_cmp(&y.seconds));
+    let range = (runs.len() > 1).then(|| (runs[0].seconds, runs[runs.len() - 1].seconds));
+    let mut row = runs.get((runs.len().max(1) - 1) / 2)?.clone();
+    row.range = range;
+    Some(row)
 }
 
 /// Instances in the run's order; per instance microlp, highs, then scipy.

@@ -202,7 +202,7 @@ def check(inst, starts):
     return None
 
 
-def solve(inst, limit):
+def solve(inst, limit, runner=None):
     t0 = time.perf_counter()
     variables, coef, a, ub = build(inst)
     built = time.perf_counter() - t0
@@ -214,9 +214,7 @@ def solve(inst, limit):
         return out
     c = -np.array([float(v) for v in coef])
     t1 = time.perf_counter()
-    res = milp(c, integrality=np.ones(len(variables)), bounds=Bounds(0, 1),
-               constraints=LinearConstraint(a, -np.inf, ub),
-               options={"time_limit": limit, "mip_rel_gap": 0.0, "presolve": True})
+    res = (runner or run)(c, a, ub, limit)
     out["seconds"] = time.perf_counter() - t1
     out["status"], out["message"] = int(res.status), str(res.message)
     out["proven"] = res.status == 0
@@ -236,10 +234,48 @@ def solve(inst, limit):
     return out
 
 
+def run(c, a, ub, limit):
+    """Minimise c x over binary x with a x <= ub: scipy.optimize.milp, the reference."""
+    return milp(c, integrality=np.ones(len(c)), bounds=Bounds(0, 1),
+                constraints=LinearConstraint(a, -np.inf, ub),
+                options={"time_limit": limit, "mip_rel_gap": 0.0, "presolve": True})
+
+
+def run_highspy(c, a, ub, limit):
+    """The same model and options as `run`, through the highspy package, whose HiGHS release
+    can differ from the one scipy bundles (a check on the release, not the reference)."""
+    import highspy
+    from types import SimpleNamespace
+    n, m = len(c), a.shape[0]
+    lp = highspy.HighsLp()
+    lp.num_col_, lp.num_row_ = n, m
+    lp.col_cost_, lp.col_lower_, lp.col_upper_ = c, np.zeros(n), np.ones(n)
+    lp.row_lower_, lp.row_upper_ = np.full(m, -highspy.kHighsInf), ub
+    csc = a.tocsc()
+    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+    lp.a_matrix_.start_, lp.a_matrix_.index_ = csc.indptr, csc.indices
+    lp.a_matrix_.value_ = csc.data.astype(float)
+    lp.integrality_ = [highspy.HighsVarType.kInteger] * n
+    h = highspy.Highs()
+    h.setOptionValue("output_flag", False)
+    for k, v in {"time_limit": limit, "mip_rel_gap": 0.0, "presolve": "on"}.items():
+        h.setOptionValue(k, v)
+    h.passModel(lp)
+    h.run()
+    info, status = h.getInfo(), h.getModelStatus()
+    has_x = info.primal_solution_status == 2  # kSolutionStatusFeasible
+    return SimpleNamespace(
+        status=0 if status == highspy.HighsModelStatus.kOptimal else 1, message=h.modelStatusToString(status),
+        x=np.array(h.getSolution().col_value) if has_x else None,
+        mip_dual_bound=info.mip_dual_bound if has_x else None, mip_gap=info.mip_gap if has_x else None)
+
+
 def main():
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("--time-limit", type=float, default=10.0, help="seconds per instance (default 10)")
     p.add_argument("--table", action="store_true", help="a markdown table instead of JSON lines")
+    p.add_argument("--highspy", action="store_true",
+                   help="solve through the installed highspy instead of scipy (same model and options)")
     p.add_argument("instances", nargs="+", help="instance JSON files")
     args = p.parse_args()
     results = []
@@ -248,12 +284,18 @@ def main():
             inst = json.load(f)
         if inst.get("format") != "pilot-ledger roadmap instance" or inst.get("version") != 1:
             sys.exit(f"{path}: not a version 1 pilot-ledger roadmap instance")
-        r = solve(inst, args.time_limit)
+        r = solve(inst, args.time_limit, run_highspy if args.highspy else run)
         results.append(r)
         if not args.table:
             print(json.dumps(r), flush=True)
     if args.table:
-        print(f"scipy {scipy.__version__}, numpy {np.__version__}, time limit {args.time_limit:g} s\n")
+        if args.highspy:
+            import highspy
+            solver = f"highspy {highspy.Highs().version()}"
+        else:
+            from scipy.optimize._highspy import _core
+            solver = f"scipy {scipy.__version__} (HiGHS {_core.HIGHS_VERSION_MAJOR}.{_core.HIGHS_VERSION_MINOR}.{_core.HIGHS_VERSION_PATCH})"
+        print(f"{solver}, numpy {np.__version__}, time limit {args.time_limit:g} s\n")
         print("| instance | variables | rows | seconds | proven or gap | objective | exact re-check |")
         print("|---|---|---|---|---|---|---|")
         for r in results:
