@@ -27,9 +27,10 @@
 //! [`roadmap`] runs an exact search of our own (`search.rs`: depth first, rules in exact
 //! integers, a Lagrangian bound), then, if the search could not prove its plan, the usual MILP
 //! (binary `x[z,q]`) through `good_lp`, `microlp` by default (the search gets half the time);
-//! with the `highs` feature HiGHS, after a hundredth of the time in the search. A MILP plan is re-checked in exact cents with [`check`] (a plan a
-//! float tolerance let over a limit is cut off and the model solved again); then any candidate
-//! that still fits is inserted. DEVELOPERS.md (Roadmap model) has the formulation.
+//! with the `highs` feature HiGHS, after a hundredth of the time in the search. A MILP plan is
+//! re-checked in exact cents with [`check`] (a plan a float tolerance let over a limit is cut
+//! off and the model solved again); then any candidate that still fits is inserted.
+//! DEVELOPERS.md (Roadmap model) has the formulation.
 
 use rust_decimal::Decimal;
 
