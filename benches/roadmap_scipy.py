@@ -18,7 +18,8 @@ Rows whose right-hand side the committed zones alone overrun are clamped at zero
 there), as the roadmap's overruns are reported, not made infeasible.
 
 Usage (from the repository root; `pip install -r benches/requirements-roadmap.txt`):
-    python3 benches/roadmap_scipy.py [--time-limit 10] [--table] [--highspy] target/roadmap-bench/{realistic,adversarial}-*.json
+    python3 benches/roadmap_scipy.py [--time-limit 10] [--table] [--highspy] INSTANCE.json ...
+with the instances as target/roadmap-bench/{realistic,adversarial}-*.json (not results-*).
 Prints one JSON object per instance (or, with --table, a markdown table): the time of the
 milp() call alone (building the matrices is timed apart), whether HiGHS proved the optimum
 (mip_rel_gap = 0), the gap at the time limit, the plan's value summed exactly from the rounded

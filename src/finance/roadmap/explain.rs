@@ -62,17 +62,12 @@ pub(super) fn roadmap_with(inst: &Instance, limit: Duration, solvers: Solvers) -
     })
 }
 
-/// Our exact search first, then, if it cannot prove its plan, the MILP from its plan for the
-/// rest of the time, with the smaller of the two bounds. With microlp the search gets half the
-/// time. With HiGHS a hundredth: the search proves a small plan in milliseconds, sooner than
-/// HiGHS sets up its model, but past that HiGHS proves sooner (README, Performance).
+/// Our exact search first, for the backend's share of the time (`milp::SEARCH_SHARE`), then,
+/// if it cannot prove its plan, the MILP from its plan for the rest of the time, with the
+/// smaller of the two bounds.
 fn solve(inst: &Instance, eligible: &[bool], warm: &[Option<i32>], limit: Duration, solvers: Solvers) -> milp::Solved {
     let start = Instant::now();
-    let share = match solvers {
-        Solvers::Both if cfg!(feature = "highs") => limit / 100,
-        Solvers::Both => limit / 2,
-        _ => limit,
-    };
+    let share = if solvers == Solvers::Both { limit / milp::SEARCH_SHARE } else { limit };
     let found = match solvers {
         Solvers::MilpOnly => None,
         _ => search::search(inst, eligible, warm, start + share),
